@@ -7,7 +7,15 @@ Parsing and validation (``load_config``) follow the dataclasses.
 
 from __future__ import annotations
 
+import hashlib
+import math
+import re
+import tomllib
 from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import InputError, Problem
+from .units import parse_quantity
 
 __all__ = [
     "CampaignInfo",
@@ -22,6 +30,10 @@ __all__ = [
     "CampaignConfig",
     "BLOCKAGE_METHODS",
     "LOAD_NAMES",
+    "Q_SOURCES",
+    "TARE_EXTRAPOLATION",
+    "MIN_CP_BINS",
+    "load_config",
 ]
 
 #: Loads the balance calibration yields, in this order: [N], [N], [N m].
@@ -29,6 +41,15 @@ LOAD_NAMES = ("Fx", "Fy", "Mz")
 
 #: Names accepted for [reduction] blockage.
 BLOCKAGE_METHODS = ("allen-vincenti", "maskell", "maskell-3d", "none")
+
+#: Names accepted for [tunnel] q_source, and the tunnel-log column each one reads.
+Q_SOURCES = {"pitot": "dp_pitot", "contraction": "dp_contraction"}
+
+#: Names accepted for [reduction] tare_extrapolation.
+TARE_EXTRAPOLATION = ("flag", "refuse")
+
+#: Fewest azimuth bins [reduction] cp_bins accepts (45° bins; fewer cannot resolve Cp(θ)).
+MIN_CP_BINS = 8
 
 
 @dataclass(frozen=True)
@@ -176,3 +197,679 @@ class CampaignConfig:
             if t.name == name:
                 return t
         raise KeyError(name)
+
+
+# ---------------------------------------------------------------------------------------------
+# campaign.toml → CampaignConfig
+
+_REQUIRED = object()
+_LABEL = re.compile(r"^[A-Za-z0-9_-]+$")
+#: What a tap or balance-channel name may be: it is a CSV column's base name.
+COLUMN_NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_.-]*$")
+#: Log columns with a fixed meaning, which a tap or balance channel may not be named.
+RESERVED_COLUMNS = ("time", "speed", "angle", "dp_pitot", "dp_contraction", "T", "p_baro", "RH")
+
+_POSITIVE = (lambda v: v > 0, "a positive value")
+_NON_NEGATIVE = (lambda v: v >= 0, "a value of zero or more")
+_FRACTION = (lambda v: 0 <= v <= 1, "a fraction from 0 to 1")
+
+# kind → how to say it; kinds other than these are units.DIMENSIONS keys.
+_PLAIN_KINDS = {"str": "a string", "bool": "true or false", "int": "an integer"}
+
+_KEYS = {
+    "campaign": ("title", "facility", "date", "notes"),
+    "tunnel": (
+        "section",
+        "height",
+        "u_height",
+        "width",
+        "u_width",
+        "flow_angle",
+        "u_flow_angle",
+        "static_pressure_gradient",
+        "u_static_pressure_gradient",
+        "q_source",
+        "contraction_factor",
+        "u_contraction_factor",
+    ),
+    "model": (
+        "diameter",
+        "u_diameter",
+        "span",
+        "u_span",
+        "spans_section",
+        "transducer_radius",
+    ),
+    "configuration": ("description", "end_plates", "end_plate_diameter"),
+    "balance": (
+        "channels",
+        "matrix",
+        "second_order",
+        "full_scale",
+        "u_fraction_of_full_scale",
+        "u_matrix_relative",
+        "alignment_angle",
+        "u_alignment_angle",
+    ),
+    "scanner": ("full_scale", "u"),
+    "pitot": ("u", "u_relative"),
+    "thermometer": ("u",),
+    "barometer": ("u",),
+    "hygrometer": ("u",),
+    "tachometer": ("u_relative",),
+    "encoder": ("u",),
+    "tap": ("name", "azimuth", "u_azimuth", "tubing_delay", "u_tubing_delay"),
+    "reduction": (
+        "blockage",
+        "maskell_factor",
+        "lift_interference",
+        "buoyancy",
+        "cp_bins",
+        "base_arc",
+        "max_tap_gap",
+        "tare_extrapolation",
+        "tolerances",
+    ),
+}
+_TOP = ("campaign", "tunnel", "model", "configurations", "instruments", "taps", "reduction")
+
+_TOLERANCE_KINDS = {"temperature_drift": "temperature_difference"}
+
+
+def _key_lines(text: str) -> dict[str, int]:
+    """Line numbers of the tables and keys of a TOML text, by dotted path (``taps[2].name``).
+
+    tomllib keeps no positions; this light scan recovers them for error messages only.
+    """
+    lines: dict[str, int] = {}
+    prefix = ""
+    counts: dict[str, int] = {}
+    header = re.compile(r"^\s*(\[\[?)\s*([^\[\]]+?)\s*\]\]?\s*(#.*)?$")
+    key = re.compile(r"""^\s*("[^"]*"|'[^']*'|[A-Za-z0-9_.-]+)\s*=""")
+    for number, line in enumerate(text.splitlines(), start=1):
+        if m := header.match(line):
+            name = ".".join(part.strip().strip("\"'") for part in m.group(2).split("."))
+            if m.group(1) == "[[":
+                index = counts.get(name, 0)
+                counts[name] = index + 1
+                name = f"{name}[{index}]"
+            prefix = name
+            lines.setdefault(prefix, number)
+        elif m := key.match(line):
+            dotted = f"{prefix}.{m.group(1).strip(chr(34) + chr(39))}".lstrip(".")
+            lines.setdefault(dotted, number)
+    return lines
+
+
+class _Reader:
+    """Collects problems while campaign.toml's tables are read into dataclass fields."""
+
+    def __init__(self, file: str, text: str):
+        self.file = file
+        self.problems: list[Problem] = []
+        self.fatal = False
+        self._lines = _key_lines(text)
+
+    def line(self, path: str) -> int | None:
+        while path:
+            if path in self._lines:
+                return self._lines[path]
+            path = path.rpartition(".")[0]
+        return None
+
+    def problem(self, path: str, expected: str, found: str, hint: str = "", *, fatal=False):
+        self.problems.append(Problem(self.file, self.line(path), path, expected, found, hint))
+        self.fatal = self.fatal or fatal
+
+    def table(self, data: dict, key: str, path: str, allowed, *, required=False) -> dict:
+        if key not in data:
+            if required:
+                self.problem(path, f"a [{path}] table", "none", f"Add [{path}].", fatal=True)
+            return {}
+        value = data[key]
+        if not isinstance(value, dict):
+            self.problem(path, f"a [{path}] table", f"{value!r}", fatal=required)
+            return {}
+        self.check_keys(value, path, allowed)
+        return value
+
+    def check_keys(self, value: dict, path: str, allowed) -> None:
+        for name in value:
+            if name not in allowed:
+                self.problem(
+                    f"{path}.{name}",
+                    f"a key of [{path}] ({', '.join(allowed)})",
+                    repr(name),
+                    "Check the spelling; docs/input-format.md lists every key.",
+                )
+
+    def get(self, table: dict, path: str, key: str, kind: str, default=_REQUIRED, check=None):
+        """The value of ``key`` converted to ``kind``; the default (or None, fatally) if bad."""
+        full = f"{path}.{key}"
+        required = default is _REQUIRED
+        if key not in table:
+            if required:
+                self.problem(
+                    full,
+                    f"{key} ({_describe(kind)})",
+                    "nothing",
+                    f"Add {key} to [{path}].",
+                    fatal=True,
+                )
+                return None
+            return default
+        value = self.convert(table[key], kind, full, fatal=required)
+        if value is None:
+            return None if required else default
+        if check is not None and not check[0](value):
+            self.problem(full, check[1], repr(table[key]), fatal=required)
+            return None if required else default
+        return value
+
+    def convert(self, raw, kind: str, path: str, *, fatal: bool):
+        if kind == "str":
+            ok = isinstance(raw, str)
+        elif kind == "bool":
+            ok = isinstance(raw, bool)
+        elif kind == "int":
+            ok = isinstance(raw, int) and not isinstance(raw, bool)
+        else:
+            try:
+                return parse_quantity(raw, kind, file=self.file, key=path)
+            except InputError as exc:
+                for p in exc.problems:
+                    self.problem(path, p.expected, p.found, p.hint, fatal=fatal)
+                return None
+        if not ok:
+            self.problem(path, _describe(kind), f"{raw!r}", fatal=fatal)
+            return None
+        return raw
+
+    def choice(self, table: dict, path: str, key: str, choices, default):
+        value = self.get(table, path, key, "str", default)
+        if value not in choices:
+            self.problem(
+                f"{path}.{key}",
+                f"one of {', '.join(map(repr, choices))}",
+                repr(value),
+                "docs/input-format.md lists the names.",
+            )
+            return default
+        return value
+
+    def numbers(self, raw, path: str, kinds, *, fatal: bool) -> tuple[float, ...] | None:
+        """A list of quantities, one kind per entry."""
+        if not isinstance(raw, list) or len(raw) != len(kinds):
+            self.problem(path, f"a list of {len(kinds)} values", f"{raw!r}", fatal=fatal)
+            return None
+        values = [
+            self.convert(v, k, f"{path}[{i}]", fatal=fatal)
+            for i, (v, k) in enumerate(zip(raw, kinds, strict=True))
+        ]
+        return None if any(v is None for v in values) else tuple(values)
+
+    def matrix(self, raw, path: str, shape: tuple[int, int], *, fatal: bool):
+        rows, cols = shape
+        found_shape = _shape(raw)
+        if found_shape != shape:
+            self.problem(
+                path,
+                f"a {rows} × {cols} array of numbers",
+                _shape_text(raw, found_shape),
+                f"One row per load ({', '.join(LOAD_NAMES)}), one column per channel.",
+                fatal=fatal,
+            )
+            return None
+        out = []
+        for i, row in enumerate(raw):
+            values = self.numbers(row, f"{path}[{i}]", ["fraction"] * cols, fatal=fatal)
+            if values is None:
+                return None
+            out.append(values)
+        return tuple(out)
+
+
+def _describe(kind: str) -> str:
+    from .units import DIMENSIONS
+
+    return _PLAIN_KINDS.get(kind) or DIMENSIONS[kind][2]
+
+
+def _shape(raw) -> tuple[int, int] | None:
+    if not isinstance(raw, list) or not raw or not all(isinstance(r, list) for r in raw):
+        return None
+    widths = {len(r) for r in raw}
+    return (len(raw), widths.pop()) if len(widths) == 1 else None
+
+
+def _shape_text(raw, shape) -> str:
+    if shape is not None:
+        return f"{shape[0]} × {shape[1]}"
+    if isinstance(raw, list) and all(isinstance(r, list) for r in raw):
+        return f"rows of lengths {[len(r) for r in raw]}"
+    return repr(raw)
+
+
+def load_config(path) -> tuple[CampaignConfig | None, list[Problem]]:
+    """Read and validate campaign.toml.
+
+    Every problem in the file is collected, not only the first.
+
+    Parameters
+    ----------
+    path : str or Path
+        The campaign.toml file (opened read-only).
+
+    Returns
+    -------
+    config : CampaignConfig or None
+        None when the file cannot be read, is not valid TOML, or a required value is missing or
+        invalid. When only optional values are invalid, the configuration is built with their
+        documented defaults in their place, so that the logs can still be checked against it;
+        the problems are returned all the same, and a campaign treats them as concerning every
+        run.
+    problems : list of Problem
+        Each with the file, the line of the key (where it can be found) and the dotted key.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (folder / "campaign.toml").write_text('''
+    ... [campaign]
+    ... title = "Demo"
+    ... facility = "Tunnel 1"
+    ... [tunnel]
+    ... height = "1.2 m"
+    ... width = 0.9
+    ... [model]
+    ... diameter = "110 mm"
+    ... span = 0.9
+    ... [configurations.A]
+    ... ''')
+    >>> config, problems = load_config(folder / "campaign.toml")
+    >>> config.model.diameter, problems
+    (0.11, [])
+    """
+    path = Path(path)
+    file = path.name
+    try:
+        with open(path, "rb") as stream:
+            raw_bytes = stream.read()
+    except OSError as exc:
+        return None, [
+            Problem(
+                file,
+                None,
+                None,
+                "a readable campaign.toml",
+                exc.strerror or str(exc),
+                "Check the campaign folder.",
+            )
+        ]
+    try:
+        text = raw_bytes.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw_bytes[: exc.start].count(b"\n") + 1
+        return None, [
+            Problem(
+                file,
+                line,
+                None,
+                "UTF-8 text",
+                f"byte 0x{raw_bytes[exc.start]:02x} at offset {exc.start}",
+                "Save campaign.toml as UTF-8.",
+            )
+        ]
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        match = re.search(r"line (\d+)", str(exc))
+        return None, [
+            Problem(
+                file,
+                int(match.group(1)) if match else None,
+                None,
+                "valid TOML",
+                str(exc),
+                "Fix the TOML syntax there.",
+            )
+        ]
+    r = _Reader(file, text)
+    for key in data:
+        if key not in _TOP:
+            r.problem(key, f"a table of {', '.join(_TOP)}", repr(key), "Check the spelling.")
+    config = _build(r, data)
+    if r.fatal or config is None:
+        return None, r.problems
+    return _replace_sha(config, hashlib.sha256(raw_bytes).hexdigest()), r.problems
+
+
+def _replace_sha(config: CampaignConfig, sha: str) -> CampaignConfig:
+    from dataclasses import replace
+
+    return replace(config, sha256=sha)
+
+
+def _build(r: _Reader, data: dict) -> CampaignConfig | None:
+    t = r.table(data, "campaign", "campaign", _KEYS["campaign"], required=True)
+    nonempty = (lambda v: bool(v.strip()), "a non-empty string")
+    info = CampaignInfo(
+        title=r.get(t, "campaign", "title", "str", check=nonempty),
+        facility=r.get(t, "campaign", "facility", "str", check=nonempty),
+        date=r.get(t, "campaign", "date", "str", ""),
+        notes=r.get(t, "campaign", "notes", "str", ""),
+    )
+    tunnel = _tunnel(r, data)
+    model = _model(r, data, tunnel)
+    configurations = _configurations(r, data, model)
+    instruments = _instruments(r, data)
+    taps = _taps(r, data)
+    reduction = _reduction(r, data, model)
+    if r.fatal:
+        return None
+    return CampaignConfig(info, tunnel, model, configurations, instruments, taps, reduction)
+
+
+def _tunnel(r: _Reader, data: dict) -> TunnelConfig | None:
+    p = "tunnel"
+    t = r.table(data, p, p, _KEYS[p], required=True)
+    section = r.choice(t, p, "section", ("closed",), "closed")
+    height = r.get(t, p, "height", "length", check=_POSITIVE)
+    width = r.get(t, p, "width", "length", check=_POSITIVE)
+    if None in (height, width):
+        return None
+    return TunnelConfig(
+        height=height,
+        width=width,
+        section=section,
+        u_height=r.get(t, p, "u_height", "length", 0.0, _NON_NEGATIVE),
+        u_width=r.get(t, p, "u_width", "length", 0.0, _NON_NEGATIVE),
+        flow_angle=r.get(
+            t, p, "flow_angle", "angle", 0.0, (lambda v: abs(v) < 45, "a flow angle within ±45°")
+        ),
+        u_flow_angle=r.get(t, p, "u_flow_angle", "angle", 0.0, _NON_NEGATIVE),
+        static_pressure_gradient=r.get(t, p, "static_pressure_gradient", "pressure_gradient", 0.0),
+        u_static_pressure_gradient=r.get(
+            t, p, "u_static_pressure_gradient", "pressure_gradient", 0.0, _NON_NEGATIVE
+        ),
+        q_source=r.choice(t, p, "q_source", tuple(Q_SOURCES), "pitot"),
+        contraction_factor=r.get(t, p, "contraction_factor", "fraction", 1.0, _POSITIVE),
+        u_contraction_factor=r.get(t, p, "u_contraction_factor", "fraction", 0.0, _NON_NEGATIVE),
+    )
+
+
+def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None) -> ModelConfig | None:
+    p = "model"
+    t = r.table(data, p, p, _KEYS[p], required=True)
+    diameter = r.get(t, p, "diameter", "length", check=_POSITIVE)
+    span = r.get(t, p, "span", "length", check=_POSITIVE)
+    if None in (diameter, span):
+        return None
+    if tunnel is not None and diameter >= tunnel.height:
+        r.problem(
+            f"{p}.diameter",
+            f"a diameter below the tunnel height ({tunnel.height:g} m)",
+            f"{diameter:g} m",
+            "Check the units of both.",
+            fatal=True,
+        )
+    if tunnel is not None and span > tunnel.width * (1 + 1e-9):
+        r.problem(
+            f"{p}.span",
+            f"a span no wider than the tunnel ({tunnel.width:g} m)",
+            f"{span:g} m",
+            "Check the units of both.",
+            fatal=True,
+        )
+    within = (lambda v: 0 <= v <= diameter / 2, f"a radius from 0 to d/2 = {diameter / 2:g} m")
+    return ModelConfig(
+        diameter=diameter,
+        span=span,
+        u_diameter=r.get(t, p, "u_diameter", "length", 0.0, _NON_NEGATIVE),
+        u_span=r.get(t, p, "u_span", "length", 0.0, _NON_NEGATIVE),
+        spans_section=r.get(t, p, "spans_section", "bool", True),
+        transducer_radius=r.get(t, p, "transducer_radius", "length", 0.0, within),
+    )
+
+
+def _configurations(r: _Reader, data: dict, model) -> dict[str, Configuration]:
+    p = "configurations"
+    tables = data.get(p)
+    if not isinstance(tables, dict) or not tables:
+        r.problem(
+            p,
+            "at least one [configurations.LABEL] table",
+            repr(tables),
+            "Add e.g. [configurations.A].",
+            fatal=True,
+        )
+        return {}
+    out = {}
+    for label, t in tables.items():
+        path = f"{p}.{label}"
+        if not _LABEL.match(label):
+            r.problem(path, "a label of letters, digits, '-' and '_'", repr(label))
+        t = r.table(tables, label, path, _KEYS["configuration"])
+        plate_check = None
+        if model is not None:
+            plate_check = (
+                lambda v: v > model.diameter,
+                f"an end-plate diameter above the model's ({model.diameter:g} m)",
+            )
+        out[label] = Configuration(
+            label=label,
+            description=r.get(t, path, "description", "str", ""),
+            end_plates=r.get(t, path, "end_plates", "bool", False),
+            end_plate_diameter=r.get(t, path, "end_plate_diameter", "length", None, plate_check),
+        )
+    return out
+
+
+def _instruments(r: _Reader, data: dict) -> InstrumentsConfig:
+    p = "instruments"
+    names = (
+        "balance",
+        "scanner",
+        "pitot",
+        "thermometer",
+        "barometer",
+        "hygrometer",
+        "tachometer",
+        "encoder",
+    )
+    t = r.table(data, p, p, names)
+    sub = {n: r.table(t, n, f"{p}.{n}", _KEYS[n]) for n in names}
+
+    def u(name, key, kind, check=_NON_NEGATIVE):
+        return r.get(sub[name], f"{p}.{name}", key, kind, 0.0, check)
+
+    return InstrumentsConfig(
+        balance=_balance(r, t) if "balance" in t and isinstance(t["balance"], dict) else None,
+        scanner_full_scale=r.get(
+            sub["scanner"], f"{p}.scanner", "full_scale", "pressure", None, _POSITIVE
+        ),
+        u_scanner=u("scanner", "u", "pressure"),
+        u_pitot=u("pitot", "u", "pressure"),
+        u_pitot_relative=u("pitot", "u_relative", "fraction"),
+        u_thermometer=u("thermometer", "u", "temperature_difference"),
+        u_barometer=u("barometer", "u", "pressure"),
+        u_hygrometer=u("hygrometer", "u", "fraction", _FRACTION),
+        u_tachometer_relative=u("tachometer", "u_relative", "fraction"),
+        u_encoder=u("encoder", "u", "angle"),
+    )
+
+
+def _balance(r: _Reader, instruments: dict) -> BalanceConfig | None:
+    p = "instruments.balance"
+    t = instruments["balance"]
+    channels = t.get("channels")
+    if "channels" not in t:
+        r.problem(
+            f"{p}.channels",
+            "a list of the balance-log column names",
+            "nothing",
+            'Add channels = ["N1", "N2", …].',
+            fatal=True,
+        )
+        return None
+    if (
+        not isinstance(channels, list)
+        or not channels
+        or not all(isinstance(c, str) and COLUMN_NAME.match(c) for c in channels)
+    ):
+        r.problem(
+            f"{p}.channels",
+            "a non-empty list of column names (letters, digits, _ . -)",
+            repr(channels),
+            fatal=True,
+        )
+        return None
+    if len(set(channels)) != len(channels):
+        r.problem(f"{p}.channels", "each channel once", repr(channels), fatal=True)
+    for c in channels:
+        if c in RESERVED_COLUMNS:
+            r.problem(
+                f"{p}.channels",
+                f"names other than {', '.join(RESERVED_COLUMNS)}",
+                repr(c),
+                "Those columns have a fixed meaning.",
+                fatal=True,
+            )
+    n = len(channels)
+    matrix = _required_array(r, t, p, "matrix", (3, n))
+    second = None
+    if "second_order" in t:
+        second = r.matrix(t["second_order"], f"{p}.second_order", (3, n * (n + 1) // 2), fatal=True)
+    if "full_scale" not in t:
+        r.problem(f"{p}.full_scale", "3 loads: Fx, Fy [force], Mz [torque]", "nothing", fatal=True)
+        full_scale = None
+    else:
+        full_scale = r.numbers(
+            t["full_scale"], f"{p}.full_scale", ("force", "force", "torque"), fatal=True
+        )
+        if full_scale is not None and min(full_scale) <= 0:
+            r.problem(f"{p}.full_scale", "3 positive loads", repr(t["full_scale"]), fatal=True)
+            full_scale = None
+    u_fs = (0.0005, 0.0005, 0.0005)
+    if "u_fraction_of_full_scale" in t:
+        got = r.numbers(
+            t["u_fraction_of_full_scale"],
+            f"{p}.u_fraction_of_full_scale",
+            ("fraction",) * 3,
+            fatal=False,
+        )
+        if got is not None and min(got) < 0:
+            r.problem(f"{p}.u_fraction_of_full_scale", "3 values of zero or more", repr(got))
+        elif got is not None:
+            u_fs = got
+    if None in (matrix, full_scale) or any(not math.isfinite(v) for row in matrix for v in row):
+        return None
+    return BalanceConfig(
+        channels=tuple(channels),
+        matrix=matrix,
+        full_scale=full_scale,
+        second_order=second,
+        u_fraction_of_full_scale=u_fs,
+        u_matrix_relative=r.get(t, p, "u_matrix_relative", "fraction", 0.0, _NON_NEGATIVE),
+        alignment_angle=r.get(t, p, "alignment_angle", "angle", 0.0),
+        u_alignment_angle=r.get(t, p, "u_alignment_angle", "angle", 0.0, _NON_NEGATIVE),
+    )
+
+
+def _required_array(r: _Reader, t: dict, p: str, key: str, shape):
+    if key not in t:
+        r.problem(f"{p}.{key}", f"a {shape[0]} × {shape[1]} array", "nothing", fatal=True)
+        return None
+    return r.matrix(t[key], f"{p}.{key}", shape, fatal=True)
+
+
+def _taps(r: _Reader, data: dict) -> tuple[TapConfig, ...]:
+    raw = data.get("taps", [])
+    if not isinstance(raw, list) or not all(isinstance(t, dict) for t in raw):
+        r.problem("taps", "[[taps]] tables", repr(raw)[:60], fatal=True)
+        return ()
+    taps, seen = [], set()
+    for i, t in enumerate(raw):
+        path = f"taps[{i}]"
+        r.check_keys(t, path, _KEYS["tap"])
+        name = r.get(t, path, "name", "str")
+        if name is None:
+            continue
+        if not COLUMN_NAME.match(name) or name in RESERVED_COLUMNS:
+            r.problem(
+                f"{path}.name",
+                "a column name (letters, digits, _ . -) not reserved",
+                repr(name),
+                fatal=True,
+            )
+        if name in seen:
+            r.problem(f"{path}.name", "each tap name once", repr(name), fatal=True)
+        seen.add(name)
+        taps.append(
+            TapConfig(
+                name=name,
+                azimuth=r.get(t, path, "azimuth", "angle", 0.0),
+                tubing_delay=r.get(t, path, "tubing_delay", "time", 0.0, _NON_NEGATIVE),
+                u_azimuth=r.get(t, path, "u_azimuth", "angle", 0.0, _NON_NEGATIVE),
+                u_tubing_delay=r.get(t, path, "u_tubing_delay", "time", 0.0, _NON_NEGATIVE),
+            )
+        )
+    return tuple(taps)
+
+
+def _reduction(r: _Reader, data: dict, model) -> ReductionConfig:
+    p = "reduction"
+    t = r.table(data, p, p, _KEYS[p])
+    spans = model.spans_section if model is not None else True
+    blockage = r.choice(
+        t, p, "blockage", BLOCKAGE_METHODS, "allen-vincenti" if spans else "maskell-3d"
+    )
+    base_arc = (160.0, 200.0)
+    if "base_arc" in t:
+        got = r.numbers(t["base_arc"], f"{p}.base_arc", ("angle", "angle"), fatal=False)
+        if got is not None and not (0 <= got[0] < got[1] <= 360):
+            r.problem(f"{p}.base_arc", "two angles 0 ≤ start < end ≤ 360", repr(t["base_arc"]))
+        elif got is not None:
+            base_arc = got
+    tp = f"{p}.tolerances"
+    tt = r.table(t, "tolerances", tp, tuple(Tolerances.__dataclass_fields__))
+    defaults = Tolerances()
+    tolerances = Tolerances(
+        **{
+            name: r.get(
+                tt,
+                tp,
+                name,
+                _TOLERANCE_KINDS.get(name, "fraction"),
+                getattr(defaults, name),
+                _POSITIVE,
+            )
+            for name in Tolerances.__dataclass_fields__
+        }
+    )
+    return ReductionConfig(
+        blockage=blockage,
+        maskell_factor=r.get(t, p, "maskell_factor", "fraction", None, _POSITIVE),
+        lift_interference=r.get(t, p, "lift_interference", "bool", False),
+        buoyancy=r.get(t, p, "buoyancy", "bool", True),
+        cp_bins=r.get(
+            t,
+            p,
+            "cp_bins",
+            "int",
+            72,
+            (lambda v: v >= MIN_CP_BINS, f"an integer of {MIN_CP_BINS} or more"),
+        ),
+        base_arc=base_arc,
+        max_tap_gap=r.get(
+            t,
+            p,
+            "max_tap_gap",
+            "angle",
+            30.0,
+            (lambda v: 0 < v <= 360, "an angle above 0 and up to 360"),
+        ),
+        tare_extrapolation=r.choice(t, p, "tare_extrapolation", TARE_EXTRAPOLATION, "flag"),
+        tolerances=tolerances,
+    )

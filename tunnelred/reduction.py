@@ -1,4 +1,18 @@
-"""One run end to end: conditions, balance, pressure, corrections, uncertainty and flags."""
+"""One run end to end: conditions, balance, pressure, corrections, uncertainty and flags.
+
+A data run is reduced in two layers:
+
+1. the *time-series layer* turns each stream's samples into run-level inputs — means with their
+   type-A standard uncertainty from the effective number of independent samples, the zero and tare
+   loads from the runs the data run names, Cp binned in azimuth — plus the steadiness measures the
+   quality flags judge;
+2. the *run-level model* (:func:`_run_model`) maps those inputs, the instruments' type-B terms and
+   the geometry to every reported result. It is vectorised over a leading batch axis, so the same
+   code gives the nominal values, the GUM sensitivities (one batched call) and Monte Carlo draws.
+
+Only the runs a data run names as its zeros and tares are read besides its own logs, which keeps
+runs independent for the parallel engine.
+"""
 
 from __future__ import annotations
 
@@ -7,9 +21,28 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from . import air, balance, conditions, corrections, pressure, quality, theory
+from .errors import InputError, ReductionError
 from .quality import Flag
+from .uncertainty import Input, propagate_linear, propagate_monte_carlo
 
-__all__ = ["RunResult"]
+__all__ = ["RunResult", "reduce_run", "RUN_OUTPUTS"]
+
+#: Scalar outputs of the run-level model, in the order results list them.
+RUN_OUTPUTS = (
+    "T", "p_baro", "RH", "rho", "mu", "q", "U", "Re", "Mach", "omega", "alpha", "Gamma",
+    "CL", "CD", "CM", "C_power", "L_D", "CL_p", "CD_p",
+    "eps_solid", "eps_wake", "delta_CD_buoyancy", "delta_alpha_lift",
+    "q_uncorrected", "U_uncorrected", "Re_uncorrected", "alpha_uncorrected",
+    "CL_uncorrected", "CD_uncorrected", "CM_uncorrected", "C_power_uncorrected",
+    "L_D_uncorrected", "CL_p_uncorrected", "CD_p_uncorrected",
+)  # fmt: skip
+
+#: Headline outputs whose uncertainty budgets are kept.
+BUDGET_OUTPUTS = ("alpha", "CL", "CD", "CM")
+
+#: |alpha| below which a run counts as not spinning for the stagnation-Cp check.
+_NOT_SPINNING_ALPHA = 0.02
 
 
 @dataclass
@@ -17,11 +50,11 @@ class RunResult:
     """Everything reduced from one data run.
 
     ``values`` holds the per-run scalars (and the few strings: ``config``, ``start``,
-    ``dead_taps``) named as in docs/results.md, including ``u_X`` and ``X_uncorrected``.
-    ``profiles`` holds arrays on ``theta`` (``Cp``, ``u_Cp``, ``Cp_uncorrected``, ``Cp_count``,
-    ``Cp_ideal``); both are empty of pressure entries for a run without a pressure log.
-    ``inputs`` maps every file the run used (its own logs and those of its zero and tare runs,
-    relative to the campaign folder) to its SHA-256.
+    ``dead_taps``, ``flags``) named as in docs/results.md, including ``u_X`` and
+    ``X_uncorrected``. ``profiles`` holds arrays on ``theta`` (``Cp``, ``u_Cp``,
+    ``Cp_uncorrected``, ``Cp_count``, ``Cp_ideal``); it is empty for a run without a pressure
+    log. ``inputs`` maps every file the run used (its own logs and those of its zero and tare
+    runs, relative to the campaign folder) to its SHA-256.
     """
 
     run: str
@@ -32,3 +65,540 @@ class RunResult:
     flags: tuple[Flag, ...] = ()
     budgets: pd.DataFrame | None = None
     inputs: dict[str, str] = field(default_factory=dict)
+
+
+# --------------------------------------------------------------------------------------------
+# Zero and tare runs: their means, kept per campaign object so a worker reads each only once.
+
+
+@dataclass(frozen=True)
+class _ZeroState:
+    epoch: float  # mid-time [s since 1970]
+    signals: np.ndarray  # mean channel signals [n]
+    u_signals: np.ndarray  # type-A standard uncertainty of the means [n]
+
+
+@dataclass(frozen=True)
+class _TareState:
+    omega: float  # mean spin rate [rad/s]
+    loads: np.ndarray  # zero-corrected mean loads [3]
+    u_loads: np.ndarray  # type-A standard uncertainty [3]
+
+
+def _memo(campaign) -> dict:
+    memo = campaign.__dict__.get("_reduction_memo")
+    if memo is None:
+        memo = {}
+        campaign.__dict__["_reduction_memo"] = memo
+    return memo
+
+
+def _load(campaign, run_id: str):
+    problems = campaign.run_problems(run_id)
+    if problems:
+        raise InputError(problems)
+    return campaign.load_run(run_id)
+
+
+def _signal_matrix(stream, channels) -> np.ndarray:
+    return np.column_stack([stream[name].to_numpy() for name in channels])
+
+
+def _mid_epoch(spec, stream) -> float:
+    t = stream["time"].to_numpy()
+    return spec.start.timestamp() + 0.5 * (t[0] + t[-1])
+
+
+def _series_means(matrix: np.ndarray, time: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    stats = [conditions.series_statistics(matrix[:, j], time) for j in range(matrix.shape[1])]
+    return np.array([s.mean for s in stats]), np.array([s.u_mean for s in stats])
+
+
+def _zero_state(campaign, run_id: str) -> _ZeroState:
+    memo = _memo(campaign)
+    key = ("zero", run_id)
+    if key not in memo:
+        data = _load(campaign, run_id)
+        stream = data.streams["balance"]
+        channels = campaign.config.instruments.balance.channels
+        means, u = _series_means(_signal_matrix(stream, channels), stream["time"].to_numpy())
+        memo[key] = _ZeroState(_mid_epoch(data.spec, stream), means, u)
+    return memo[key]
+
+
+def _zero_for(campaign, spec, epoch: float):
+    """Interpolated zero signals, the pre/post shift and the zeros' type-A uncertainty."""
+    if not spec.zero:
+        raise ReductionError(spec.run, "names no wind-off zero run", "runs.csv", spec.line)
+    zeros = sorted((_zero_state(campaign, z) for z in spec.zero), key=lambda z: z.epoch)
+    zero, shift, _ = balance.interpolate_zero(
+        epoch, np.array([z.epoch for z in zeros]), np.array([z.signals for z in zeros])
+    )
+    u_zero = np.sqrt(np.mean([z.u_signals**2 for z in zeros], axis=0))
+    return np.asarray(zero), np.asarray(shift), u_zero
+
+
+def _tare_state(campaign, run_id: str) -> _TareState:
+    memo = _memo(campaign)
+    key = ("tare", run_id)
+    if key not in memo:
+        cfg = campaign.config.instruments.balance
+        data = _load(campaign, run_id)
+        stream = data.streams["balance"]
+        t = stream["time"].to_numpy()
+        zero, _, _ = _zero_for(campaign, data.spec, _mid_epoch(data.spec, stream))
+        loads = balance.loads_from_signals(
+            _signal_matrix(stream, cfg.channels) - zero, np.array(cfg.matrix), _second_order(cfg)
+        )
+        means, u = _series_means(loads, t)
+        t_spin, omega, _ = conditions.spin_rate(data.streams)
+        memo[key] = _TareState(float(np.mean(omega)), means, u)
+    return memo[key]
+
+
+def _second_order(cfg):
+    return None if cfg.second_order is None else np.array(cfg.second_order)
+
+
+def _files_used(campaign, spec) -> dict[str, str]:
+    ids = [spec.run, *spec.zero, *spec.tare]
+    for tare_id in spec.tare:
+        if tare_id in campaign.runs:
+            ids += list(campaign.runs[tare_id].zero)
+    files = {}
+    for rid in dict.fromkeys(ids):
+        run = campaign.runs.get(rid)
+        if run is None:
+            continue
+        for path in run.logs.values():
+            files[path] = campaign.file_hashes.get(path, "")
+    return files
+
+
+# --------------------------------------------------------------------------------------------
+# The time-series layer
+
+
+def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> dict:
+    """Run-level balance inputs: net loads (zero removed), their tares, and their u."""
+    cfg = campaign.config.instruments.balance
+    stream = data.streams["balance"]
+    t = stream["time"].to_numpy()
+    matrix, second = np.array(cfg.matrix), _second_order(cfg)
+    zero, shift, u_zero = _zero_for(campaign, spec, _mid_epoch(spec, stream))
+    loads_t = balance.loads_from_signals(_signal_matrix(stream, cfg.channels) - zero, matrix, second)
+    means, u_a = _series_means(loads_t, t)
+    # The zero's own scatter enters through the linearised calibration.
+    u_zero_loads = np.abs(matrix) @ u_zero
+    full_scale = np.array(cfg.full_scale)
+    measures["overload"] = float(np.max(balance.overload_fraction(loads_t, full_scale)))
+    if len(spec.zero) > 1:
+        shift_loads = balance.loads_from_signals(shift, matrix, None)
+        measures["zero_shift"] = float(np.max(np.abs(shift_loads) / full_scale))
+
+    tare = np.zeros(3)
+    u_tare = np.zeros(3)
+    if spec.tare:
+        states = sorted((_tare_state(campaign, r) for r in spec.tare), key=lambda s: s.omega)
+        rates = np.array([s.omega for s in states])
+        try:
+            tare, extrapolated = balance.tare_loads(
+                omega_mean,
+                rates,
+                np.array([s.loads for s in states]),
+                extrapolation=campaign.config.reduction.tare_extrapolation,
+            )
+        except balance.TareRangeError as exc:
+            raise ReductionError(spec.run, str(exc), "runs.csv", spec.line) from exc
+        tare = np.asarray(tare, dtype=float)
+        u_tare = np.sqrt(np.mean([s.u_loads**2 for s in states], axis=0))
+        if extrapolated:
+            measures["tare_extrapolated"] = True
+            measures["tare_range"] = (float(rates.min()), float(rates.max()), omega_mean)
+
+    u_b = np.asarray(cfg.u_fraction_of_full_scale) * full_scale
+    inputs = {}
+    for k, name in enumerate(("Fx", "Fy", "Mz")):
+        inputs[name] = Input(means[k], np.hypot(u_a[k], u_zero_loads[k]), "A", f"balance {name}")
+        inputs[f"{name}_spec"] = Input(0.0, u_b[k], "B", f"balance {name} specification")
+        inputs[f"{name}_tare"] = Input(tare[k], u_tare[k], "A", f"spin tare {name}")
+    inputs["calibration"] = Input(1.0, cfg.u_matrix_relative, "B", "balance calibration factor")
+    align = cfg.alignment_angle
+    inputs["alignment"] = Input(align, cfg.u_alignment_angle, "B", "balance alignment [deg]")
+    return inputs
+
+
+def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures: dict):
+    """Binned tap readings (Pa) on the azimuth grid, dead taps excluded."""
+    cfg = campaign.config
+    stream = data.streams["pressure"]
+    t = stream["time"].to_numpy()
+    if "angle" in stream:
+        angle = stream["angle"].to_numpy()
+    else:
+        angle = np.zeros_like(t)
+    names = [tap.name for tap in cfg.taps]
+    thetas = np.stack(
+        [
+            pressure.tap_azimuth(angle, tap.azimuth, tap.tubing_delay, omega_mean)
+            for tap in cfg.taps
+        ]
+    )
+    readings = np.stack([stream[name].to_numpy() for name in names])
+    bins = cfg.reduction.cp_bins
+    per_tap = [pressure.bin_cp(thetas[i], readings[i] / q_mean, bins=bins) for i in range(len(names))]
+    dead = pressure.find_dead_taps(
+        names, per_tap, tolerance=cfg.reduction.tolerances.dead_tap, raw=readings / q_mean
+    )
+    measures["dead_taps"] = dead
+    keep = [i for i, name in enumerate(names) if name not in dead]
+    if not keep:
+        raise ReductionError(data.spec.run, "every pressure tap is dead or leaking")
+    binned = pressure.bin_cp(thetas[keep].ravel(), readings[keep].ravel(), bins=bins)
+    duration = t[-1] - t[0]
+    measures["revolutions"] = abs(omega_mean) * duration / (2 * np.pi)
+    spinning = abs(omega_mean) * duration / (2 * np.pi) >= 1.0
+    u_offsets = [np.hypot(tap.u_azimuth, np.degrees(omega_mean) * tap.u_tubing_delay) for tap in cfg.taps]
+    u_theta = float(np.hypot(np.sqrt(np.mean(np.square(u_offsets))), cfg.instruments.u_encoder))
+    return binned, u_theta, spinning, sorted(dead)
+
+
+def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
+    t = tunnel["time"].to_numpy()
+    column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
+    stats = {
+        name: conditions.series_statistics(tunnel[name].to_numpy(), t)
+        for name in (column, "T", "p_baro", "RH")
+    }
+    u_speed = conditions.series_statistics(fs["U"].to_numpy(), t)
+    measures["speed_drift"] = abs(u_speed.drift) / u_speed.mean
+    measures["temperature_drift"] = abs(stats["T"].drift)
+    ins = cfg.instruments
+    dp = stats[column]
+    u_dp_b = float(np.hypot(ins.u_pitot, ins.u_pitot_relative * abs(dp.mean)))
+    inputs = {
+        "dp": Input(dp.mean, dp.u_mean, "A", f"{column} (time average)"),
+        "dp_spec": Input(0.0, u_dp_b, "B", f"{column} transducer"),
+        "T": Input(stats["T"].mean, stats["T"].u_mean, "A", "air temperature (time average)"),
+        "T_spec": Input(0.0, ins.u_thermometer, "B", "thermometer"),
+        "p": Input(stats["p_baro"].mean, stats["p_baro"].u_mean, "A", "barometric pressure"),
+        "p_spec": Input(0.0, ins.u_barometer, "B", "barometer"),
+        "RH": Input(stats["RH"].mean, stats["RH"].u_mean, "A", "relative humidity"),
+        "RH_spec": Input(0.0, ins.u_hygrometer, "B", "hygrometer"),
+    }
+    if cfg.tunnel.q_source == "contraction":
+        inputs["k_contraction"] = Input(
+            cfg.tunnel.contraction_factor, cfg.tunnel.u_contraction_factor, "B", "contraction factor"
+        )
+    return inputs
+
+
+def _stream_overlap(streams) -> float:
+    spans = [(s["time"].values[0], s["time"].values[-1]) for s in streams.values()]
+    start = max(a for a, _ in spans)
+    end = min(b for _, b in spans)
+    longest = max(b - a for a, b in spans)
+    return max(0.0, end - start) / longest if longest > 0 else 1.0
+
+
+# --------------------------------------------------------------------------------------------
+# The run-level model
+
+
+def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None):
+    """The vectorised map from run-level inputs to every reported quantity."""
+    tunnel, model_cfg, red = cfg.tunnel, cfg.model, cfg.reduction
+    method = red.blockage
+    if not model_cfg.spans_section and method != "none":
+        method = "maskell-3d"
+
+    def model(x: dict) -> dict:
+        temperature = x["T"] + x["T_spec"]
+        p = x["p"] + x["p_spec"]
+        rh = np.clip(x["RH"] + x["RH_spec"], 0.0, 1.0)
+        qc = x["dp"] + x["dp_spec"]
+        if "k_contraction" in x:
+            qc = qc * x["k_contraction"]
+        rho = air.density(temperature, p, rh)
+        mu = air.viscosity(temperature)
+        q_u = conditions.dynamic_pressure(qc, p)
+        U_u = conditions.velocity(q_u, rho)
+        d, b, h = x["diameter"], x["span"], x["height"]
+        radius = d / 2
+        omega = x["omega"] * (1 + x["omega_spec"])
+        alpha_u = conditions.spin_ratio(omega, radius, U_u)
+        Re_u = conditions.reynolds_number(rho, U_u, d, mu)
+        out = {
+            "T": temperature,
+            "p_baro": p,
+            "RH": rh,
+            "rho": rho,
+            "mu": mu,
+            "Mach": conditions.mach_number(U_u, air.speed_of_sound(temperature)),
+            "omega": omega,
+            "Gamma": conditions.circulation(omega, radius),
+        }
+        nan = np.full_like(q_u, np.nan)
+        if has_balance:
+            loads = [
+                (x[n] + x[f"{n}_spec"]) * x["calibration"] - x[f"{n}_tare"]
+                for n in ("Fx", "Fy", "Mz")
+            ]
+            drag, lift = balance.balance_to_wind(loads[0], loads[1], x["alignment"] - x["flow_angle"])
+            coeffs = balance.force_coefficients(lift, drag, loads[2], q_u, U_u, omega, d, b)
+        else:
+            coeffs = {k: nan for k in ("CL", "CD", "CM", "C_power", "L_D")}
+        cp_u = None
+        CL_p, CD_p = nan, nan
+        if theta_bins is not None:
+            head = pressure.centrifugal_head(rho, omega, radius, model_cfg.transducer_radius)
+            p_tap = x["p_bin"] + x["p_scanner"] + head[..., None]
+            cp_u = p_tap / q_u[..., None]
+            CL_0, CD_0 = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
+            # An azimuth error delta turns the measured Cp(theta) into Cp(theta + delta),
+            # which rotates the integrated force by delta.
+            delta = np.radians(x["theta_offset"])
+            CL_p = CL_0 * np.cos(delta) - CD_0 * np.sin(delta)
+            CD_p = CD_0 * np.cos(delta) + CL_0 * np.sin(delta)
+        cd_for_wake = coeffs["CD"] if has_balance else CD_p
+        cl_for_lift = coeffs["CL"] if has_balance else CL_p
+        wc = corrections.wall_correction(
+            method,
+            diameter=d,
+            height=h,
+            span=b,
+            width=x["width"],
+            drag_coefficient=cd_for_wake,
+            lift_coefficient=cl_for_lift,
+            dynamic_pressure=q_u,
+            static_pressure_gradient=x["dpdx"],
+            blockage_factor=red.maskell_factor,
+            lift_interference=red.lift_interference,
+            buoyancy=red.buoyancy,
+            spans_section=model_cfg.spans_section,
+        )
+        corrected = corrections.apply_wall_correction(
+            wc,
+            U=U_u,
+            q=q_u,
+            alpha=alpha_u,
+            Re=Re_u,
+            CL=coeffs["CL"],
+            CD=coeffs["CD"],
+            CM=coeffs["CM"],
+            C_power=coeffs["C_power"],
+            CL_p=CL_p,
+            CD_p=CD_p,
+            Cp=cp_u,
+        )
+        for name in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
+            out[name] = np.broadcast_to(corrected[name], q_u.shape)
+        out["L_D"] = np.where(out["CD"] != 0, out["CL"] / out["CD"], np.nan)
+        uncorrected = {"q": q_u, "U": U_u, "Re": Re_u, "alpha": alpha_u, "CL_p": CL_p, "CD_p": CD_p}
+        uncorrected.update(coeffs)
+        for name, value in uncorrected.items():
+            out[f"{name}_uncorrected"] = value
+        out["eps_solid"] = np.broadcast_to(wc.eps_solid, q_u.shape)
+        out["eps_wake"] = np.broadcast_to(wc.eps_wake, q_u.shape)
+        out["delta_CD_buoyancy"] = np.broadcast_to(wc.delta_CD_buoyancy, q_u.shape)
+        out["delta_alpha_lift"] = np.broadcast_to(wc.delta_alpha_lift, q_u.shape)
+        if cp_u is not None:
+            out["Cp"] = corrected["Cp"]
+            out["Cp_uncorrected"] = cp_u
+        return out
+
+    model.method = method
+    return model
+
+
+def _geometry_inputs(cfg) -> dict:
+    t, m = cfg.tunnel, cfg.model
+    return {
+        "diameter": Input(m.diameter, m.u_diameter, "B", "model diameter"),
+        "span": Input(m.span, m.u_span, "B", "model span"),
+        "height": Input(t.height, t.u_height, "B", "test-section height"),
+        "width": Input(t.width, t.u_width, "B", "test-section width"),
+        "flow_angle": Input(t.flow_angle, t.u_flow_angle, "B", "flow angularity [deg]"),
+        "dpdx": Input(
+            t.static_pressure_gradient, t.u_static_pressure_gradient, "B", "static-pressure gradient"
+        ),
+    }
+
+
+# --------------------------------------------------------------------------------------------
+# One run
+
+
+def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) -> RunResult:
+    """Reduce one data run of an opened campaign.
+
+    Parameters
+    ----------
+    campaign : tunnelred.readers.Campaign
+        From :func:`tunnelred.open_campaign`.
+    run_id : str
+        A data run's id from runs.csv.
+    monte_carlo : int, optional
+        Number of Monte Carlo draws (JCGM 101:2008) to check the linear propagation; 0 skips it.
+    seed : int, optional
+        Seed of the Monte Carlo draws.
+
+    Returns
+    -------
+    RunResult
+
+    Raises
+    ------
+    InputError
+        The run's inputs (or those of its zero and tare runs) have problems.
+    ReductionError
+        The inputs are valid but the run cannot be reduced as configured.
+    """
+    cfg = campaign.config
+    spec = campaign.runs[run_id]
+    if spec.kind != "data":
+        raise ReductionError(run_id, f"is a {spec.kind} run; only data runs are reduced")
+    data = _load(campaign, run_id)
+    if "tunnel" not in data.streams:
+        raise ReductionError(run_id, "has no tunnel log", "runs.csv", spec.line)
+    measures: dict = {}
+    tunnel = data.streams["tunnel"]
+    fs = conditions.free_stream(tunnel, cfg)
+    inputs = _tunnel_inputs(cfg, tunnel, fs, measures)
+    inputs.update(_geometry_inputs(cfg))
+
+    t_spin, omega_t, spin_source = conditions.spin_rate(data.streams)
+    omega_stats = conditions.series_statistics(omega_t, t_spin)
+    omega_mean = omega_stats.mean
+    if spin_source == "tachometer":
+        u_omega_rel = cfg.instruments.u_tachometer_relative
+    else:
+        duration = t_spin[-1] - t_spin[0]
+        u_omega_rel = np.sqrt(2) * np.radians(cfg.instruments.u_encoder) / duration
+        u_omega_rel = u_omega_rel / abs(omega_mean) if omega_mean else 0.0
+    inputs["omega"] = Input(omega_mean, omega_stats.u_mean, "A", f"spin rate ({spin_source})")
+    inputs["omega_spec"] = Input(0.0, u_omega_rel, "B", f"{spin_source} (relative)")
+    steadiness = conditions.spin_steadiness(
+        t_spin, omega_t, tunnel["time"].to_numpy(), fs["U"].to_numpy(), cfg.model.radius
+    )
+    if abs(steadiness.alpha_mean) >= _NOT_SPINNING_ALPHA:
+        measures["spin_scatter"] = steadiness.scatter
+        measures["spin_drift"] = abs(steadiness.drift)
+    measures["stream_overlap"] = _stream_overlap(data.streams)
+
+    has_balance = "balance" in data.streams
+    if has_balance:
+        inputs.update(_balance_inputs(campaign, spec, data, omega_mean, measures))
+
+    q_mean = float(np.mean(fs["q"].to_numpy()))
+    theta_bins = None
+    binned = None
+    dead_taps: list[str] = []
+    if "pressure" in data.streams and cfg.taps:
+        binned, u_theta, spinning, dead_taps = _pressure_inputs(
+            campaign, data, q_mean, omega_mean, measures
+        )
+        if not spinning:
+            measures.pop("revolutions", None)
+        filled = binned.count > 0
+        theta_bins = binned.theta[filled]
+        n = int(filled.sum())
+        inputs["p_bin"] = Input(binned.mean[filled], binned.u_mean[filled], "A", "tap pressure per bin")
+        inputs["p_scanner"] = Input(
+            np.zeros(n), np.full(n, cfg.instruments.u_scanner), "B", "pressure scanner"
+        )
+        inputs["theta_offset"] = Input(0.0, u_theta, "B", "tap azimuth (offset, delay, encoder)")
+
+    model = _run_model(cfg, has_balance=has_balance, theta_bins=theta_bins)
+    try:
+        linear = propagate_linear(model, inputs)
+    except pressure.CpGapError as exc:
+        raise ReductionError(run_id, f"pressure taps leave a gap: {exc}") from exc
+
+    values: dict[str, float | str] = {
+        "config": spec.config,
+        "start": spec.start.isoformat(),
+        "speed_set": np.nan if spec.speed_set is None else spec.speed_set,
+        "spin_set": np.nan if spec.spin_set is None else spec.spin_set,
+    }
+    for name in RUN_OUTPUTS:
+        values[name] = float(np.asarray(linear.values[name]).reshape(-1)[0])
+        values[f"u_{name}"] = float(np.asarray(linear.u[name]).reshape(-1)[0])
+    values["corr_CL_alpha"] = _safe_correlation(linear, "CL", "alpha")
+
+    alpha = values["alpha"]
+    values["CL_ideal"] = float(theory.lift_coefficient(alpha))
+    values["lift_efficiency"] = values["CL"] / values["CL_ideal"] if alpha else np.nan
+    values["theta_stag_ideal"] = float(theory.stagnation_angles(alpha)[0])
+    for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
+        values[name] = float(measures.get(name, np.nan))
+    values["revolutions"] = float(measures.get("revolutions", np.nan))
+    values["dead_taps"] = ";".join(dead_taps)
+
+    theta = None
+    profiles: dict[str, np.ndarray] = {}
+    if theta_bins is not None:
+        theta = binned.theta
+        filled = binned.count > 0
+
+        def on_grid(v):
+            full = np.full(theta.shape, np.nan)
+            full[filled] = np.asarray(v).reshape(-1)
+            return full
+
+        profiles = {
+            "Cp": on_grid(linear.values["Cp"]),
+            "u_Cp": on_grid(linear.u["Cp"]),
+            "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
+            "Cp_count": binned.count.astype(float),
+            "Cp_ideal": theory.cp_surface(theta, alpha),
+        }
+        features = theory.surface_features(
+            theta_bins, np.asarray(linear.values["Cp"]).reshape(-1), base_arc=cfg.reduction.base_arc
+        )
+        values.update({k: float(v) for k, v in features.items()})
+        measures["Cp_max"] = values["Cp_max"]
+
+    if has_balance and theta_bins is not None:
+        measures.update(
+            CL=values["CL"],
+            u_CL=values["u_CL"],
+            CL_p=values["CL_p"],
+            u_CL_p=values["u_CL_p"],
+            corr_CL_CL_p=_safe_correlation(linear, "CL", "CL_p"),
+        )
+    measures["alpha"] = alpha
+
+    if monte_carlo:
+        mc = propagate_monte_carlo(model, inputs, draws=monte_carlo, seed=seed)
+        for name in RUN_OUTPUTS:
+            values[f"u_{name}_mc"] = float(np.asarray(mc.u[name]).reshape(-1)[0])
+
+    flags = tuple(quality.check_run(measures, cfg.reduction.tolerances))
+    values.update(quality.flag_columns(flags))
+
+    budgets = []
+    for name in BUDGET_OUTPUTS:
+        if np.isfinite(values[name]):
+            table = linear.budget(name)
+            table.insert(0, "output", name)
+            table.insert(0, "run", run_id)
+            budgets.append(table)
+    return RunResult(
+        run=run_id,
+        config=spec.config,
+        values=values,
+        theta=theta,
+        profiles=profiles,
+        flags=flags,
+        budgets=pd.concat(budgets, ignore_index=True) if budgets else None,
+        inputs=_files_used(campaign, spec),
+    )
+
+
+def _safe_correlation(linear, a: str, b: str) -> float:
+    try:
+        value = linear.correlation(a, b)
+    except (KeyError, ValueError, ZeroDivisionError):
+        return float("nan")
+    return float(value) if np.isfinite(value) else float("nan")
