@@ -95,7 +95,6 @@ def arraylike(func: Callable) -> Callable:
 
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
-        names = list(kwargs)
         numeric = [a for a in (*args, *kwargs.values()) if _is_numeric(a)]
         arrays = [a for a in numeric if isinstance(a, xr.DataArray)]
         if len(arrays) > 1:
@@ -107,7 +106,7 @@ def arraylike(func: Callable) -> Callable:
             numeric = [swap.get(id(a), a) for a in numeric]
         template = _template(numeric)
         plain_args = [as_array(a) if _is_numeric(a) else a for a in args]
-        plain_kwargs = {k: as_array(kwargs[k]) if _is_numeric(kwargs[k]) else kwargs[k] for k in names}
+        plain_kwargs = {k: as_array(v) if _is_numeric(v) else v for k, v in kwargs.items()}
         result = func(*plain_args, **plain_kwargs)
         if isinstance(result, tuple):
             return tuple(like(template, r) for r in result)

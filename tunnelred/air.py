@@ -28,7 +28,9 @@ R_DRY_AIR = 287.05287
 _R_MOLAR = 8.314472  # molar gas constant [J/(mol K)] (CODATA 2006, as adopted by CIPM-2007)
 _M_WATER = 18.01528e-3  # molar mass of water [kg/mol]
 _M_DRY_AT_400PPM = 28.96546e-3  # molar mass of dry air with x_CO2 = 0.0004 [kg/mol]
-_M_CO2_MINUS_O2 = 12.011e-3  # CO2 replaces O2: the molar-mass change per unit mole fraction [kg/mol]
+_M_CO2_MINUS_O2 = (
+    12.011e-3  # CO2 replaces O2: the molar-mass change per unit mole fraction [kg/mol]
+)
 _PSV = (1.2378847e-5, -1.9121316e-2, 33.93711047, -6.3431645e3)  # A [K^-2], B [K^-1], C, D [K]
 _ENHANCEMENT = (1.00062, 3.14e-8, 5.6e-7)  # alpha, beta [Pa^-1], gamma [K^-2]
 _Z = {
