@@ -7,7 +7,9 @@ import doctest
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
+import xarray as xr
 
 from tunnelred import balance
 from tunnelred.balance import (
@@ -288,6 +290,19 @@ def test_small_misalignment_leaks_drag_into_lift():
     assert lift == pytest.approx(0.87265355, rel=1e-8)
     # cos φ = 1 − φ²/2 + φ⁴/24 = 0.99996192 (by hand) → D = 99.996192 N.
     assert drag == pytest.approx(99.996192, rel=1e-8)
+
+
+@pytest.mark.parametrize(
+    "kind",
+    [np.asarray, pd.Series, lambda v: xr.DataArray(v, dims="time")],
+    ids=["ndarray", "Series", "DataArray"],
+)
+def test_axes_accept_the_array_kinds(kind):
+    # Same 90° geometry as above, over a time series: Fx is lift, Fy is minus drag (by hand).
+    drag, lift = balance_to_wind(kind([5.0, 1.0]), kind([2.0, -3.0]), 90.0)
+    assert type(drag) is type(kind([0.0]))
+    np.testing.assert_allclose(np.asarray(drag), [-2.0, 3.0], atol=1e-15)
+    np.testing.assert_allclose(np.asarray(lift), [5.0, 1.0], atol=1e-15)
 
 
 def test_flow_angle_enters_with_the_opposite_sign():

@@ -19,6 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._arraylike import arraylike
+
 __all__ = [
     "TareRangeError",
     "loads_from_signals",
@@ -230,13 +232,14 @@ def interpolate_zero(time, zero_times, zero_signals):
 
     .. math:: s_0(t) = s_0(t_0) + \\frac{t - t_0}{t_1 - t_0}\\,[s_0(t_1) - s_0(t_0)]
 
-    i.e. the balance drift is taken as linear in time between two zeros [1]_; outside the zeros'
-    span the nearest zero is used unchanged rather than extrapolating a drift.
+    i.e. the balance drift is taken as linear in time between two zeros (common practice; wind-off
+    zeros in general: [1]_); outside the zeros' span the nearest zero is used unchanged rather
+    than extrapolating a drift.
 
     References
     ----------
     .. [1] J. B. Barlow, W. H. Rae and A. Pope, *Low-Speed Wind Tunnel Testing*, 3rd ed., Wiley,
-       1999, ch. 6 (balance zeros and drift).
+       1999 (wind-off zeros and balance measurements; chapter not cited, from memory).
 
     Examples
     --------
@@ -305,7 +308,8 @@ def tare_loads(spin_rate, tare_spin_rates, tare_loads, *, extrapolation="flag"):
 
     A spin tare (wind off, model spinning) removes what spinning does to the balance without
     wind: bearing and seal friction torque, and mean loads from rotor imbalance and from the
-    wind-off aerodynamics of the spinning model and its drive (pumping, windage) [1]_. It does
+    wind-off aerodynamics of the spinning model and its drive (pumping, windage); it is the
+    rotating-model case of the wind-off tares of [1]_. It does
     **not** remove the interaction of spin with the wind-on flow — the aerodynamic torque and the
     Magnus forces, which are the measurement — and it cannot follow tare changes with temperature
     or bearing preload between the tare runs and the data run.
@@ -313,7 +317,7 @@ def tare_loads(spin_rate, tare_spin_rates, tare_loads, *, extrapolation="flag"):
     References
     ----------
     .. [1] J. B. Barlow, W. H. Rae and A. Pope, *Low-Speed Wind Tunnel Testing*, 3rd ed., Wiley,
-       1999, ch. 9 (tares and interference).
+       1999 (tares; chapter not cited, from memory).
 
     Examples
     --------
@@ -356,6 +360,7 @@ def tare_loads(spin_rate, tare_spin_rates, tare_loads, *, extrapolation="flag"):
     return tare, extrapolated
 
 
+@arraylike
 def balance_to_wind(fx, fy, angle):
     """Drag and lift from balance-axis forces.
 
@@ -368,8 +373,9 @@ def balance_to_wind(fx, fy, angle):
 
     Returns
     -------
-    drag, lift : numpy.ndarray
-        Force along the free stream, and across it toward +y. [N]
+    drag, lift : float, numpy.ndarray, pandas.Series or xarray.DataArray
+        Force along the free stream, and across it toward +y, in the kind of the richest input.
+        [N]
 
     Notes
     -----
@@ -387,17 +393,15 @@ def balance_to_wind(fx, fy, angle):
     References
     ----------
     .. [1] J. B. Barlow, W. H. Rae and A. Pope, *Low-Speed Wind Tunnel Testing*, 3rd ed., Wiley,
-       1999, ch. 6 (balance and wind axes).
+       1999 (balance and wind axes; chapter not cited, from memory).
 
     Examples
     --------
     >>> drag, lift = balance_to_wind(1.0, 0.0, 90.0)
-    >>> round(float(drag), 12), round(float(lift), 12)
+    >>> round(drag, 12), round(lift, 12)
     (0.0, 1.0)
     """
-    phi = np.deg2rad(np.asarray(angle, dtype=float))
-    fx = np.asarray(fx, dtype=float)
-    fy = np.asarray(fy, dtype=float)
+    phi = np.deg2rad(angle)
     cos, sin = np.cos(phi), np.sin(phi)
     return fx * cos - fy * sin, fx * sin + fy * cos
 
