@@ -1,0 +1,583 @@
+"""Surface pressure: rotating-tap azimuth, centrifugal head, phase binning, ∮Cp, dead taps.
+
+A tap on a spinning model sweeps the whole circle once a revolution, so every tap sees the same
+Cp(θ); binning its record by azimuth gives Cp(θ) with as many samples per bin as revolutions
+allow. A stationary model is covered by taps at fixed azimuths, and by several runs at different
+index angles merged with :func:`merge_indexed`. Angles are in degrees (θ from the windward point,
+positive with positive spin, DESIGN.md §4), pressures in Pa.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.interpolate import CubicSpline
+
+from tunnelred._arraylike import arraylike
+
+__all__ = [
+    "CpGapError",
+    "BinnedCp",
+    "tap_azimuth",
+    "centrifugal_head",
+    "pressure_coefficient",
+    "bin_cp",
+    "integrate_cp",
+    "find_dead_taps",
+    "merge_indexed",
+]
+
+# Gauss-Legendre nodes per spline interval: the integrand (cubic times sine) is then integrated to
+# rounding error, since the rule is exact for polynomials of degree 15.
+_GAUSS_NODES, _GAUSS_WEIGHTS = np.polynomial.legendre.leggauss(8)
+
+# Azimuths closer than this are one tap position (e.g. 0 and 360, or -180 and 180) [deg].
+_SAME_AZIMUTH = 1e-9
+
+
+class CpGapError(ValueError):
+    """The taps leave too wide a stretch of the circumference without data to integrate Cp.
+
+    ``start`` and ``end`` [deg] bound the widest gap (``end`` may be below ``start`` when the gap
+    wraps through 0/360); ``gap`` is its width [deg]. All three are NaN when there are simply too
+    few taps.
+    """
+
+    def __init__(self, message: str, start: float = np.nan, end: float = np.nan):
+        self.start = start
+        self.end = end
+        self.gap = float(np.mod(end - start, 360.0)) if np.isfinite(start) else np.nan
+        super().__init__(message)
+
+
+@dataclass(frozen=True)
+class BinnedCp:
+    """Cp(θ) binned by azimuth (see :func:`bin_cp`).
+
+    Attributes
+    ----------
+    theta : ndarray, shape (bins,)
+        Bin centres, (i + 0.5)·360/bins. [deg]
+    mean : ndarray
+        Mean Cp of the samples in each bin; NaN where the bin is empty. [-]
+    std : ndarray
+        Standard deviation of those samples (ddof = 1); NaN below two samples. [-]
+    count : ndarray of int
+        Samples in each bin. [-]
+    u_mean : ndarray
+        Type-A standard uncertainty of each bin mean, from the scatter between revolutions; NaN
+        where fewer than two passes (revolutions × series) contribute. [-]
+    thin : ndarray of bool
+        Bins with fewer than ``min_count`` samples; their mean is kept but should not be trusted.
+    """
+
+    theta: np.ndarray
+    mean: np.ndarray
+    std: np.ndarray
+    count: np.ndarray
+    u_mean: np.ndarray
+    thin: np.ndarray
+
+
+@arraylike
+def tap_azimuth(encoder_angle, tap_azimuth, tubing_delay, omega):
+    """Azimuth θ of a tap at each sample, corrected for the delay of its tubing.
+
+    Parameters
+    ----------
+    encoder_angle : float or array_like
+        The model's encoder angle at the sample time, wrapped or cumulative; 0 for a stationary
+        model without an encoder (or its constant index angle). [deg]
+    tap_azimuth : float or array_like
+        The tap's azimuth from the windward point when the encoder reads zero. [deg]
+    tubing_delay : float or array_like
+        Pneumatic delay τ between the tap and the transducer. [s]
+    omega : float or array_like
+        Spin rate, signed (positive counter-clockwise seen from +z); 0 for a stationary model.
+        [rad/s]
+
+    Returns
+    -------
+    float or array_like
+        θ = encoder_angle + tap_azimuth − degrees(ω τ), wrapped to [0, 360). [deg]
+
+    Notes
+    -----
+    The reading at time t is the pressure the tap saw at t − τ, when it stood ω τ behind its
+    present azimuth. Modelling the tubing as a pure delay holds well below the first acoustic
+    resonance of the line, where its phase lag grows linearly with frequency [1]_; τ is then the
+    slope of that phase, measured or computed for the tubing. With ω = 0 the result is the tap's
+    fixed azimuth.
+
+    References
+    ----------
+    .. [1] H. Bergh and H. Tijdeman, "Theoretical and experimental results for the dynamic
+       response of pressure measuring systems", NLR-TR F.238, National Aero- and Astronautical
+       Research Institute, Amsterdam, 1965.
+
+    Examples
+    --------
+    >>> tap_azimuth(350.0, 20.0, 0.0, 100.0)
+    10.0
+    >>> round(tap_azimuth(0.0, 90.0, 0.001, 2 * np.pi * 25), 6)
+    81.0
+    """
+    return np.mod(encoder_angle + tap_azimuth - np.degrees(omega * tubing_delay), 360.0)
+
+
+@arraylike
+def centrifugal_head(density, omega, radius, transducer_radius=0.0):
+    """Pressure rise along the spinning tubing from the transducer out to the tap.
+
+    Parameters
+    ----------
+    density : float or array_like
+        Density of the air in the tubing (the test-section air). [kg/m^3]
+    omega : float or array_like
+        Spin rate (its sign does not matter). [rad/s]
+    radius : float or array_like
+        Model radius R, where the tap is. [m]
+    transducer_radius : float or array_like, optional
+        Radius r_t of the transducer on the spinning model; 0 on the axis. [m]
+
+    Returns
+    -------
+    float or array_like
+        head = ρ ω² (R² − r_t²) / 2. [Pa]
+
+    Notes
+    -----
+    The air column in a tube fixed to the model turns with it as a rigid body, so its pressure
+    rises outward as dp/dr = ρ ω² r; the transducer reads p_tap − head, and
+    p_tap − p∞ = reading + head. Valid for incompressible air in the tube (head ≪ p, true below
+    some 10 kPa of head) and a reference side at p∞ at the transducer: if the reference line also
+    runs from the axis to r_t on the model, its own head ρ ω² r_t²/2 must be added, giving
+    ρ ω² R²/2 whatever r_t is.
+
+    References
+    ----------
+    .. [1] F. M. White, *Fluid Mechanics*, 7th ed., McGraw-Hill, 2011, §2.9 (pressure in rigid-body
+       rotation) (section number from memory).
+
+    Examples
+    --------
+    >>> round(centrifugal_head(1.2, 100.0, 0.05), 6)
+    15.0
+    """
+    return 0.5 * density * omega**2 * (radius**2 - transducer_radius**2)
+
+
+@arraylike
+def pressure_coefficient(reading, q, *, head=0.0):
+    """Pressure coefficient of a tap from the transducer reading.
+
+    Parameters
+    ----------
+    reading : float or array_like
+        Scanner reading p_transducer − p∞. [Pa]
+    q : float or array_like
+        Free-stream dynamic pressure. [Pa]
+    head : float or array_like, optional
+        Centrifugal head of the tubing (:func:`centrifugal_head`); 0 for a stationary model. [Pa]
+
+    Returns
+    -------
+    float or array_like
+        Cp = (reading + head) / q. [-]
+
+    Notes
+    -----
+    Cp = (p_tap − p∞)/q with p_tap − p∞ = reading + head. Wall corrections to q are applied later,
+    to the binned Cp.
+
+    References
+    ----------
+    .. [1] J. D. Anderson, *Fundamentals of Aerodynamics*, 6th ed., McGraw-Hill, 2017, §1.5 (the
+       pressure coefficient).
+
+    Examples
+    --------
+    >>> pressure_coefficient(-85.0, 100.0, head=15.0)
+    -0.7
+    """
+    return (reading + head) / q
+
+
+def _revolution_index(theta: np.ndarray) -> np.ndarray:
+    """Revolution count of each sample of time-ordered azimuths (last axis is time)."""
+    return np.floor(np.unwrap(theta, period=360.0, axis=-1) / 360.0).astype(np.int64)
+
+
+def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
+    """Bin a rotating tap's Cp record by azimuth.
+
+    Parameters
+    ----------
+    theta : array_like, shape (..., n)
+        Tap azimuth of each sample (:func:`tap_azimuth`), in time order along the last axis. [deg]
+    cp : array_like, shape (..., n)
+        Pressure coefficient of each sample; broadcast against ``theta``. Leading axes are
+        separate series (for example several taps) pooled into the same bins. NaN samples are
+        dropped. [-]
+    bins : int, optional
+        Number of bins, uniform over [0, 360). [-]
+    min_count : int, optional
+        Bins with fewer samples are marked ``thin``. [-]
+    revolution : array_like of int, optional
+        Revolution number of each sample; by default it is counted from ``theta`` (the number of
+        whole turns of the unwrapped azimuth), which needs less than half a turn between
+        successive samples. [-]
+
+    Returns
+    -------
+    BinnedCp
+
+    Notes
+    -----
+    Sample i falls in bin floor(θ_i mod 360 / (360/bins)). ``mean`` and ``std`` are the plain
+    statistics of the samples in the bin.
+
+    ``u_mean`` treats the passes, not the samples, as the independent observations: the samples
+    one pass of a tap leaves in a bin are a few milliseconds apart and see the same flow event, so
+    they are strongly correlated, while passes are a revolution apart. Each pass (one revolution of
+    one series) is reduced to its mean, and u_mean = s(pass means)/√(number of passes), the type-A
+    evaluation of GUM §4.2.3 applied to the pass means (the method of batch means [2]_ with the
+    revolution as the batch). Using std/√count instead would understate the uncertainty by the
+    square root of the samples per pass. The choice assumes the pressure fluctuations forget
+    themselves within a revolution; a fluctuation locked to the spin (shedding at a multiple of
+    the spin rate) would break it. A bin seen on a single pass (a stationary model) has no
+    between-revolution scatter and gets NaN: use the time-series statistics of the tap's record
+    there instead.
+
+    References
+    ----------
+    .. [1] JCGM 100:2008, *Evaluation of measurement data — Guide to the expression of uncertainty
+       in measurement*, §4.2.
+    .. [2] A. M. Law, *Simulation Modeling and Analysis*, 5th ed., McGraw-Hill, 2015 (the method of
+       batch means) (from memory).
+
+    Examples
+    --------
+    >>> theta = np.linspace(0.0, 3600.0, 7200, endpoint=False)  # ten revolutions
+    >>> b = bin_cp(theta, np.cos(np.radians(theta)), bins=4)
+    >>> b.theta.tolist(), b.count.tolist()
+    ([45.0, 135.0, 225.0, 315.0], [1800, 1800, 1800, 1800])
+    """
+    theta, cp = np.broadcast_arrays(np.asarray(theta, dtype=float), np.asarray(cp, dtype=float))
+    if revolution is None:
+        revolution = _revolution_index(theta)
+    revolution = np.broadcast_to(np.asarray(revolution, dtype=np.int64), theta.shape)
+    n = theta.shape[-1] if theta.ndim else 1
+    series = np.broadcast_to(
+        np.arange(theta.size // n).reshape(theta.shape[:-1] + (1,)), theta.shape
+    )
+    keep = np.isfinite(theta) & np.isfinite(cp)
+    theta, cp, revolution, series = theta[keep], cp[keep], revolution[keep], series[keep]
+
+    width = 360.0 / bins
+    b = np.minimum((np.mod(theta, 360.0) / width).astype(np.int64), bins - 1)
+    count = np.bincount(b, minlength=bins)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.bincount(b, weights=cp, minlength=bins) / count
+        # Two passes (mean first, then squared departures) to keep the variance accurate when the
+        # mean is large against the scatter.
+        squares = np.bincount(b, weights=(cp - mean[b]) ** 2, minlength=bins)
+        std = np.sqrt(squares / (count - 1))
+    std[count < 2] = np.nan
+
+    revolution = revolution - (revolution.min() if revolution.size else 0)
+    turns = int(revolution.max()) + 1 if revolution.size else 1
+    pass_key = (series * turns + revolution) * bins + b
+    passes, which = np.unique(pass_key, return_inverse=True)
+    pass_mean = np.bincount(which, weights=cp) / np.bincount(which)
+    pass_bin = passes % bins
+    n_pass = np.bincount(pass_bin, minlength=bins)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        centre = np.bincount(pass_bin, weights=pass_mean, minlength=bins) / n_pass
+        spread = np.bincount(pass_bin, weights=(pass_mean - centre[pass_bin]) ** 2, minlength=bins)
+        u_mean = np.sqrt(spread / (n_pass - 1) / n_pass)
+    u_mean[n_pass < 2] = np.nan
+
+    return BinnedCp(
+        theta=(np.arange(bins) + 0.5) * width,
+        mean=mean,
+        std=std,
+        count=count,
+        u_mean=u_mean,
+        thin=count < min_count,
+    )
+
+
+def _distinct_azimuths(theta: np.ndarray, cp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Azimuths wrapped to [0, 360), sorted, duplicates merged by averaging their Cp (..., m)."""
+    wrapped = np.mod(theta, 360.0)
+    wrapped[wrapped > 360.0 - _SAME_AZIMUTH] = 0.0
+    order = np.argsort(wrapped, kind="stable")
+    wrapped, cp = wrapped[order], cp[..., order]
+    new = np.concatenate(([True], np.diff(wrapped) > _SAME_AZIMUTH))
+    group = np.cumsum(new) - 1
+    members = np.zeros((wrapped.size, group[-1] + 1 if group.size else 0))
+    members[np.arange(wrapped.size), group] = 1.0
+    averaged = (cp @ members) / members.sum(axis=0)
+    return wrapped[new], averaged
+
+
+def _integrate_distinct(theta: np.ndarray, cp: np.ndarray, max_gap: float):
+    """(CL, CD) of Cp (B, m) at sorted distinct azimuths theta (m,) in [0, 360)."""
+    if theta.size < 4:
+        raise CpGapError(f"need Cp at 4 or more distinct azimuths to integrate, found {theta.size}")
+    ends = np.append(theta[1:], theta[0] + 360.0)
+    gaps = ends - theta
+    widest = int(np.argmax(gaps))
+    if gaps[widest] > max_gap + _SAME_AZIMUTH:
+        start, end = theta[widest], np.mod(ends[widest], 360.0)
+        raise CpGapError(
+            f"no pressure data from {start:.1f} to {end:.1f} deg, a gap of {gaps[widest]:.1f} deg "
+            f"(max_gap {max_gap:g} deg); add taps or index angles there, or raise max_tap_gap",
+            float(start),
+            float(end),
+        )
+    x = np.radians(theta)
+    if np.allclose(gaps, 360.0 / theta.size, rtol=0.0, atol=1e3 * _SAME_AZIMUTH):
+        # Periodic trapezoid rule: spectrally accurate for smooth periodic integrands.
+        h = 2.0 * np.pi / theta.size
+        return 0.5 * h * cp @ np.sin(x), 0.5 * h * cp @ np.cos(x)
+    knots = np.append(x, x[0] + 2.0 * np.pi)
+    spline = CubicSpline(
+        knots, np.concatenate([cp, cp[:, :1]], axis=-1), axis=-1, bc_type="periodic"
+    )
+    half = 0.5 * np.diff(knots)
+    nodes = (0.5 * (knots[:-1] + knots[1:]))[:, None] + half[:, None] * _GAUSS_NODES
+    weights = (half[:, None] * _GAUSS_WEIGHTS).ravel()
+    nodes = nodes.ravel()
+    values = spline(nodes) * weights
+    return 0.5 * values @ np.sin(nodes), 0.5 * values @ np.cos(nodes)
+
+
+def integrate_cp(theta, cp, *, max_gap=30.0) -> tuple[float, float]:
+    """Lift and drag coefficients from the surface pressure, CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ.
+
+    Parameters
+    ----------
+    theta : array_like, shape (n,)
+        Tap or bin azimuths, in any order and range (0..360, −180..180); repeated azimuths have
+        their Cp averaged. [deg]
+    cp : array_like, shape (..., n)
+        Pressure coefficient at ``theta``; leading axes are a batch (Monte Carlo draws, runs)
+        integrated in one call. NaN points are dropped first (row by row). [-]
+    max_gap : float, optional
+        Widest azimuth gap without data accepted, the wrap through 0/360 included. [deg]
+
+    Returns
+    -------
+    CL, CD : float or ndarray of the batch shape
+        Pressure lift (along +y) and drag (along +x) coefficients on the diameter. [-]
+
+    Raises
+    ------
+    CpGapError
+        A gap wider than ``max_gap`` (the message names its start and end angles), or fewer than
+        four distinct azimuths.
+
+    Notes
+    -----
+    On a uniform grid the periodic trapezoid rule is used: for a smooth periodic Cp it converges
+    geometrically with the number of points [1]_. Otherwise Cp is interpolated by a periodic cubic
+    spline [2]_ and the spline times sin θ (cos θ) is integrated to rounding error by 8-point
+    Gauss–Legendre quadrature on each interval; the spline's own error is O(h⁴) in the largest
+    spacing h. Bin means are averages over their bin: that attenuates the first harmonic, which
+    alone carries CL and CD, by sin(h/2)/(h/2) (0.03 % for 72 bins), left uncorrected.
+
+    References
+    ----------
+    .. [1] L. N. Trefethen and J. A. C. Weideman, "The exponentially convergent trapezoidal rule",
+       SIAM Review 56 (2014) 385–458.
+    .. [2] C. de Boor, *A Practical Guide to Splines*, revised ed., Springer, 2001, ch. IV
+       (periodic cubic spline interpolation), as implemented by scipy.interpolate.CubicSpline.
+
+    Examples
+    --------
+    >>> theta = np.arange(36) * 10.0
+    >>> CL, CD = integrate_cp(theta, 1 - (0.5 + 2 * np.sin(np.radians(theta))) ** 2)
+    >>> round(CL / np.pi, 12), abs(round(CD, 12))
+    (-1.0, 0.0)
+    """
+    theta = np.asarray(theta, dtype=float)
+    cp = np.asarray(cp, dtype=float)
+    if theta.ndim != 1 or cp.shape[-1:] != theta.shape:
+        raise ValueError(
+            f"integrate_cp: theta must be 1-D and match cp's last axis; "
+            f"found theta {theta.shape}, cp {cp.shape}"
+        )
+    batch = cp.shape[:-1]
+    rows = cp.reshape(-1, theta.size)
+    missing = ~np.isfinite(rows) | ~np.isfinite(theta)
+    CL = np.empty(rows.shape[0])
+    CD = np.empty(rows.shape[0])
+    # Rows sharing one pattern of missing points share the grid: integrate each pattern once.
+    patterns, which = np.unique(missing, axis=0, return_inverse=True)
+    for k, pattern in enumerate(patterns):
+        here = which.ravel() == k
+        grid, values = _distinct_azimuths(theta[~pattern], rows[here][:, ~pattern])
+        CL[here], CD[here] = _integrate_distinct(grid, values, max_gap)
+    if not batch:
+        return float(CL[0]), float(CD[0])
+    return CL.reshape(batch), CD.reshape(batch)
+
+
+def _flat_std(b) -> float:
+    """Standard deviation of a tap's whole Cp record, rebuilt from its bins."""
+    if isinstance(b, BinnedCp):
+        count = np.asarray(b.count, dtype=float)
+        full = count > 0
+        total = count[full].sum()
+        if total < 2:
+            return np.nan
+        mean = b.mean[full]
+        grand = (count[full] * mean).sum() / total
+        within = np.nansum((count[full] - 1) * np.where(count[full] > 1, b.std[full], 0.0) ** 2)
+        between = (count[full] * (mean - grand) ** 2).sum()
+        return float(np.sqrt((within + between) / (total - 1)))
+    values = np.asarray(b, dtype=float)
+    finite = values[np.isfinite(values)]
+    return float(np.std(finite)) if finite.size > 1 else np.nan
+
+
+def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> dict[str, str]:
+    """Taps to leave out of Cp(θ): flat-lined ones, and ones whose Cp departs from the others'.
+
+    Parameters
+    ----------
+    tap_names : sequence of str
+        The taps, in the order of ``tap_binned``.
+    tap_binned : list of BinnedCp, or array_like of shape (n_taps, n_bins)
+        Each tap's binned Cp on one common bin grid (or the bin means only). [-]
+    tolerance : float, optional
+        Largest accepted median absolute departure from the other taps' median Cp. [-]
+    flat_std : float, optional
+        A record whose Cp standard deviation is below this (a fraction of q) is flat-lined. [-]
+
+    Returns
+    -------
+    dict
+        {tap name: reason}, the reason quoting the measured value and the tolerance; empty when
+        every tap is good.
+
+    Notes
+    -----
+    Flat line: the standard deviation of the whole record (rebuilt from the bins' counts, means
+    and standard deviations; from the bin means alone for an array) below ``flat_std``, or zero. A
+    rotating tap sweeps the full range of Cp every revolution and a stationary one still sees the
+    turbulence, so a live tap is never that steady; a blocked or disconnected one is.
+
+    Departure: a rotating tap sweeps the same circle as every other, so all see one Cp(θ). For
+    each tap, d = median over the shared bins of abs(Cp_tap − median of the other taps' Cp). The
+    worst tap with d > ``tolerance`` is flagged and dropped from the reference, and the test is
+    repeated, so that one leaking tap cannot drag the reference of the good ones. The median makes
+    both steps robust to a minority of bad taps [1]_. At least three taps must remain (with two,
+    there is no telling which one is wrong); taps that share no bins (a stationary model) are not
+    compared.
+
+    References
+    ----------
+    .. [1] P. J. Huber and E. M. Ronchetti, *Robust Statistics*, 2nd ed., Wiley, 2009, ch. 1 (the
+       median as a robust estimate of location).
+
+    Examples
+    --------
+    >>> cp = np.tile(np.cos(np.radians(np.arange(36) * 10.0)), (4, 1))
+    >>> cp[2] += 0.4
+    >>> print(find_dead_taps(["t1", "t2", "t3", "t4"], cp)["t3"])
+    binned Cp departs from the other taps by 0.400 (median over 36 shared bins; tolerance 0.15)
+    """
+    names = list(tap_names)
+    if len(names) != len(tap_binned):
+        raise ValueError(
+            f"find_dead_taps: {len(names)} tap names for {len(tap_binned)} binned records"
+        )
+    if names and isinstance(tap_binned[0], BinnedCp):
+        means = np.array([b.mean for b in tap_binned], dtype=float)
+    else:
+        means = np.array(tap_binned, dtype=float)
+    if means.ndim != 2:
+        raise ValueError(
+            f"find_dead_taps: expected (n_taps, n_bins) binned Cp, found {means.shape}"
+        )
+
+    dead: dict[str, str] = {}
+    for name, record in zip(names, tap_binned, strict=True):
+        std = _flat_std(record)
+        if np.isfinite(std) and (std < flat_std or std == 0.0):
+            dead[name] = f"flat-lined: Cp standard deviation {std:.2g} (below {flat_std:g})"
+
+    reference = np.array([name not in dead for name in names])
+    while reference.sum() >= 3:
+        departure = np.full(len(names), np.nan)
+        shared = np.zeros(len(names), dtype=int)
+        for i in np.flatnonzero(reference):
+            others = reference.copy()
+            others[i] = False
+            with warnings.catch_warnings():
+                # An all-NaN bin (no other tap there) is expected and simply not compared.
+                warnings.simplefilter("ignore", RuntimeWarning)
+                median = np.nanmedian(means[others], axis=0)
+            gap = np.abs(means[i] - median)
+            gap = gap[np.isfinite(gap)]
+            shared[i] = gap.size
+            if gap.size:
+                departure[i] = np.median(gap)
+        if not np.any(departure > tolerance):
+            break
+        worst = int(np.nanargmax(departure))
+        dead[names[worst]] = (
+            f"binned Cp departs from the other taps by {departure[worst]:.3f} "
+            f"(median over {shared[worst]} shared bins; tolerance {tolerance:g})"
+        )
+        reference[worst] = False
+    return {name: dead[name] for name in names if name in dead}
+
+
+def merge_indexed(thetas, cps) -> tuple[np.ndarray, np.ndarray]:
+    """Merge the taps of several runs at different index angles into one Cp(θ) (stationary model).
+
+    Parameters
+    ----------
+    thetas : list of array_like
+        Each run's tap azimuths (:func:`tap_azimuth` with ω = 0 and its index angle). [deg]
+    cps : list of array_like
+        Each run's Cp at those azimuths. [-]
+
+    Returns
+    -------
+    theta, cp : ndarray
+        All points, azimuths wrapped to [0, 360) and sorted; repeated azimuths are kept (and
+        averaged by :func:`integrate_cp`). [deg], [-]
+
+    Notes
+    -----
+    Indexing the model between runs (rotating it by a known angle) places the same few taps at
+    new azimuths; merging assumes the runs share one flow condition.
+
+    References
+    ----------
+    .. [1] J. B. Barlow, W. H. Rae and A. Pope, *Low-Speed Wind Tunnel Testing*, 3rd ed., Wiley,
+       1999, ch. 4 (surface pressure measurement) (chapter from memory).
+
+    Examples
+    --------
+    >>> merge_indexed([[0.0, 180.0], [-90.0, 90.0]], [[1.0, -0.5], [-1.0, -1.2]])[0].tolist()
+    [0.0, 90.0, 180.0, 270.0]
+    """
+    if len(thetas) != len(cps):
+        raise ValueError(f"merge_indexed: {len(thetas)} azimuth arrays for {len(cps)} Cp arrays")
+    theta_parts = [np.ravel(np.asarray(t, dtype=float)) for t in thetas]
+    cp_parts = [np.ravel(np.asarray(c, dtype=float)) for c in cps]
+    for k, (t, c) in enumerate(zip(theta_parts, cp_parts, strict=True)):
+        if t.shape != c.shape:
+            raise ValueError(f"merge_indexed: run {k} has {t.size} azimuths but {c.size} Cp values")
+    theta = np.mod(np.concatenate(theta_parts), 360.0)
+    cp = np.concatenate(cp_parts)
+    order = np.argsort(theta, kind="stable")
+    return theta[order], cp[order]
