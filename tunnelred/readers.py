@@ -183,7 +183,8 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         problems.append(_encoding_problem(file, 1, start + exc.start, data))
-        text = raw.decode("utf-8", errors="replace")
+        # Latin-1 decodes any byte; reading the header on shows its other problems, if any.
+        text = raw.decode("latin-1")
     cells = next(csv.reader([text]), [])
     names: list[str] = []
     conversions: list = []
@@ -315,7 +316,7 @@ def _check_values(
                     name,
                     "a finite number in every cell",
                     f"{' and '.join(kinds)} on {_rows_text(lines[bad])}",
-                    "Remove or repair those rows; a logger writes NaN when a sensor drops out.",
+                    "Repair or remove those rows (a logger writes NaN or inf when a sensor fails).",
                 )
             )
     time = columns.get("time")
@@ -323,7 +324,11 @@ def _check_values(
         good = np.isfinite(time)
         t, n = time[good], lines[good]
         step = np.diff(t)
-        for mask, what in ((step == 0, "repeated"), (step < 0, "decreasing")):
+        checks = (
+            (step == 0, "repeated", "Remove the repeated rows."),
+            (step < 0, "decreasing", "Check the logger's clock and the order of the rows."),
+        )
+        for mask, what, hint in checks:
             if mask.any():
                 problems.append(
                     Problem(
@@ -332,7 +337,7 @@ def _check_values(
                         "time",
                         "time stamps that increase strictly",
                         f"{what} time on {_rows_text(n[1:][mask])}",
-                        "Check the logger's clock; remove repeated rows.",
+                        hint,
                     )
                 )
     ranges = {

@@ -145,9 +145,20 @@ def conversion(unit_text: str, dimension: str | None) -> Conversion:
     return Conversion(scale, offset, attr)
 
 
+# Names for the dimensions a wrong unit most often has, for error messages.
+_DIMENSION_NAMES = {
+    "V": "voltage", "A": "current", "Pa": "pressure", "m": "length", "N": "force",
+    "J": "torque or energy", "K": "temperature", "s": "time", "m/s": "speed", "Hz": "frequency",
+    "kg": "mass", "W": "power", "Pa/m": "pressure per length",
+}  # fmt: skip
+
+
 def _describe(units: pint.Unit) -> str:
     if units.dimensionless:
         return "angle" if _is_angular(units, _ANGLE_ROOT) else "no dimension"
+    for unit, name in _DIMENSION_NAMES.items():
+        if units.dimensionality == _units_of(unit).dimensionality:
+            return name
     return str(units.dimensionality)
 
 

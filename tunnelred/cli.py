@@ -1,0 +1,193 @@
+"""The ``tunnelred`` command.
+
+Each subcommand is a pair of functions: ``_add_<name>(subparsers)`` declares its arguments and
+``_run_<name>(args) -> int`` does the work and returns the exit status. Add a subcommand by
+writing the pair and listing ``_add_<name>`` in :data:`_SUBCOMMANDS`.
+
+Exit status: 0 success, 1 problems in the input (or a run that failed), 2 a usage error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections import Counter, defaultdict
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .errors import InputError, TunnelredError
+
+__all__ = ["main"]
+
+
+def _fail_usage(message: str) -> int:
+    print(f"tunnelred: error: {message}", file=sys.stderr)
+    return 2
+
+
+# ---------------------------------------------------------------------------------------------
+# check
+
+
+def _add_check(subparsers) -> None:
+    p = subparsers.add_parser(
+        "check",
+        help="validate a campaign folder and summarise it",
+        description="Read campaign.toml, runs.csv and every log of a campaign folder, check "
+        "them against the input format (docs/input-format.md) and print a summary: runs by "
+        "kind and configuration, streams with sample rates, durations and row counts, taps, and "
+        "every problem found, grouped by file, with its line and column.",
+        epilog="example:\n  tunnelred check sample_runs/broken\n\n"
+        "exit status: 0 no problems, 1 problems found, 2 usage error.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
+    p.set_defaults(run=_run_check)
+
+
+def _range(values, fmt: str) -> str:
+    lo, hi = min(values), max(values)
+    return fmt.format(lo) if np.isclose(lo, hi) else f"{fmt.format(lo)}–{fmt.format(hi)}"
+
+
+def _run_check(args) -> int:
+    from .readers import KINDS, STREAMS, open_campaign
+
+    if not args.campaign.is_dir():
+        return _fail_usage(f"{args.campaign}: no such folder")
+    campaign = open_campaign(args.campaign, check_logs=True)
+    config = campaign.config
+    out = []
+    out.append(f"{config.campaign.title} — {config.campaign.facility}")
+    out.append(f"folder: {campaign.root}")
+    kinds = Counter(r.kind for r in campaign.runs.values())
+    out.append(f"runs: {len(campaign.runs)} (" + ", ".join(f"{kinds[k]} {k}" for k in KINDS) + ")")
+    by_config: dict[str, Counter] = defaultdict(Counter)
+    for spec in campaign.runs.values():
+        by_config[spec.config or "(none)"][spec.kind] += 1
+    for label, counts in sorted(by_config.items()):
+        text = ", ".join(f"{counts[k]} {k}" for k in KINDS if counts[k])
+        description = config.configurations.get(label)
+        extra = f"  ({description.description})" if description and description.description else ""
+        out.append(f"  config {label}: {text}{extra}")
+    out.append("streams:")
+    for stream in STREAMS:
+        files = {spec.logs[stream] for spec in campaign.runs.values() if stream in spec.logs}
+        infos = [campaign.log_info[f] for f in files if f in campaign.log_info]
+        if not files:
+            continue
+        line = f"  {stream:<9} {len(files)} files"
+        if infos:
+            rates = [1.0 / i.median_dt for i in infos if i.median_dt > 0]
+            line += (f"; rate {_range(rates, '{:.4g}')} Hz" if rates else "") + (
+                f"; duration {_range([i.duration for i in infos], '{:.4g}')} s"
+                f"; rows {_range([i.rows for i in infos], '{:d}')}"
+            )
+        if len(infos) < len(files):
+            line += f"; {len(files) - len(infos)} with problems"
+        out.append(line)
+    if config.taps:
+        names = [t.name for t in config.taps]
+        shown = ", ".join(names) if len(names) <= 12 else f"{', '.join(names[:12])}, …"
+        out.append(f"taps: {len(names)} ({shown})")
+    print("\n".join(out))
+    return _print_problems(campaign.problems)
+
+
+def _print_problems(problems) -> int:
+    if not problems:
+        print("no problems found")
+        return 0
+    by_file: dict[str, list] = defaultdict(list)
+    for p in problems:
+        by_file[p.file].append(p)
+    print(f"\n{len(problems)} problems in {len(by_file)} files:")
+    for file, items in by_file.items():
+        print(f"\n{file}")
+        for p in sorted(items, key=lambda p: (p.line or 0, p.column or "")):
+            where = f"{file}:{p.line}" if p.line is not None else file
+            if p.column:
+                where += f" [{p.column}]"
+            print(f"  {where}: expected {p.expected}; found {p.found}.")
+            if p.hint:
+                print(f"      {p.hint}")
+    return 1
+
+
+# ---------------------------------------------------------------------------------------------
+# demo
+
+
+def _add_demo(subparsers) -> None:
+    p = subparsers.add_parser(
+        "demo",
+        help="write a synthetic demo campaign with known truth",
+        description="Write a synthetic campaign folder (campaign.toml, runs.csv, logs and "
+        "truth.csv with the free-air values used to make it) into DEST.",
+        epilog="example:\n  tunnelred demo my-demo --seed 3\n  tunnelred check my-demo",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("dest", type=Path, help="folder to write (created; must be empty)")
+    p.add_argument("--seed", type=int, default=0, help="random seed of the noise (default 0)")
+    p.add_argument("--force", action="store_true", help="write into a non-empty DEST")
+    p.set_defaults(run=_run_demo)
+
+
+def _run_demo(args) -> int:
+    from .synth import write_demo_campaign
+
+    dest: Path = args.dest
+    if dest.exists() and not dest.is_dir():
+        return _fail_usage(f"{dest} exists and is not a folder")
+    if dest.is_dir() and any(dest.iterdir()) and not args.force:
+        return _fail_usage(f"{dest} is not empty; choose another folder or add --force")
+    write_demo_campaign(dest, seed=args.seed)
+    print(f"demo campaign written to {dest}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
+
+_SUBCOMMANDS = (_add_check, _add_demo)
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="tunnelred",
+        description="Reduce wind-tunnel data from rotating-cylinder tests: validate a campaign "
+        "folder, reduce its runs to wall-corrected coefficients with uncertainties, and report.",
+        epilog="examples:\n  tunnelred demo my-demo\n  tunnelred check my-demo\n\n"
+        "Run 'tunnelred COMMAND --help' for a command's options.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"tunnelred {__version__}")
+    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+    for add in _SUBCOMMANDS:
+        add(subparsers)
+    return parser
+
+
+def main(argv=None) -> int:
+    """Run the ``tunnelred`` command; returns the exit status."""
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse exits 2 on usage errors, 0 for --help/--version
+        return int(exc.code or 0)
+    try:
+        return args.run(args)
+    except InputError as exc:
+        print("the input cannot be used as it is:")
+        return _print_problems(exc.problems)
+    except TunnelredError as exc:
+        print(f"tunnelred: {exc}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print("tunnelred: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
