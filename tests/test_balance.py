@@ -68,6 +68,32 @@ def test_linear_inverse_matches_numpy_solve_for_a_batch_of_matrices():
         np.testing.assert_allclose(got[b], np.linalg.solve(matrices[b], loads[b]), rtol=1e-12)
 
 
+def test_inverse_broadcasts_over_loads_and_matrices():
+    # Loads on a (2, 5) grid through one matrix, and one load set through a batch of 4
+    # perturbed second-order calibrations: the signals found must give the loads back through
+    # the forward calibration (numpy matmul reference above). Loads ~10 N → atol 1e-11 N.
+    rng = np.random.default_rng(9)
+    loads = rng.uniform(-10.0, 10.0, size=(2, 5, 3))
+    signals = signals_from_loads(loads, K3)
+    assert signals.shape == (2, 5, 3)
+    np.testing.assert_allclose(signals @ K3.T, loads, atol=1e-11)
+    matrices = K3 * (1.0 + 0.01 * rng.standard_normal((4, 3, 3)))
+    seconds = 0.75 * np.abs(K3).max(axis=1, keepdims=True) * rng.standard_normal((4, 3, 6))
+    one_load = np.array([8.0, -5.0, 0.1])
+    signals = signals_from_loads(one_load, matrices, seconds)
+    assert signals.shape == (4, 3)
+    back = np.einsum("brn,bn->br", matrices, signals) + np.einsum(
+        "brm,bm->br", seconds, _second_order_by_hand(signals)
+    )
+    np.testing.assert_allclose(back, np.broadcast_to(one_load, (4, 3)), atol=1e-11)
+
+
+def test_zero_loads_give_zero_signals():
+    # F = 0 is met by s = 0 exactly for any calibration with no constant term (by the form).
+    second = np.ones((3, 6))
+    np.testing.assert_array_equal(signals_from_loads(np.zeros((3, 3)), K3, second), 0.0)
+
+
 def test_second_order_products_follow_the_documented_order():
     rng = np.random.default_rng(11)
     second = rng.normal(scale=40.0, size=(3, 6))

@@ -63,18 +63,51 @@ def _products(signals, n):
     return signals[..., i] * signals[..., j]
 
 
-def _products_jacobian(signals, n):
-    """d(s_i s_j)/ds_k: [..., n] → [..., n(n+1)/2, n]."""
+def _apply(matrix, vectors):
+    """matrix [..., r, c] times vectors [..., c] → [..., r]; one BLAS call for a 2-D matrix."""
+    if matrix.ndim == 2:
+        return vectors @ matrix.T
+    return (matrix @ vectors[..., None])[..., 0]
+
+
+def _product_tensor(second_order, n):
+    """C [..., 3, n, n] with ∂(K₂ q(s))/∂s = C s: each s_i s_j term feeds C[i, j] and C[j, i]."""
     i, j = np.triu_indices(n)
-    eye = np.eye(n)
-    return eye[i] * signals[..., j, None] + eye[j] * signals[..., i, None]
+    tensor = np.zeros(second_order.shape[:-1] + (n, n))
+    tensor[..., i, j] += second_order
+    tensor[..., j, i] += second_order
+    return tensor
+
+
+def _jacobian(matrix, tensor, signals):
+    """∂F/∂s = K + C s for samples [A, n] → [A, 3, n]."""
+    a, n = signals.shape
+    if tensor.ndim == 3:
+        varying = (signals @ tensor.reshape(3 * n, n).T).reshape(a, 3, n)
+    else:
+        varying = np.einsum("arkj,aj->ark", tensor, signals)
+    return matrix + varying
 
 
 def _solve(a, b):
-    """Solve a x = b for stacks of 3 x n systems (b [..., 3]); minimum-norm when n > 3."""
-    if a.shape[-1] == a.shape[-2]:
+    """Solve a x = b for 3 x n systems (b [..., 3]); the minimum-norm x when n > 3."""
+    square = a.shape[-1] == a.shape[-2]
+    if a.ndim == 2:
+        columns = b.reshape(-1, 3).T
+        # x = aᵀ (a aᵀ)⁻¹ b: the minimum-norm solution through a 3 x 3 solve, cheaper than an SVD.
+        x = np.linalg.solve(a, columns) if square else a.T @ np.linalg.solve(a @ a.T, columns)
+        return x.T.reshape(b.shape[:-1] + (a.shape[-1],))
+    if square:
         return np.linalg.solve(a, b[..., None])[..., 0]
-    return (np.linalg.pinv(a) @ b[..., None])[..., 0]
+    a_t = np.swapaxes(a, -1, -2)
+    return (a_t @ np.linalg.solve(a @ a_t, b[..., None]))[..., 0]
+
+
+def _flat(array, shape, tail):
+    """Broadcast a batched array to ``shape + tail`` and flatten the batch; a 2-D one stays."""
+    if array.ndim == len(tail):
+        return array
+    return np.broadcast_to(array, shape + tail).reshape((-1,) + tail)
 
 
 def loads_from_signals(signals, matrix, second_order=None):
@@ -118,9 +151,9 @@ def loads_from_signals(signals, matrix, second_order=None):
     signals = np.asarray(signals, dtype=float)
     if signals.shape[-1:] != (n,):
         raise ValueError(f"signals must end in the {n} channels; found shape {signals.shape}")
-    loads = (matrix @ signals[..., None])[..., 0]
+    loads = _apply(matrix, signals)
     if second_order is not None:
-        loads = loads + (second_order @ _products(signals, n)[..., None])[..., 0]
+        loads = loads + _apply(second_order, _products(signals, n))
     return loads
 
 
@@ -182,24 +215,38 @@ def signals_from_loads(loads, matrix, second_order=None, *, tol=1e-12, max_iter=
     loads = np.asarray(loads, dtype=float)
     if loads.shape[-1:] != (3,):
         raise ValueError(f"loads must end in Fx, Fy, Mz; found shape {loads.shape}")
-    signals = _solve(matrix, loads)
     if second_order is None:
-        return signals
-    signals = np.broadcast_to(
-        signals, np.broadcast_shapes(signals.shape, second_order.shape[:-2] + (n,))
-    ).copy()
+        return _solve(matrix, loads)
+
+    # Newton works on a flat batch of samples and keeps iterating only those not yet converged.
+    shape = np.broadcast_shapes(loads.shape[:-1], matrix.shape[:-2], second_order.shape[:-2])
+    m = second_order.shape[-1]
+    loads = np.broadcast_to(loads, shape + (3,)).reshape(-1, 3)
+    matrix, second_order = _flat(matrix, shape, (3, n)), _flat(second_order, shape, (3, m))
+    tensor = _product_tensor(second_order, n)
+    signals = _solve(matrix, loads)
+    signals = np.array(np.broadcast_to(signals, (loads.shape[0], n)))
+    active = np.arange(loads.shape[0])
     for _ in range(max_iter):
-        residual = loads_from_signals(signals, matrix, second_order) - loads
-        jacobian = matrix + second_order @ _products_jacobian(signals, n)
-        step = _solve(jacobian, residual)
-        signals = signals - step
-        scale = np.max(np.abs(signals), axis=-1)
-        if np.all(np.max(np.abs(step), axis=-1) <= tol * scale):
-            return signals
-    worst = np.max(np.max(np.abs(step), axis=-1) / np.where(scale > 0, scale, 1.0))
+        s = signals[active]
+        k = matrix if matrix.ndim == 2 else matrix[active]
+        k2 = second_order if second_order.ndim == 2 else second_order[active]
+        c = tensor if tensor.ndim == 3 else tensor[active]
+        residual = _apply(k, s) + _apply(k2, _products(s, n)) - loads[active]
+        step = _solve(_jacobian(k, c, s), residual)
+        s = s - step
+        signals[active] = s
+        largest_step = np.max(np.abs(step), axis=-1)
+        largest_signal = np.max(np.abs(s), axis=-1)
+        done = largest_step <= tol * largest_signal
+        active = active[~done]
+        if active.size == 0:
+            return signals.reshape(shape + (n,))
     raise ValueError(
-        f"the second-order calibration could not be inverted in {max_iter} Newton iterations "
-        f"(largest relative step {worst:.3g}); the loads may lie beyond the calibrated range"
+        f"the second-order calibration could not be inverted in {max_iter} Newton iterations for "
+        f"{active.size} of {signals.shape[0]} load sets (largest relative step "
+        f"{np.max(largest_step / np.maximum(largest_signal, np.finfo(float).tiny)):.3g}); "
+        "the loads may lie beyond the calibrated range"
     )
 
 
