@@ -13,7 +13,7 @@ Sources checked. Maskell's formula ``Δq/q = ε CD S/C`` and the range of his bl
 (a little above 5/2 in axisymmetric flow, a little below 1 in two-dimensional flow, close to 5/2
 for aspect ratios 1 to 10) were read in the summary of ARC R&M 3400. Allen & Vincenti's
 expressions (NACA Report 782) and Glauert's horizontal-buoyancy rule (ARC R&M 1566), as
-reproduced by Barlow, Rae & Pope (3rd ed., ch. 9-10), are given from memory; the solid-blockage
+reproduced by Barlow, Rae & Pope (3rd ed.), are given from memory; the solid-blockage
 constant is verified independently in the tests by summing the wall images of the cylinder's
 doublet, and the lift-interference form is derived below, with its own image-sum check.
 """
@@ -113,7 +113,7 @@ def solid_blockage_2d(diameter, height):
     .. [1] H. J. Allen and W. G. Vincenti, "Wall interference in a two-dimensional-flow wind
        tunnel, with consideration of the effect of compressibility", NACA Report 782, 1944.
     .. [2] J. B. Barlow, W. H. Rae and A. Pope, Low-Speed Wind Tunnel Testing, 3rd ed., Wiley,
-       1999, ch. 9.
+       1999 (from memory).
 
     Examples
     --------
@@ -160,8 +160,8 @@ def wake_blockage_2d(
     .. math:: \\left(1 + \\varepsilon_{wb}\\right)^2 = \\frac{q_c}{q_u}
               = 1 + \\theta C_{D,u} \\frac{d}{h}
 
-    Allen & Vincenti's form is a small-wake, first-order result (Barlow, Rae & Pope recommend it
-    for streamlined sections and small wakes; for ``d/h`` below ≈ 0.3). Maskell's is meant for
+    Allen & Vincenti's form is a first-order result derived for aerofoils with thin wakes; use it
+    for ``d/h`` below ≈ 0.3 and expect it to under-correct a wide separated wake. Maskell's is for
     separated bluff-body wakes that do not reattach; his summary gives ``theta`` a little below
     1 in 2-D flow. A spinning cylinder's wake narrows and deflects as the spin ratio grows,
     which neither method describes: both take the drag as the measure of the wake.
@@ -172,7 +172,7 @@ def wake_blockage_2d(
     .. [2] E. C. Maskell, "A theory of the blockage effects on bluff bodies and stalled wings in
        a closed wind tunnel", ARC R&M 3400, 1963 (published 1965).
     .. [3] J. B. Barlow, W. H. Rae and A. Pope, Low-Speed Wind Tunnel Testing, 3rd ed., Wiley,
-       1999, ch. 9.
+       1999 (from memory).
 
     Examples
     --------
@@ -347,7 +347,7 @@ def buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient):
     .. [1] H. Glauert, "Wind tunnel interference on wings, bodies and airscrews", ARC R&M 1566,
        1933 (from memory).
     .. [2] J. B. Barlow, W. H. Rae and A. Pope, Low-Speed Wind Tunnel Testing, 3rd ed., Wiley,
-       1999, ch. 9 (from memory).
+       1999 (from memory).
 
     Examples
     --------
