@@ -1,0 +1,566 @@
+"""The whole campaign: every data run reduced independently, in parallel, cached, failures isolated.
+
+:func:`reduce_campaign` opens the campaign, reduces each data run with
+:func:`tunnelred.reduction.reduce_run` (in this process, in a pool of processes, or on a
+dask.distributed cluster), runs the campaign-level checks, and writes the results with
+:func:`tunnelred.store.write_results`.
+
+A run that cannot be reduced becomes a row of failures.csv (run, file, line, reason) and never
+stops the others. Results are cached per run in ``OUT/.cache``, keyed on everything the run's
+reduction reads, so reducing an unchanged campaign again reduces nothing, and changing one log
+reduces again only the runs that use it.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import hashlib
+import html
+import json
+import multiprocessing
+import os
+import pickle
+import sys
+import time
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+import xarray as xr
+
+from . import __version__, quality, reduction, store
+from .errors import InputError, Problem, ReductionError
+from .readers import open_campaign
+
+__all__ = ["CampaignResults", "reduce_campaign", "cache_key"]
+
+_CACHE_DIR = ".cache"
+_CACHE_SUFFIX = ".pkl"
+_DASK_HINT = 'dask is not installed; install it with: pip install "tunnelred[dask]"'
+# Lines of each list in the one-screen summary before "and N more".
+_SUMMARY_LINES = 12
+
+
+@dataclass
+class CampaignResults:
+    """What :func:`reduce_campaign` produced.
+
+    ``reduced`` counts the data runs with results, ``from_cache`` those of them taken from the
+    cache, ``failed`` the data runs without results (rows of ``failures``), ``flagged`` the runs
+    with at least one quality flag. ``outputs`` maps each file name to where it was written
+    (empty when no output folder was given). ``elapsed`` is the wall time [s].
+    """
+
+    dataset: xr.Dataset
+    failures: pd.DataFrame
+    budgets: pd.DataFrame
+    outputs: dict[str, Path]
+    reduced: int
+    from_cache: int
+    failed: int
+    flagged: int
+    elapsed: float
+    title: str = ""
+
+    def _flagged_runs(self) -> list[tuple[str, str]]:
+        if "flags" not in self.dataset:
+            return []
+        runs = self.dataset["run"].values
+        return [
+            (str(r), str(f)) for r, f in zip(runs, self.dataset["flags"].values, strict=True) if f
+        ]
+
+    def _failed_runs(self) -> list[tuple[str, str, str]]:
+        rows = []
+        for run, group in self.failures.groupby("run", sort=False):
+            first = group.iloc[0]
+            where = str(first["file"]) if first["file"] else ""
+            if where and pd.notna(first["line"]):
+                where += f":{int(first['line'])}"
+            more = f" (+{len(group) - 1} more)" if len(group) > 1 else ""
+            rows.append((str(run), where, f"{first['reason']}{more}"))
+        return rows
+
+    def summary(self) -> str:
+        """The one-screen summary: runs reduced, flagged and failed, and where outputs went."""
+        fresh = self.reduced - self.from_cache
+        lines = [
+            f"{self.title or 'campaign'}: {self.reduced + self.failed} data runs in "
+            f"{self.elapsed:.1f} s",
+            f"  reduced  {self.reduced} ({fresh} now, {self.from_cache} from cache)",
+            f"  flagged  {self.flagged}",
+        ]
+        lines += _capped([f"    {run}  {flags}" for run, flags in self._flagged_runs()])
+        lines.append(f"  failed   {self.failed}")
+        lines += _capped(
+            [
+                f"    {run}  {where + '  ' if where else ''}{reason}"
+                for run, where, reason in self._failed_runs()
+            ]
+        )
+        if self.outputs:
+            folder = next(iter(self.outputs.values())).parent
+            lines.append(f"  outputs  {folder}: {', '.join(self.outputs)}")
+        else:
+            lines.append("  outputs  none written (no output folder given)")
+        return "\n".join(lines)
+
+    def __str__(self) -> str:
+        return self.summary()
+
+    def _repr_html_(self) -> str:
+        fresh = self.reduced - self.from_cache
+        head = (
+            f"<p><b>{html.escape(self.title or 'campaign')}</b>: {self.reduced} runs reduced "
+            f"({fresh} now, {self.from_cache} from cache), {self.flagged} flagged, "
+            f"{self.failed} failed, in {self.elapsed:.1f} s</p>"
+        )
+        parts = [head]
+        flagged = self._flagged_runs()
+        if flagged:
+            rows = "".join(
+                f"<tr><td>{html.escape(r)}</td><td>{html.escape(f)}</td></tr>" for r, f in flagged
+            )
+            parts.append(f"<table><tr><th>flagged run</th><th>flags</th></tr>{rows}</table>")
+        failed = self._failed_runs()
+        if failed:
+            rows = "".join(
+                f"<tr><td>{html.escape(r)}</td><td>{html.escape(w)}</td>"
+                f"<td>{html.escape(why)}</td></tr>"
+                for r, w, why in failed
+            )
+            parts.append(
+                f"<table><tr><th>failed run</th><th>where</th><th>reason</th></tr>{rows}</table>"
+            )
+        if self.outputs:
+            folder = next(iter(self.outputs.values())).parent
+            parts.append(f"<p>outputs in <code>{html.escape(str(folder))}</code></p>")
+        return "".join(parts)
+
+
+def _capped(lines: list[str]) -> list[str]:
+    if len(lines) <= _SUMMARY_LINES:
+        return lines
+    shown = lines[: _SUMMARY_LINES - 1]
+    return [*shown, f"    … and {len(lines) - len(shown)} more (see the results files)"]
+
+
+# ---------------------------------------------------------------------------------------------
+# One run's outcome, the same from every executor
+
+
+@dataclass
+class _Outcome:
+    run: str
+    result: reduction.RunResult | None = None
+    failures: list[dict] = field(default_factory=list)
+    # Deterministic outcomes (a result, a bad input, a run that cannot be reduced) are cached;
+    # an internal error may be transient and is tried again next time.
+    cacheable: bool = True
+
+
+def _problem_row(run: str, problem: Problem) -> dict:
+    reason = f"expected {problem.expected}; found {problem.found}."
+    if problem.column:
+        reason = f"[{problem.column}] {reason}"
+    if problem.hint:
+        reason += f" {problem.hint}"
+    return {"run": run, "file": problem.file, "line": problem.line, "reason": reason}
+
+
+def _internal_row(run: str, exc: BaseException) -> dict:
+    return {
+        "run": run,
+        "file": "",
+        "line": None,
+        "reason": f"internal error: {type(exc).__name__}: {exc}",
+    }
+
+
+def _reduce_guarded(campaign, run_id: str, monte_carlo: int) -> _Outcome:
+    """Reduce one run; every Exception becomes a failure (KeyboardInterrupt is not caught)."""
+    try:
+        result = reduction.reduce_run(campaign, run_id, monte_carlo=monte_carlo)
+    except InputError as exc:
+        return _Outcome(run_id, failures=[_problem_row(run_id, p) for p in exc.problems])
+    except ReductionError as exc:
+        row = {"run": run_id, "file": exc.file or "", "line": exc.line, "reason": exc.reason}
+        return _Outcome(run_id, failures=[row])
+    except Exception as exc:
+        return _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+    return _Outcome(run_id, result=result)
+
+
+# A worker process opens each campaign once and keeps it for the runs it is sent; the token
+# (a hash of every input) makes a long-lived dask worker reopen a campaign that has changed.
+_OPEN_CAMPAIGNS: dict[str, tuple[str, object]] = {}
+
+
+def _worker(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
+    try:
+        held = _OPEN_CAMPAIGNS.get(path)
+        if held is None or held[0] != token:
+            _OPEN_CAMPAIGNS[path] = (token, open_campaign(path, check_logs=False))
+        campaign = _OPEN_CAMPAIGNS[path][1]
+    except InputError as exc:
+        # The campaign opened in the parent; it changed on the way.
+        rows = [_problem_row(run_id, p) for p in exc.problems]
+        return _Outcome(run_id, failures=rows, cacheable=False)
+    except Exception as exc:
+        return _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+    return _reduce_guarded(campaign, run_id, monte_carlo)
+
+
+# ---------------------------------------------------------------------------------------------
+# The cache
+
+
+def _dependencies(campaign, run_id: str) -> list[str]:
+    """The run and every zero and tare run its reduction reads (a tare's zeros too)."""
+    order, todo = [], [run_id]
+    while todo:
+        rid = todo.pop(0)
+        if rid in order or rid not in campaign.runs:
+            continue
+        order.append(rid)
+        spec = campaign.runs[rid]
+        todo += [*spec.zero, *spec.tare]
+    return order
+
+
+def _row_record(campaign, run_id: str) -> dict:
+    spec = campaign.runs[run_id]
+    record = dataclasses.asdict(spec)
+    record["logs"] = {stream: [rel, campaign.file_hashes[rel]] for stream, rel in spec.logs.items()}
+    return record
+
+
+def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
+    """The cache key of one run's reduction: SHA-256 over everything that reduction reads.
+
+    Parameters
+    ----------
+    campaign : tunnelred.readers.Campaign
+    run_id : str
+        A run of ``campaign``.
+    monte_carlo : int
+        Monte Carlo draws asked for.
+
+    Returns
+    -------
+    str
+        Hex digest over the tunnelred version, the campaign.toml hash, the run's runs.csv row and
+        the hashes of its logs, the same for each zero and tare run it uses, and ``monte_carlo``.
+    """
+    record = {
+        "tunnelred": __version__,
+        "config": campaign.config.sha256,
+        "monte_carlo": int(monte_carlo),
+        "runs": [_row_record(campaign, rid) for rid in _dependencies(campaign, run_id)],
+    }
+    text = json.dumps(record, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _cache_read(folder: Path, key: str, run_id: str) -> _Outcome | None:
+    try:
+        outcome = pickle.loads((folder / f"{key}{_CACHE_SUFFIX}").read_bytes())
+    except FileNotFoundError:
+        return None
+    except Exception:
+        # A corrupt or foreign entry is a miss; the fresh outcome overwrites it.
+        return None
+    if not isinstance(outcome, _Outcome) or outcome.run != run_id:
+        return None
+    return outcome
+
+
+def _cache_write(folder: Path, key: str, outcome: _Outcome) -> None:
+    data = pickle.dumps(outcome, protocol=pickle.HIGHEST_PROTOCOL)
+    store.atomic_write_bytes(folder / f"{key}{_CACHE_SUFFIX}", data)
+
+
+def _cache_prune(folder: Path, keep: set[str]) -> None:
+    for entry in folder.glob(f"*{_CACHE_SUFFIX}"):
+        if entry.stem not in keep:
+            entry.unlink(missing_ok=True)
+
+
+# ---------------------------------------------------------------------------------------------
+# Executors: each yields outcomes as runs finish
+
+
+def _run_serial(campaign, run_ids, monte_carlo):
+    for run_id in run_ids:
+        yield _reduce_guarded(campaign, run_id, monte_carlo)
+
+
+def _pool_context():
+    # forkserver forks workers from a clean server process that has imported tunnelred once:
+    # quick to start, safe with threads in the parent, and the user's script is not re-run.
+    if "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(["tunnelred.campaign"])
+        return context
+    return multiprocessing.get_context("spawn")
+
+
+def _run_pool(path, token, run_ids, monte_carlo, workers):
+    executor = ProcessPoolExecutor(max_workers=workers, mp_context=_pool_context())
+    pending = {executor.submit(_worker, path, token, rid, monte_carlo): rid for rid in run_ids}
+    try:
+        while pending:
+            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for future in done:
+                run_id = pending.pop(future)
+                try:
+                    yield future.result()
+                except Exception as exc:
+                    # The worker process died (BrokenProcessPool) or the outcome did not
+                    # come back; the run is failed, the others go on.
+                    yield _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+    finally:
+        for future in pending:
+            future.cancel()
+        executor.shutdown(wait=not pending, cancel_futures=True)
+
+
+def _dask_client(dask: str, workers: int):
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError as exc:
+        raise ImportError(_DASK_HINT) from exc
+    if dask == "local":
+        cluster = LocalCluster(
+            n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
+        )
+        return Client(cluster), cluster
+    return Client(dask), None
+
+
+def _run_dask(path, token, run_ids, monte_carlo, workers, dask):
+    from distributed import as_completed
+
+    client, cluster = _dask_client(dask, workers)
+    futures = []
+    try:
+        futures = [
+            client.submit(_worker, path, token, rid, monte_carlo, pure=False) for rid in run_ids
+        ]
+        names = {future.key: rid for future, rid in zip(futures, run_ids, strict=True)}
+        for future in as_completed(futures):
+            run_id = names[future.key]
+            try:
+                yield future.result()
+            except Exception as exc:
+                yield _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+    finally:
+        client.cancel(futures)
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+# ---------------------------------------------------------------------------------------------
+# The campaign
+
+
+def _progress_bar(total: int, enabled: bool):
+    from tqdm.auto import tqdm
+
+    return tqdm(total=total, unit="run", desc="reducing", disable=not enabled, file=sys.stderr)
+
+
+def _select(campaign, run_ids) -> list[str]:
+    data = [spec.run for spec in campaign.runs.values() if spec.kind == "data"]
+    if run_ids is None:
+        return data
+    wanted = list(dict.fromkeys(run_ids))
+    unknown = [r for r in wanted if r not in campaign.runs]
+    if unknown:
+        raise ValueError(f"runs.csv has no run(s) {', '.join(map(repr, unknown))}")
+    not_data = [r for r in wanted if campaign.runs[r].kind != "data"]
+    if not_data:
+        raise ValueError(
+            f"only data runs are reduced; {', '.join(map(repr, not_data))} "
+            "are zero or tare runs (their data enter the data runs that name them)"
+        )
+    return wanted
+
+
+def _token(campaign, keys: dict[str, str]) -> str:
+    text = json.dumps([campaign.config.sha256, sorted(keys.values())])
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _repeat_flags(results: list, campaign) -> list:
+    """Add the campaign-level repeat_disagreement flags to the runs they concern."""
+    if len(results) < 2:
+        return results
+    table = store.run_table(store.results_to_dataset(results, campaign=campaign))
+    raised = quality.repeat_disagreement(table, campaign.config.reduction.tolerances)
+    return [
+        dataclasses.replace(r, flags=(*r.flags, raised[r.run])) if r.run in raised else r
+        for r in results
+    ]
+
+
+def _failures_table(rows: list[dict]) -> pd.DataFrame:
+    table = pd.DataFrame(rows, columns=list(store.FAILURE_COLUMNS))
+    table["line"] = table["line"].astype("Int64")
+    return table
+
+
+def _budgets_table(results: list) -> pd.DataFrame:
+    tables = [r.budgets for r in results if r.budgets is not None and len(r.budgets)]
+    if not tables:
+        return pd.DataFrame(columns=list(store.BUDGET_COLUMNS))
+    return pd.concat(tables, ignore_index=True)
+
+
+def reduce_campaign(
+    path,
+    out=None,
+    *,
+    workers: int | None = None,
+    dask: str | None = None,
+    fresh: bool = False,
+    monte_carlo: int = 0,
+    progress: bool = True,
+    run_ids=None,
+) -> CampaignResults:
+    """Reduce every data run of a campaign folder and write the results.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The campaign folder (opened read-only).
+    out : str or path-like, optional
+        Output folder: results.nc, results.csv, provenance.json, failures.csv, budgets.csv,
+        figures/ and the cache .cache/. None: nothing is written and nothing is cached.
+    workers : int, optional
+        Processes to reduce with; default ``os.cpu_count()``. 1 reduces in this process.
+    dask : str, optional
+        ``"local"``: a dask.distributed LocalCluster of ``workers`` single-threaded processes;
+        ``"tcp://host:port"``: an existing scheduler, whose workers must see ``path`` at the same
+        place. Needs ``pip install "tunnelred[dask]"``.
+    fresh : bool
+        Ignore cached results (the cache is rewritten).
+    monte_carlo : int
+        Monte Carlo draws per run (JCGM 101) to check the linear uncertainty; 0 skips them.
+    progress : bool
+        Show a progress bar counting runs as they finish.
+    run_ids : iterable of str, optional
+        Reduce only these data runs.
+
+    Returns
+    -------
+    CampaignResults
+
+    Raises
+    ------
+    InputError
+        campaign.toml or runs.csv is unusable as a whole (every run would fail).
+    ValueError
+        ``run_ids`` names a run that is not a data run of the campaign.
+    KeyboardInterrupt
+        Re-raised after cancelling the pending runs; no output file is touched and every cache
+        entry written is whole.
+
+    Notes
+    -----
+    Runs are independent: each is reduced from its own logs and those of its zero and tare runs.
+    A run with problems in its inputs, or that cannot be reduced, becomes a row of failures.csv
+    and the others go on. The campaign-level repeat-run check runs once all runs are in.
+    """
+    started = time.perf_counter()
+    path = Path(path).resolve()
+    campaign = open_campaign(path, check_logs=False)
+    workers = max(1, int(workers or os.cpu_count() or 1))
+    selected = _select(campaign, run_ids)
+
+    failures: dict[str, list[dict]] = {}
+    for rid in campaign.unreadable_runs:
+        if run_ids is None or rid in selected:
+            failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
+    keys: dict[str, str] = {}
+    for rid in selected:
+        problems = campaign.run_problems(rid)
+        if problems:
+            failures[rid] = [_problem_row(rid, p) for p in problems]
+        else:
+            keys[rid] = cache_key(campaign, rid, monte_carlo=monte_carlo)
+
+    cache = Path(out) / _CACHE_DIR if out is not None else None
+    outcomes: dict[str, _Outcome] = {}
+    from_cache = 0
+    if cache is not None and not fresh:
+        for rid, key in keys.items():
+            hit = _cache_read(cache, key, rid)
+            if hit is not None:
+                outcomes[rid] = hit
+                from_cache += hit.result is not None
+    todo = [rid for rid in keys if rid not in outcomes]
+
+    bar = _progress_bar(len(failures) + len(keys), progress)
+    bar.update(len(failures) + len(outcomes))
+    try:
+        if dask is not None:
+            stream = _run_dask(str(path), _token(campaign, keys), todo, monte_carlo, workers, dask)
+        elif workers == 1 or len(todo) <= 1:
+            stream = _run_serial(campaign, todo, monte_carlo)
+        else:
+            stream = _run_pool(
+                str(path), _token(campaign, keys), todo, monte_carlo, min(workers, len(todo))
+            )
+        with contextlib.closing(stream):
+            for outcome in stream:
+                outcomes[outcome.run] = outcome
+                if cache is not None and outcome.cacheable:
+                    _cache_write(cache, keys[outcome.run], outcome)
+                bar.update(1)
+    finally:
+        bar.close()
+
+    results = []
+    for rid in selected:
+        outcome = outcomes.get(rid)
+        if outcome is not None and outcome.result is not None:
+            results.append(outcome.result)
+        elif outcome is not None:
+            failures[rid] = outcome.failures
+    results = _repeat_flags(results, campaign)
+    ds = store.results_to_dataset(
+        results, campaign=campaign, methods=_methods(campaign, monte_carlo)
+    )
+    failure_rows = [row for rid in failures for row in failures[rid]]
+    failures_table = _failures_table(failure_rows)
+    budgets = _budgets_table(results)
+
+    outputs: dict[str, Path] = {}
+    if out is not None:
+        outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
+        (Path(out) / "figures").mkdir(exist_ok=True)
+        if run_ids is None:
+            _cache_prune(cache, set(keys.values()))
+    return CampaignResults(
+        dataset=ds,
+        failures=failures_table,
+        budgets=budgets,
+        outputs=outputs,
+        reduced=len(results),
+        from_cache=from_cache,
+        failed=len(failures),
+        flagged=sum(1 for r in results if r.flags),
+        elapsed=time.perf_counter() - started,
+        title=campaign.config.campaign.title,
+    )
+
+
+def _methods(campaign, monte_carlo: int) -> dict:
+    methods = store.campaign_methods(campaign)
+    methods["uncertainty"] = "GUM linear propagation (JCGM 100:2008)"
+    methods["monte_carlo_draws"] = int(monte_carlo)
+    return methods
