@@ -94,6 +94,16 @@ def test_zero_loads_give_zero_signals():
     np.testing.assert_array_equal(signals_from_loads(np.zeros((3, 3)), K3, second), 0.0)
 
 
+def test_a_missing_load_gives_missing_signals_only_there():
+    loads = np.array([[5.0, 1.0, 0.1], [np.nan, 1.0, 0.1]])
+    signals = signals_from_loads(loads, K3, np.full((3, 6), 10.0))
+    assert np.all(np.isfinite(signals[0])) and np.all(np.isnan(signals[1]))
+    # The good row still inverts: back through the forward calibration, rounding only.
+    np.testing.assert_allclose(
+        loads_from_signals(signals[0], K3, np.full((3, 6), 10.0)), loads[0], atol=1e-12
+    )
+
+
 def test_second_order_products_follow_the_documented_order():
     rng = np.random.default_rng(11)
     second = rng.normal(scale=40.0, size=(3, 6))

@@ -226,8 +226,11 @@ def signals_from_loads(loads, matrix, second_order=None, *, tol=1e-12, max_iter=
     tensor = _product_tensor(second_order, n)
     signals = _solve(matrix, loads)
     signals = np.array(np.broadcast_to(signals, (loads.shape[0], n)))
-    active = np.arange(loads.shape[0])
+    # A missing load (NaN) gives missing signals, as in the linear case, rather than a failure.
+    active = np.flatnonzero(np.all(np.isfinite(loads), axis=-1))
     for _ in range(max_iter):
+        if active.size == 0:
+            return signals.reshape(shape + (n,))
         s = signals[active]
         k = matrix if matrix.ndim == 2 else matrix[active]
         k2 = second_order if second_order.ndim == 2 else second_order[active]
@@ -240,8 +243,8 @@ def signals_from_loads(loads, matrix, second_order=None, *, tol=1e-12, max_iter=
         largest_signal = np.max(np.abs(s), axis=-1)
         done = largest_step <= tol * largest_signal
         active = active[~done]
-        if active.size == 0:
-            return signals.reshape(shape + (n,))
+    if active.size == 0:
+        return signals.reshape(shape + (n,))
     raise ValueError(
         f"the second-order calibration could not be inverted in {max_iter} Newton iterations for "
         f"{active.size} of {signals.shape[0]} load sets (largest relative step "
