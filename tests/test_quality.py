@@ -1,0 +1,206 @@
+"""Tests of tunnelred.quality: every check trips on a value built to trip it, never on a clean one.
+
+The tolerances are the defaults of tunnelred.config.Tolerances (docs/input-format.md); their
+values are the project's choice (common practice), so the tests build measures on either side
+of them rather than asserting the defaults themselves.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tunnelred import quality as q
+from tunnelred.config import Tolerances
+from tunnelred.quality import FLAG_NAMES, Flag
+
+T = Tolerances()
+RPM = 2 * math.pi / 60  # rad/s per rpm (exact)
+
+
+@pytest.mark.parametrize(
+    ("check", "bad", "clean", "tol", "quoted"),
+    [
+        (q.spin_scatter, 0.031, 0.019, T.spin_scatter, ("3.1 %", "2.0 %", "alpha(t)")),
+        (q.spin_scatter, -0.031, -0.019, T.spin_scatter, ("3.1 %",)),  # alpha < 0: |std/mean|
+        (q.spin_drift, -0.025, 0.015, T.spin_drift, ("2.5 %", "2.0 %")),
+        (q.speed_drift, 0.012, 0.009, T.speed_drift, ("1.2 %", "1.0 %")),
+        (q.temperature_drift, -0.7, 0.4, T.temperature_drift, ("0.70 K", "0.50 K")),
+        (q.stream_overlap, 0.90, 0.97, T.stream_overlap, ("90 %", "95 %")),
+        (q.few_revolutions, 12.0, 25.0, T.min_revolutions, ("12.0 revolutions", "20")),
+    ],
+)
+def test_scalar_checks(check, bad, clean, tol, quoted):
+    flag = check(bad, tol)
+    assert isinstance(flag, Flag)
+    assert flag.name in FLAG_NAMES
+    assert flag.tolerance == tol
+    for text in quoted:
+        assert text in flag.reason
+    assert check(clean, tol) is None
+    assert check(math.nan, tol) is None  # a measure the run does not have raises nothing
+
+
+def test_zero_shift_takes_the_worst_component():
+    flag = q.zero_shift([0.0005, -0.0031, 0.0010], T.zero_shift)
+    assert flag.value == pytest.approx(0.0031)
+    assert "0.31 %" in flag.reason and "(Fy)" in flag.reason and "0.20 %" in flag.reason
+    assert q.zero_shift([0.0005, -0.0019, 0.0010], T.zero_shift) is None
+    assert q.zero_shift(0.0025, T.zero_shift) is not None
+
+
+def test_overload_takes_the_worst_component():
+    flag = q.overload(np.array([0.30, -0.93, 0.10]), T.overload)
+    assert flag.value == pytest.approx(0.93)
+    assert "93 %" in flag.reason and "(Fy)" in flag.reason and "90 %" in flag.reason
+    assert q.overload([0.30, 0.85, 0.10], T.overload) is None
+
+
+def test_tare_extrapolated():
+    flag = q.tare_extrapolated(True, 1830 * RPM, (0.0, 1500 * RPM))
+    assert "1830 rpm" in flag.reason and "0 to 1500 rpm" in flag.reason
+    assert flag.value == pytest.approx(1830 * RPM) and flag.tolerance == pytest.approx(1500 * RPM)
+    assert q.tare_extrapolated(False, 1200 * RPM, (0.0, 1500 * RPM)) is None
+
+
+def test_dead_tap():
+    flag = q.dead_tap({"tap07": "reads constant", "tap12": "departs 0.4 from neighbours"}, 0.15)
+    assert flag.value == 2
+    assert "tap07 (reads constant)" in flag.reason and "tap12" in flag.reason
+    assert q.dead_tap({}, 0.15) is None
+
+
+def test_cl_disagreement_uses_the_correlation():
+    # u^2(CL - CL_p) = u1^2 + u2^2 - 2 r u1 u2 (JCGM 100:2008 eq. (16)). Difference 0.12 with
+    # u1 = u2 = 0.04: r = 0 gives u = 0.0566 → 2.1 u > k = 2 (flag); r = -0.5 gives u = 0.0693
+    # → 1.7 u (no flag); r = 0.8 gives u = 0.0253 → 4.7 u (flag).
+    k = T.agreement_k
+    flag = q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, 0.0, k)
+    assert flag.value == pytest.approx(0.12 / math.sqrt(2 * 0.04**2), rel=1e-9)
+    assert "-1.500" in flag.reason and "-1.380" in flag.reason and "k = 2" in flag.reason
+    assert q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, -0.5, k) is None
+    assert q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, 0.8, k).value == pytest.approx(
+        0.12 / math.sqrt(2 * 0.04**2 * (1 - 0.8)), rel=1e-9
+    )
+    assert q.cl_disagreement(-1.50, 0.04, math.nan, 0.04, 0.0, k) is None
+
+
+def test_stagnation_cp_only_on_non_spinning_runs():
+    # Cp = 1 at the front stagnation point of incompressible flow (Bernoulli; Anderson,
+    # Fundamentals of Aerodynamics).
+    flag = q.stagnation_cp(0.0, 0.91, T.stagnation_cp)
+    assert flag.value == pytest.approx(0.09) and "0.910" in flag.reason
+    assert q.stagnation_cp(0.0, 0.98, T.stagnation_cp) is None
+    assert q.stagnation_cp(-0.005, 1.08, T.stagnation_cp) is not None
+    assert q.stagnation_cp(q.STAGNATION_ALPHA, 0.5, T.stagnation_cp) is None
+    assert q.stagnation_cp(1.2, 0.5, T.stagnation_cp) is None
+
+
+CLEAN = {
+    "spin_scatter": 0.01,
+    "spin_drift": 0.005,
+    "speed_drift": 0.002,
+    "temperature_drift": 0.1,
+    "zero_shift": [0.0005, 0.0003, 0.0001],
+    "tare_extrapolated": False,
+    "overload": [0.2, 0.5, 0.1],
+    "dead_taps": {},
+    "stream_overlap": 0.99,
+    "revolutions": 150.0,
+    "CL": -1.50,
+    "u_CL": 0.04,
+    "CL_p": -1.45,
+    "u_CL_p": 0.04,
+    "corr_CL_CL_p": 0.2,
+    "alpha": 0.0,
+    "Cp_max": 1.01,
+}
+
+BAD = {
+    "spin_scatter": 0.05,
+    "spin_drift": 0.05,
+    "speed_drift": 0.05,
+    "temperature_drift": 2.0,
+    "zero_shift": [0.0005, 0.004, 0.0001],
+    "tare_extrapolated": True,
+    "omega": 2000 * RPM,
+    "tare_range": (0.0, 1500 * RPM),
+    "overload": [0.2, 0.95, 0.1],
+    "dead_taps": {"tap03": "reads constant"},
+    "stream_overlap": 0.5,
+    "revolutions": 5.0,
+    "CL": -1.50,
+    "u_CL": 0.01,
+    "CL_p": -1.20,
+    "u_CL_p": 0.01,
+    "alpha": 0.0,
+    "Cp_max": 0.8,
+}
+
+
+def test_check_run_clean_and_bad():
+    assert q.check_run(CLEAN, T) == []
+    names = [f.name for f in q.check_run(BAD, T)]
+    per_run = [n for n in FLAG_NAMES if n != "repeat_disagreement"]
+    assert names == per_run  # every per-run check ran, in FLAG_NAMES order
+
+
+def test_check_run_skips_missing_keys():
+    assert q.check_run({}, T) == []
+    partial = {k: v for k, v in BAD.items() if k not in ("CL_p", "Cp_max")}
+    names = {f.name for f in q.check_run(partial, T)}
+    assert "cl_disagreement" not in names and "stagnation_cp" not in names
+    assert "spin_scatter" in names
+
+
+def test_flag_columns_layout():
+    flags = [Flag("overload", 0.95, 0.9, "x"), Flag("spin_scatter", 0.05, 0.02, "y")]
+    cols = q.flag_columns(flags)
+    # docs/results.md: `flags` then one boolean `flag_<name>` per kind, names ';'-separated.
+    assert list(cols) == ["flags"] + [f"flag_{n}" for n in FLAG_NAMES]
+    assert cols["flags"] == "spin_scatter;overload"
+    assert cols["flag_overload"] is True and cols["flag_spin_scatter"] is True
+    assert sum(v is True for v in cols.values()) == 2
+    assert q.flag_columns([])["flags"] == ""
+    with pytest.raises(ValueError, match="unknown flag"):
+        q.flag_columns([Flag("wobble", 1.0, 0.0, "")])
+
+
+def test_repeat_disagreement_on_a_small_campaign():
+    # r1, r2, r3 repeat one set point (19.9 and 20.1 m/s round to 20.0; 598 and 603 rpm to 600).
+    # r3's CL is 0.15 from r1 and 0.14 from r2, u = 0.02 each: 0.15 / sqrt(2 * 0.02^2) = 5.3 > k = 2
+    # (JCGM 100:2008 eq. (10) for the difference of independent runs).
+    # r1 and r2 differ by 0.01 → 0.35 u: they agree with each other. r4 is a different config,
+    # r5 a different spin, r6 has no set point: none of them is compared with the group.
+    df = pd.DataFrame(
+        {
+            "run": ["r1", "r2", "r3", "r4", "r5", "r6"],
+            "config": ["bare", "bare", "bare", "plates", "bare", "bare"],
+            "speed_set": [20.0, 19.9, 20.1, 20.0, 20.0, np.nan],
+            "spin_set": [600.0, 598.0, 603.0, 600.0, 900.0, 600.0],
+            "CL": [-1.20, -1.21, -1.35, -1.60, -2.00, -1.80],
+            "u_CL": [0.02, 0.02, 0.02, 0.02, 0.02, 0.02],
+            "CD": [0.80, 0.81, 0.80, 0.70, 0.90, 0.95],
+            "u_CD": [0.02, 0.02, 0.02, 0.02, 0.02, 0.02],
+        }
+    )
+    flags = q.repeat_disagreement(df, T)
+    assert sorted(flags) == ["r1", "r2", "r3"]
+    assert "repeat run r1" in flags["r3"].reason  # the worst of its repeats
+    assert "r3" in flags["r1"].reason and "r3" in flags["r2"].reason
+    assert flags["r3"].value == pytest.approx(0.15 / math.sqrt(2 * 0.02**2), rel=1e-9)
+    assert flags["r3"].tolerance == T.agreement_k
+
+    # CD alone can trip it too.
+    df2 = df.assign(CL=[-1.20, -1.21, -1.20, -1.60, -2.00, -1.80])
+    df2.loc[1, "CD"] = 0.95
+    flags = q.repeat_disagreement(df2, T)
+    assert set(flags) == {"r1", "r2", "r3"}
+    assert flags["r2"].reason.startswith("CD")
+
+    # Agreeing repeats: nothing raised; the run id may also be the index.
+    df3 = df.assign(CL=[-1.20, -1.21, -1.22, -1.60, -2.00, -1.80]).set_index("run")
+    assert q.repeat_disagreement(df3, T) == {}
