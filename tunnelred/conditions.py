@@ -73,7 +73,8 @@ def dynamic_pressure(impact_pressure, static_pressure, *, gamma=1.4):
     598.74
     """
     g = gamma
-    M2 = 2.0 / (g - 1.0) * ((impact_pressure / static_pressure + 1.0) ** ((g - 1.0) / g) - 1.0)
+    # expm1/log1p keep full precision when qc << p, as in every low-speed tunnel.
+    M2 = 2.0 / (g - 1.0) * np.expm1((g - 1.0) / g * np.log1p(impact_pressure / static_pressure))
     return 0.5 * g * static_pressure * M2
 
 
@@ -114,7 +115,7 @@ def impact_pressure(q, static_pressure, *, gamma=1.4):
     """
     g = gamma
     M2 = 2.0 * q / (g * static_pressure)
-    return static_pressure * ((1.0 + 0.5 * (g - 1.0) * M2) ** (g / (g - 1.0)) - 1.0)
+    return static_pressure * np.expm1(g / (g - 1.0) * np.log1p(0.5 * (g - 1.0) * M2))
 
 
 @arraylike
