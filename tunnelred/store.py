@@ -188,7 +188,7 @@ def variable_metadata(name: str) -> tuple[str, str]:
     'drag coefficient from the balance, before wall corrections'
     """
     kind, base = _base_name(name)
-    units, long_name = VARIABLES[base]
+    units, long_name = VARIABLES[base] if kind in ("", "uncorrected") else variable_metadata(base)
     if kind == "u":
         return units, f"standard uncertainty (k = 1) of {long_name}"
     if kind == "u_mc":
@@ -432,7 +432,8 @@ def _csv_bytes(table: pd.DataFrame) -> bytes:
         ):
             table[column] = table[column].map(_escape_cell).astype(object)
     buffer = io.StringIO()
-    table.to_csv(buffer, index=False, lineterminator="\n")
+    # RFC 4180 line ends (CRLF); they also make the writer quote a cell holding a lone CR or LF.
+    table.to_csv(buffer, index=False, lineterminator="\r\n")
     return buffer.getvalue().encode("utf-8")
 
 
