@@ -414,6 +414,8 @@ def propagate_linear(
     >>> round(float(res.u["area"]), 6)  # sqrt((3 * 0.01)**2 + (2 * 0.02)**2)
     0.05
     """
+    if not relative_step > 0:
+        raise ValueError(f"relative_step must be positive; got {relative_step}")
     layout, x0, u = _input_layout(inputs)
     R = _correlation_matrix(layout, correlation)
     active = np.flatnonzero(u > 0)
@@ -564,6 +566,8 @@ def propagate_monte_carlo(
     """
     if not 0.0 < coverage < 1.0:
         raise ValueError(f"coverage must lie in (0, 1); got {coverage}")
+    if draws < 2 or batch < 1:
+        raise ValueError(f"need draws >= 2 and batch >= 1; got draws={draws}, batch={batch}")
     layout, x0, u = _input_layout(inputs)
     R = _correlation_matrix(layout, correlation)
     active = np.flatnonzero(u > 0)
@@ -616,7 +620,6 @@ def propagate_monte_carlo(
         Y = sequence(draws)
 
     mean, std, low, high = summary(Y)
-    assert out is not None
     cov = np.atleast_2d(np.cov(Y, rowvar=False))
     return MonteCarloResult(
         values=_as_event(out, mean),
