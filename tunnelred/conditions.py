@@ -443,8 +443,8 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
     Raises
     ------
     ReductionError
-        When a column the configuration needs is missing (the run id is read from the Dataset's
-        ``run`` attribute).
+        When a column the configuration needs is missing (the run id and file are read from the
+        Dataset's ``run`` and ``file`` attributes where present).
 
     Notes
     -----
@@ -463,14 +463,17 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
     .. [3] Ames Research Staff, NACA Report 1135, 1953 (q from qc).
     """
     run = str(tunnel.attrs.get("run", "?"))
+    file = tunnel.attrs.get("file")
     source = config.tunnel.q_source
     column = {"pitot": "dp_pitot", "contraction": "dp_contraction"}.get(source)
     if column is None:
-        raise ReductionError(run, f"q_source must be 'pitot' or 'contraction', not {source!r}")
+        raise ReductionError(
+            run, f"q_source must be 'pitot' or 'contraction', not {source!r}", file
+        )
     missing = [c for c in (column, "T", "p_baro", "RH") if c not in tunnel]
     if missing:
         raise ReductionError(
-            run, f"the tunnel stream lacks {', '.join(missing)} (q_source = {source!r})"
+            run, f"the tunnel stream lacks {', '.join(missing)} (q_source = {source!r})", file
         )
     factor = config.tunnel.contraction_factor if source == "contraction" else 1.0
     T, p, RH = tunnel["T"], tunnel["p_baro"], tunnel["RH"]
@@ -490,7 +493,7 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
         "Re": reynolds_number(rho, U, config.model.diameter, mu),
         "Mach": mach_number(U, a),
     }
-    out = xr.Dataset(coords={"time": tunnel["time"]}, attrs={"run": run})
+    out = xr.Dataset(coords={"time": tunnel["time"]}, attrs=dict(tunnel.attrs))
     for name, da in values.items():
         units, long_name = _FREE_STREAM_ATTRS[name]
         out[name] = ("time", as_array(da), {"units": units, "long_name": long_name})
