@@ -186,7 +186,9 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     t = stream["time"].to_numpy()
     matrix, second = np.array(cfg.matrix), _second_order(cfg)
     zero, shift, u_zero = _zero_for(campaign, spec, _mid_epoch(spec, stream))
-    loads_t = balance.loads_from_signals(_signal_matrix(stream, cfg.channels) - zero, matrix, second)
+    loads_t = balance.loads_from_signals(
+        _signal_matrix(stream, cfg.channels) - zero, matrix, second
+    )
     means, u_a = _series_means(loads_t, t)
     # The zero's own scatter enters through the linearised calibration.
     u_zero_loads = np.abs(matrix) @ u_zero
@@ -214,7 +216,8 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
         u_tare = np.sqrt(np.mean([s.u_loads**2 for s in states], axis=0))
         if extrapolated:
             measures["tare_extrapolated"] = True
-            measures["tare_range"] = (float(rates.min()), float(rates.max()), omega_mean)
+            measures["tare_range"] = (float(rates.min()), float(rates.max()))
+            measures["omega"] = omega_mean
 
     u_b = np.asarray(cfg.u_fraction_of_full_scale) * full_scale
     inputs = {}
@@ -228,39 +231,74 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     return inputs
 
 
+@dataclass(frozen=True)
+class _PressurePoints:
+    """Tap readings reduced to points in azimuth: bins of a spinning model, or taps at rest."""
+
+    theta: np.ndarray  # azimuth of each point [deg]
+    reading: np.ndarray  # mean scanner reading (p_tap - p_inf at the transducer) [Pa]
+    u_reading: np.ndarray  # its type-A standard uncertainty [Pa]
+    grid: np.ndarray  # bin centres of the results' theta grid [deg]
+    grid_index: np.ndarray  # bin of each point on that grid
+    count: np.ndarray  # samples per grid bin
+
+
 def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures: dict):
-    """Binned tap readings (Pa) on the azimuth grid, dead taps excluded."""
+    """Tap readings (Pa) reduced to azimuth points, dead taps excluded, and u of the azimuth."""
     cfg = campaign.config
     stream = data.streams["pressure"]
     t = stream["time"].to_numpy()
-    if "angle" in stream:
-        angle = stream["angle"].to_numpy()
-    else:
-        angle = np.zeros_like(t)
+    angle = stream["angle"].to_numpy() if "angle" in stream else np.zeros_like(t)
     names = [tap.name for tap in cfg.taps]
     thetas = np.stack(
-        [
-            pressure.tap_azimuth(angle, tap.azimuth, tap.tubing_delay, omega_mean)
-            for tap in cfg.taps
-        ]
+        [pressure.tap_azimuth(angle, tap.azimuth, tap.tubing_delay, omega_mean) for tap in cfg.taps]
     )
     readings = np.stack([stream[name].to_numpy() for name in names])
     bins = cfg.reduction.cp_bins
-    per_tap = [pressure.bin_cp(thetas[i], readings[i] / q_mean, bins=bins) for i in range(len(names))]
-    dead = pressure.find_dead_taps(
-        names, per_tap, tolerance=cfg.reduction.tolerances.dead_tap, raw=readings / q_mean
-    )
+    revolutions = abs(omega_mean) * (t[-1] - t[0]) / (2 * np.pi)
+    spinning = revolutions >= 2.0
+    per_tap = [
+        pressure.bin_cp(thetas[i], readings[i] / q_mean, bins=bins) for i in range(len(names))
+    ]
+    dead = pressure.find_dead_taps(names, per_tap, tolerance=cfg.reduction.tolerances.dead_tap)
     measures["dead_taps"] = dead
     keep = [i for i, name in enumerate(names) if name not in dead]
     if not keep:
         raise ReductionError(data.spec.run, "every pressure tap is dead or leaking")
-    binned = pressure.bin_cp(thetas[keep].ravel(), readings[keep].ravel(), bins=bins)
-    duration = t[-1] - t[0]
-    measures["revolutions"] = abs(omega_mean) * duration / (2 * np.pi)
-    spinning = abs(omega_mean) * duration / (2 * np.pi) >= 1.0
-    u_offsets = [np.hypot(tap.u_azimuth, np.degrees(omega_mean) * tap.u_tubing_delay) for tap in cfg.taps]
+    width = 360.0 / bins
+    grid = (np.arange(bins) + 0.5) * width
+    if spinning:
+        measures["revolutions"] = revolutions
+        binned = pressure.bin_cp(thetas[keep], readings[keep], bins=bins)
+        # A bin seen on a single pass has no between-revolution scatter to judge it by.
+        filled = np.flatnonzero((binned.count > 0) & np.isfinite(binned.u_mean))
+        points = _PressurePoints(
+            binned.theta[filled],
+            binned.mean[filled],
+            binned.u_mean[filled],
+            grid,
+            filled,
+            binned.count.astype(float),
+        )
+    else:
+        # A model at rest: each tap is one point at its fixed azimuth.
+        stats = [conditions.series_statistics(readings[i], t) for i in keep]
+        theta = np.array([float(np.mean(thetas[i])) % 360.0 for i in keep])
+        index = np.minimum((theta // width).astype(int), bins - 1)
+        count = np.bincount(index, minlength=bins) * len(t)
+        points = _PressurePoints(
+            theta,
+            np.array([s.mean for s in stats]),
+            np.array([s.u_mean for s in stats]),
+            grid,
+            index,
+            count.astype(float),
+        )
+    u_offsets = [
+        np.hypot(tap.u_azimuth, np.degrees(omega_mean) * tap.u_tubing_delay) for tap in cfg.taps
+    ]
     u_theta = float(np.hypot(np.sqrt(np.mean(np.square(u_offsets))), cfg.instruments.u_encoder))
-    return binned, u_theta, spinning, sorted(dead)
+    return points, u_theta, sorted(dead)
 
 
 def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
@@ -288,7 +326,10 @@ def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     }
     if cfg.tunnel.q_source == "contraction":
         inputs["k_contraction"] = Input(
-            cfg.tunnel.contraction_factor, cfg.tunnel.u_contraction_factor, "B", "contraction factor"
+            cfg.tunnel.contraction_factor,
+            cfg.tunnel.u_contraction_factor,
+            "B",
+            "contraction factor",
         )
     return inputs
 
@@ -305,9 +346,13 @@ def _stream_overlap(streams) -> float:
 # The run-level model
 
 
-def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None):
-    """The vectorised map from run-level inputs to every reported quantity."""
-    tunnel, model_cfg, red = cfg.tunnel, cfg.model, cfg.reduction
+def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integrate: bool):
+    """The vectorised map from run-level inputs to every reported quantity.
+
+    ``theta_bins`` are the azimuths of the pressure points (None: no pressure log);
+    ``integrate`` is False when they leave a gap too wide for the pressure forces.
+    """
+    model_cfg, red = cfg.model, cfg.reduction
     method = red.blockage
     if not model_cfg.spans_section and method != "none":
         method = "maskell-3d"
@@ -341,10 +386,13 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None):
         nan = np.full_like(q_u, np.nan)
         if has_balance:
             loads = [
-                (x[n] + x[f"{n}_spec"]) * x["calibration"] - x[f"{n}_tare"]
+                # The tare was read through the same calibration as the run.
+                (x[n] + x[f"{n}_spec"] - x[f"{n}_tare"]) * x["calibration"]
                 for n in ("Fx", "Fy", "Mz")
             ]
-            drag, lift = balance.balance_to_wind(loads[0], loads[1], x["alignment"] - x["flow_angle"])
+            drag, lift = balance.balance_to_wind(
+                loads[0], loads[1], x["alignment"] - x["flow_angle"]
+            )
             coeffs = balance.force_coefficients(lift, drag, loads[2], q_u, U_u, omega, d, b)
         else:
             coeffs = {k: nan for k in ("CL", "CD", "CM", "C_power", "L_D")}
@@ -354,6 +402,7 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None):
             head = pressure.centrifugal_head(rho, omega, radius, model_cfg.transducer_radius)
             p_tap = x["p_bin"] + x["p_scanner"] + head[..., None]
             cp_u = p_tap / q_u[..., None]
+        if theta_bins is not None and integrate:
             CL_0, CD_0 = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
             # An azimuth error delta turns the measured Cp(theta) into Cp(theta + delta),
             # which rotates the integrated force by delta.
@@ -420,7 +469,10 @@ def _geometry_inputs(cfg) -> dict:
         "width": Input(t.width, t.u_width, "B", "test-section width"),
         "flow_angle": Input(t.flow_angle, t.u_flow_angle, "B", "flow angularity [deg]"),
         "dpdx": Input(
-            t.static_pressure_gradient, t.u_static_pressure_gradient, "B", "static-pressure gradient"
+            t.static_pressure_gradient,
+            t.u_static_pressure_gradient,
+            "B",
+            "static-pressure gradient",
         ),
     }
 
@@ -491,29 +543,28 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         inputs.update(_balance_inputs(campaign, spec, data, omega_mean, measures))
 
     q_mean = float(np.mean(fs["q"].to_numpy()))
-    theta_bins = None
-    binned = None
+    points = None
     dead_taps: list[str] = []
     if "pressure" in data.streams and cfg.taps:
-        binned, u_theta, spinning, dead_taps = _pressure_inputs(
-            campaign, data, q_mean, omega_mean, measures
-        )
-        if not spinning:
-            measures.pop("revolutions", None)
-        filled = binned.count > 0
-        theta_bins = binned.theta[filled]
-        n = int(filled.sum())
-        inputs["p_bin"] = Input(binned.mean[filled], binned.u_mean[filled], "A", "tap pressure per bin")
+        points, u_theta, dead_taps = _pressure_inputs(campaign, data, q_mean, omega_mean, measures)
+        n = points.theta.size
+        inputs["p_bin"] = Input(points.reading, points.u_reading, "A", "tap pressure per bin")
         inputs["p_scanner"] = Input(
             np.zeros(n), np.full(n, cfg.instruments.u_scanner), "B", "pressure scanner"
         )
         inputs["theta_offset"] = Input(0.0, u_theta, "B", "tap azimuth (offset, delay, encoder)")
+    theta_points = None if points is None else points.theta
+    integrate = points is not None
+    if points is not None:
+        try:
+            pressure.integrate_cp(points.theta, points.reading, max_gap=cfg.reduction.max_tap_gap)
+        except pressure.CpGapError as exc:
+            # The balance result stands; only the pressure forces are left out.
+            integrate = False
+            measures["pressure_gap"] = str(exc)
 
-    model = _run_model(cfg, has_balance=has_balance, theta_bins=theta_bins)
-    try:
-        linear = propagate_linear(model, inputs)
-    except pressure.CpGapError as exc:
-        raise ReductionError(run_id, f"pressure taps leave a gap: {exc}") from exc
+    model = _run_model(cfg, has_balance=has_balance, theta_bins=theta_points, integrate=integrate)
+    linear = propagate_linear(model, inputs)
 
     values: dict[str, float | str] = {
         "config": spec.config,
@@ -537,29 +588,30 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     theta = None
     profiles: dict[str, np.ndarray] = {}
-    if theta_bins is not None:
-        theta = binned.theta
-        filled = binned.count > 0
+    if points is not None:
+        theta = points.grid
 
         def on_grid(v):
             full = np.full(theta.shape, np.nan)
-            full[filled] = np.asarray(v).reshape(-1)
+            full[points.grid_index] = np.asarray(v).reshape(-1)
             return full
 
         profiles = {
             "Cp": on_grid(linear.values["Cp"]),
             "u_Cp": on_grid(linear.u["Cp"]),
             "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
-            "Cp_count": binned.count.astype(float),
+            "Cp_count": points.count,
             "Cp_ideal": theory.cp_surface(theta, alpha),
         }
         features = theory.surface_features(
-            theta_bins, np.asarray(linear.values["Cp"]).reshape(-1), base_arc=cfg.reduction.base_arc
+            points.theta,
+            np.asarray(linear.values["Cp"]).reshape(-1),
+            base_arc=cfg.reduction.base_arc,
         )
         values.update({k: float(v) for k, v in features.items()})
         measures["Cp_max"] = values["Cp_max"]
 
-    if has_balance and theta_bins is not None:
+    if has_balance and integrate:
         measures.update(
             CL=values["CL"],
             u_CL=values["u_CL"],

@@ -420,7 +420,9 @@ def propagate_linear(
     R = _correlation_matrix(layout, correlation)
     active = np.flatnonzero(u > 0)
     m = active.size
-    h = relative_step * u[active]
+    # A step far below the value's last digit would vanish in floating point; 1e-9 of the
+    # value keeps the central difference meaningful (its truncation error is still negligible).
+    h = np.maximum(relative_step * u[active], 1e-9 * np.abs(x0[active]))
     X = np.tile(x0, (1 + 2 * m, 1))
     plus = 1 + 2 * np.arange(m)
     X[plus, active] += h
