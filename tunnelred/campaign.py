@@ -327,11 +327,18 @@ def _run_pool(path, token, run_ids, monte_carlo, workers):
         executor.shutdown(wait=not pending, cancel_futures=True)
 
 
-def _dask_client(dask: str, workers: int):
+def _distributed():
+    """dask.distributed, imported only when asked for: it is an optional dependency."""
     try:
-        from distributed import Client, LocalCluster
+        import distributed
     except ImportError as exc:
         raise ImportError(_DASK_HINT) from exc
+    return distributed
+
+
+def _dask_client(dask: str, workers: int):
+    from distributed import Client, LocalCluster
+
     if dask == "local":
         cluster = LocalCluster(
             n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
@@ -476,6 +483,8 @@ def reduce_campaign(
     and the others go on. The campaign-level repeat-run check runs once all runs are in.
     """
     started = time.perf_counter()
+    if dask is not None:
+        _distributed()
     path = Path(path).resolve()
     campaign = open_campaign(path, check_logs=False)
     workers = max(1, int(workers or os.cpu_count() or 1))
