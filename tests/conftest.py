@@ -51,13 +51,18 @@ name = "tap04"
 azimuth = 270
 """
 
-RUNS_CSV = """\
-run,kind,config,start,balance_log,pressure_log,tunnel_log,zero,tare,speed_set [m/s],spin_set [rpm],notes
-z1,zero,A,2026-11-16T09:00:00,logs/z1_bal.csv,,,,,,,pre-run zero
-t1,tare,A,2026-11-16T09:05:00,logs/t1_bal.csv,,,z1,,0,600,spin tare
-d1,data,A,2026-11-16T09:10:00,logs/d1_bal.csv,logs/d1_p.csv,logs/d1_tun.csv,z1,t1,20,600,
-d2,data,A,2026-11-16T09:20:00,logs/d2_all.csv,logs/d2_all.csv,logs/d2_all.csv,z1,,20,0,"one file, three streams"
-"""
+RUNS_CSV = "\n".join(
+    [
+        "run,kind,config,start,balance_log,pressure_log,tunnel_log,zero,tare,"
+        "speed_set [m/s],spin_set [rpm],notes",
+        "z1,zero,A,2026-11-16T09:00:00,logs/z1_bal.csv,,,,,,,pre-run zero",
+        "t1,tare,A,2026-11-16T09:05:00,logs/t1_bal.csv,,,z1,,0,600,spin tare",
+        "d1,data,A,2026-11-16T09:10:00,logs/d1_bal.csv,logs/d1_p.csv,logs/d1_tun.csv,z1,t1,20,600,",
+        "d2,data,A,2026-11-16T09:20:00,logs/d2_all.csv,logs/d2_all.csv,logs/d2_all.csv,z1,,20,0,"
+        '"one file, three streams"',
+        "",
+    ]
+)
 
 
 def _log(path: Path, header: list[str], columns: list[np.ndarray]) -> None:
@@ -76,19 +81,42 @@ def write_campaign(root: Path, *, rows: int = 50) -> Path:
     t = np.arange(rows) * 0.01
     bal = ["time [s]", "N1 [V]", "N2 [mV]", "N3 [V]"]
     for name in ("z1", "t1", "d1"):
-        _log(root / f"logs/{name}_bal.csv", bal + ["speed [rpm]"],
-             [t, rng.normal(0, 0.01, rows), rng.normal(0, 10, rows), rng.normal(0, 0.01, rows),
-              np.full(rows, 600.0 if name != "z1" else 0.0)])  # fmt: skip
-    _log(root / "logs/d1_tun.csv", ["time [s]", "dp_pitot [Pa]", "T [degC]", "p_baro [hPa]", "RH [%]"],
-         [t, np.full(rows, 240.0), np.full(rows, 20.0), np.full(rows, 1013.25), np.full(rows, 45.0)])  # fmt: skip
+        _log(
+            root / f"logs/{name}_bal.csv",
+            bal + ["speed [rpm]"],
+            [
+                t,
+                rng.normal(0, 0.01, rows),
+                rng.normal(0, 10, rows),
+                rng.normal(0, 0.01, rows),
+                np.full(rows, 600.0 if name != "z1" else 0.0),
+            ],
+        )
+    tunnel = ["time [s]", "dp_pitot [Pa]", "T [degC]", "p_baro [hPa]", "RH [%]"]
+    _log(
+        root / "logs/d1_tun.csv",
+        tunnel,
+        [t, np.full(rows, 240.0), np.full(rows, 20.0), np.full(rows, 1013.25), np.full(rows, 45.0)],
+    )
     taps = [f"tap0{i} [Pa]" for i in range(1, 5)]
-    _log(root / "logs/d1_p.csv", ["time [s]", "angle [deg]", *taps],
-         [t, (t * 3600.0) % 360.0, *(rng.normal(0, 50, rows) for _ in taps)])  # fmt: skip
-    _log(root / "logs/d2_all.csv",
-         ["time [s]", *bal[1:], "dp_pitot [Pa]", "T [K]", "p_baro [Pa]", "RH [1]", *taps],
-         [t, *(rng.normal(0, 0.01, rows) for _ in range(3)), np.full(rows, 240.0),
-          np.full(rows, 293.15), np.full(rows, 101325.0), np.full(rows, 0.45),
-          *(rng.normal(0, 50, rows) for _ in taps)])  # fmt: skip
+    _log(
+        root / "logs/d1_p.csv",
+        ["time [s]", "angle [deg]", *taps],
+        [t, (t * 3600.0) % 360.0, *(rng.normal(0, 50, rows) for _ in taps)],
+    )
+    _log(
+        root / "logs/d2_all.csv",
+        ["time [s]", *bal[1:], "dp_pitot [Pa]", "T [K]", "p_baro [Pa]", "RH [1]", *taps],
+        [
+            t,
+            *(rng.normal(0, 0.01, rows) for _ in range(3)),
+            np.full(rows, 240.0),
+            np.full(rows, 293.15),
+            np.full(rows, 101325.0),
+            np.full(rows, 0.45),
+            *(rng.normal(0, 50, rows) for _ in taps),
+        ],
+    )
     return root
 
 

@@ -136,13 +136,13 @@ def _add_demo(subparsers) -> None:
 
 
 def _run_demo(args) -> int:
-    from .synth import write_demo_campaign
-
     dest: Path = args.dest
     if dest.exists() and not dest.is_dir():
         return _fail_usage(f"{dest} exists and is not a folder")
     if dest.is_dir() and any(dest.iterdir()) and not args.force:
         return _fail_usage(f"{dest} is not empty; choose another folder or add --force")
+    from .synth import write_demo_campaign  # imported here: only this command needs it
+
     write_demo_campaign(dest, seed=args.seed)
     print(f"demo campaign written to {dest}")
     return 0

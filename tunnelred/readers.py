@@ -206,6 +206,7 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
             )
             names.append(cell.strip())
             conversions.append(None)
+            seen.setdefault(cell.strip(), position)
             continue
         names.append(base)
         if base in seen:
@@ -535,6 +536,19 @@ def _parse_log(path: Path, rel: str, expected: dict, optional: dict, hints: dict
     while end > header.end and data[end - 1] in b"\r\n":
         end -= 1
     ncols = len(header.names)
+    if ncols == 0:
+        problems.insert(
+            0,
+            Problem(
+                rel,
+                1,
+                None,
+                "a header row of column names",
+                "an empty first line",
+                "Remove the blank first line.",
+            ),
+        )
+        return None, problems, None, sha
     if end <= header.end:
         problems.append(
             Problem(
