@@ -1,0 +1,738 @@
+"""Figures of campaign results: coefficients versus spin ratio, Cp(θ), run diagnostics, comparisons.
+
+Every function draws on the Axes (or Figure) it is given, or on a new one made without pyplot,
+and returns what it drew on: nothing is left in pyplot's global state, so the functions are safe
+in scripts, notebooks and worker processes alike. Error bars and bands are expanded
+uncertainties, k = 2, and every figure says so.
+
+The house style (:data:`HOUSE_STYLE`) pairs each colour with its own marker and line style, so a
+figure still reads printed in greyscale. The hues are the colour-blind-safe set of Okabe & Ito [1]_.
+
+References
+----------
+.. [1] M. Okabe and K. Ito, "Color Universal Design (CUD): how to make figures and presentations
+   that are friendly to colorblind people", J*FLY, 2008, https://jfly.uni-koeln.de/color/.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+
+import matplotlib as mpl
+import numpy as np
+import pandas as pd
+import xarray as xr
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+
+from . import conditions, store, theory
+
+__all__ = [
+    "HOUSE_STYLE",
+    "SeriesStyle",
+    "COVERAGE_FACTOR",
+    "COEFFICIENT_LABELS",
+    "results_dataset",
+    "group_runs",
+    "representative_runs",
+    "plot_coefficient",
+    "plot_cp",
+    "plot_run_diagnostics",
+    "plot_comparison",
+    "save_standard_figures",
+]
+
+#: Coverage factor of every error bar and band drawn (DESIGN.md §4: reports show k = 2).
+COVERAGE_FACTOR = 2.0
+
+
+@dataclass(frozen=True)
+class SeriesStyle:
+    """How one data series is drawn: a colour, a marker and a line style that go together."""
+
+    color: str
+    marker: str
+    linestyle: str | tuple
+
+
+#: The house series styles, in the order series take them. Hues: Okabe & Ito (2008) blue,
+#: vermillion, bluish green, reddish purple, orange, sky blue and black (their yellow is left out:
+#: it vanishes on white paper). Each has its own marker and dash pattern for greyscale print.
+HOUSE_STYLE: tuple[SeriesStyle, ...] = (
+    SeriesStyle("#0072B2", "o", "-"),
+    SeriesStyle("#D55E00", "s", "--"),
+    SeriesStyle("#009E73", "^", "-."),
+    SeriesStyle("#CC79A7", "D", ":"),
+    SeriesStyle("#E69F00", "v", (0, (5, 1, 1, 1, 1, 1))),
+    SeriesStyle("#56B4E9", "P", (0, (8, 2))),
+    SeriesStyle("#000000", "X", (0, (1, 3))),
+)
+
+# Theory and bounds are drawn in neutral tones so that they never read as one more data series.
+_THEORY_COLOR = "#333333"
+_BOUND_COLOR = "#777777"
+
+# Figure-level settings of the house style, applied only while a figure is drawn.
+_RC = {
+    "font.size": 9,
+    "axes.titlesize": 10,
+    "axes.labelsize": 9,
+    "legend.fontsize": 8,
+    "legend.framealpha": 0.9,
+    "axes.grid": True,
+    "grid.color": "#dddddd",
+    "grid.linewidth": 0.6,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "lines.linewidth": 1.2,
+    "lines.markersize": 5,
+    "errorbar.capsize": 2,
+    "savefig.dpi": 200,
+}
+
+#: Axis labels of the plottable result names.
+COEFFICIENT_LABELS: dict[str, str] = {
+    "alpha": r"spin ratio $\alpha = \omega R / U$",
+    "CL": r"lift coefficient $C_L$",
+    "CD": r"drag coefficient $C_D$",
+    "CM": r"torque coefficient $C_M = T/(q\,d\,b\,R)$",
+    "C_power": r"power coefficient $C_P = T\omega/(q\,U\,d\,b)$",
+    "L_D": r"lift-to-drag ratio $L/D$",
+    "CL_p": r"lift coefficient from $\oint C_p$, $C_{L,p}$",
+    "CD_p": r"drag coefficient from $\oint C_p$, $C_{D,p}$",
+}
+
+_K_TEXT = "bars: expanded uncertainty, k = 2"
+_FIGURE_SIZE = (6.4, 4.4)
+_SAME_RE = 0.05  # runs whose Re differ by less than 5 % form one Reynolds-number group
+_NEAREST_ZEROS = 20  # zero runs shown in the drift panel, nearest in time to the run
+
+
+@contextlib.contextmanager
+def _house() -> Iterator[None]:
+    with mpl.rc_context(_RC):
+        yield
+
+
+def _new_axes(ax: Axes | None, *, polar: bool = False, size=_FIGURE_SIZE) -> Axes:
+    if ax is not None:
+        return ax
+    fig = Figure(figsize=size, layout="constrained")
+    return fig.add_subplot(projection="polar" if polar else None)
+
+
+def results_dataset(results) -> xr.Dataset:
+    """The results Dataset from a Dataset, a CampaignResults or an output folder / results.nc.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults, str or path-like
+
+    Returns
+    -------
+    xarray.Dataset
+    """
+    if isinstance(results, xr.Dataset):
+        return results
+    if hasattr(results, "dataset"):
+        return results.dataset
+    return store.read_results(results)
+
+
+def _values(ds: xr.Dataset, name: str) -> np.ndarray:
+    if name not in ds:
+        return np.full(ds.sizes["run"], np.nan)
+    return np.asarray(ds[name].values, dtype=float)
+
+
+def _sig(x: float, digits: int = 2) -> str:
+    """x to ``digits`` significant figures; powers of ten in mathtext outside 1e-3 … 1e4."""
+    if not np.isfinite(x) or x == 0:
+        return f"{x:g}"
+    exponent = math.floor(math.log10(abs(x)))
+    if -3 <= exponent < 4:
+        return f"{x:.{max(digits - 1 - exponent, 0)}f}"
+    mantissa = x / 10**exponent
+    return rf"{mantissa:.{digits - 1}f}$\times10^{{{exponent}}}$"
+
+
+def group_runs(results, by: str) -> list[tuple[str, np.ndarray]]:
+    """The runs in groups by configuration, tunnel speed or Reynolds number.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+    by : str
+        ``"config"`` (the label), ``"speed"`` (the set speed, else the measured one to 1 m/s) or
+        ``"re"`` (runs within 5 % of the group's lowest Re).
+
+    Returns
+    -------
+    list of (str, numpy.ndarray)
+        Each group's label and its positions along ``run``, in a stable order.
+    """
+    ds = results_dataset(results)
+    n = ds.sizes["run"]
+    if by == "config":
+        labels = [str(c) for c in ds["config"].values] if "config" in ds else [""] * n
+        return [(lab, np.flatnonzero(np.array(labels) == lab)) for lab in dict.fromkeys(labels)]
+    if by == "speed":
+        speed = _values(ds, "speed_set")
+        # Runs without a set point are grouped by their measured speed to the nearest 1 m/s.
+        speed = np.where(np.isfinite(speed), speed, np.round(_values(ds, "U")))
+        keys = np.round(speed, 1)
+        out = []
+        for key in np.unique(keys[np.isfinite(keys)]):
+            out.append((f"U = {key:g} m/s", np.flatnonzero(keys == key)))
+        return out
+    if by == "re":
+        re = _values(ds, "Re")
+        order = np.argsort(re)
+        out, current = [], []
+        for i in order:
+            if not np.isfinite(re[i]):
+                continue
+            if current and re[i] > re[current[0]] * (1 + _SAME_RE):
+                out.append(current)
+                current = []
+            current.append(i)
+        if current:
+            out.append(current)
+        return [(f"Re ≈ {_sig(float(np.mean(re[g])))}", np.array(g)) for g in out]
+    raise ValueError(f"by must be 'config', 'speed' or 're', not {by!r}")
+
+
+def _check_name(ds: xr.Dataset, name: str) -> None:
+    if name not in COEFFICIENT_LABELS or name == "alpha":
+        known = ", ".join(k for k in COEFFICIENT_LABELS if k != "alpha")
+        raise ValueError(f"cannot plot {name!r} against alpha; choose one of {known}")
+    if name not in ds:
+        raise ValueError(f"the results hold no {name!r}")
+
+
+def _theory_lines(ax: Axes, ds: xr.Dataset, name: str) -> None:
+    """The potential-flow CL = −2πα over the data's α range and Prandtl's |CL| = 4π bound."""
+    alpha = _values(ds, "alpha")
+    finite = alpha[np.isfinite(alpha)]
+    if name not in ("CL", "CL_p") or finite.size == 0:
+        return
+    lo, hi = min(finite.min(), 0.0), max(finite.max(), 0.0)
+    grid = np.linspace(lo, hi, 201)
+    ax.plot(
+        grid,
+        theory.lift_coefficient(grid),
+        color=_THEORY_COLOR,
+        linestyle="-",
+        linewidth=1.0,
+        label=r"potential flow $C_L = -2\pi\alpha$",
+        zorder=1,
+    )
+    # The bound on the side(s) the data reach: positive spin gives negative lift.
+    sides = ([-1.0] if hi > 0 else []) + ([1.0] if lo < 0 else [])
+    for j, sign in enumerate(sides):
+        ax.axhline(
+            sign * theory.PRANDTL_LIMIT,
+            color=_BOUND_COLOR,
+            linestyle=":",
+            linewidth=1.0,
+            label=r"Prandtl's limit $|C_L| = 4\pi$" if j == 0 else None,
+            zorder=1,
+        )
+
+
+def plot_coefficient(
+    results,
+    name: str = "CL",
+    *,
+    ax: Axes | None = None,
+    by: str = "config",
+    uncorrected: bool = True,
+    theory: bool = True,
+) -> Axes:
+    """A coefficient against the spin ratio, with expanded-uncertainty bars in both.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results (see :func:`results_dataset`).
+    name : str
+        ``CL``, ``CD``, ``CM``, ``C_power``, ``L_D``, ``CL_p`` or ``CD_p``.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; a new Figure's Axes when None.
+    by : str
+        Group the runs by ``"config"``, ``"speed"`` or ``"re"``; each group gets a house style.
+    uncorrected : bool
+        Also draw the values before wall corrections (hollow markers, no bars).
+    theory : bool
+        For CL and CL_p, draw the potential-flow line CL = −2πα and Prandtl's |CL| = 4π.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    Wall-corrected values are drawn with filled markers and error bars of ±k·u (k = 2) in α and in
+    the coefficient; uncorrected ones with hollow markers of the same style. The potential-flow
+    line holds while the stagnation points stay on the surface, |α| ≤ 2.
+
+    References
+    ----------
+    .. [1] J. D. Anderson, *Fundamentals of Aerodynamics*, 6th ed., McGraw-Hill, 2017, §3.15–3.16.
+
+    Examples
+    --------
+    >>> ds = xr.Dataset(
+    ...     {"config": ("run", ["A", "A"]), "alpha": ("run", [0.5, 1.0]),
+    ...      "u_alpha": ("run", [0.01, 0.01]), "CL": ("run", [-2.5, -5.0]),
+    ...      "u_CL": ("run", [0.05, 0.05])}, coords={"run": ["r1", "r2"]})
+    >>> ax = plot_coefficient(ds, "CL", uncorrected=False)
+    >>> ax.get_ylabel()
+    'lift coefficient $C_L$'
+    """
+    ds = results_dataset(results)
+    _check_name(ds, name)
+    with _house():
+        ax = _new_axes(ax)
+        if theory:
+            _theory_lines(ax, ds, name)
+        k = COVERAGE_FACTOR
+        x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
+        y, uy = _values(ds, name), _values(ds, f"u_{name}")
+        for i, (label, idx) in enumerate(group_runs(ds, by)):
+            style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
+            ax.errorbar(
+                x[idx],
+                y[idx],
+                xerr=k * ux[idx],
+                yerr=k * uy[idx],
+                color=style.color,
+                marker=style.marker,
+                linestyle="none",
+                elinewidth=0.8,
+                label=label or "all runs",
+                zorder=3,
+            )
+            if uncorrected and f"{name}_uncorrected" in ds:
+                ax.plot(
+                    _values(ds, "alpha_uncorrected")[idx],
+                    _values(ds, f"{name}_uncorrected")[idx],
+                    color=style.color,
+                    marker=style.marker,
+                    markerfacecolor="none",
+                    linestyle="none",
+                    label=f"{label or 'all runs'}, uncorrected",
+                    zorder=2,
+                )
+        ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
+        ax.set_ylabel(COEFFICIENT_LABELS[name])
+        ax.legend(title=_K_TEXT, loc="best")
+    return ax
+
+
+def _wrap(theta: np.ndarray) -> np.ndarray:
+    """Azimuths in [−180, 180) [deg], so the windward point sits mid-plot."""
+    return (np.asarray(theta, dtype=float) + 180.0) % 360.0 - 180.0
+
+
+def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -> Axes:
+    """A run's surface pressure coefficient against azimuth, with potential flow at its α.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results with ``Cp`` and ``u_Cp`` on (run, theta).
+    run : str
+        The run id.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw (a polar Axes when ``polar``); a new one when None.
+    polar : bool
+        Draw Cp as the radius about the section, the flow arriving from the left and θ increasing
+        counter-clockwise (the sense of positive spin, DESIGN.md §4).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    The band is Cp ± k·u(Cp), k = 2. The theory curve is Cp = 1 − (α + 2 sin θ)² at the run's
+    wall-corrected α; it describes attached inviscid flow, so the leeward side departs from it.
+
+    References
+    ----------
+    .. [1] J. D. Anderson, *Fundamentals of Aerodynamics*, 6th ed., McGraw-Hill, 2017, §3.15.
+    """
+    ds = results_dataset(results)
+    if "Cp" not in ds:
+        raise ValueError("the results hold no Cp: no run had a pressure log")
+    if run not in set(ds["run"].values.tolist()):
+        raise ValueError(f"the results hold no run {run!r}")
+    row = ds.sel(run=run)
+    alpha = float(row["alpha"])
+    theta = _wrap(ds["theta"].values)
+    order = np.argsort(theta)
+    theta = theta[order]
+    cp = np.asarray(row["Cp"].values, dtype=float)[order]
+    u = np.asarray(row["u_Cp"].values, dtype=float)[order] if "u_Cp" in row else np.zeros_like(cp)
+    if not np.isfinite(cp).any():
+        raise ValueError(f"run {run!r} has no surface pressure data")
+    fine = np.linspace(-180.0, 180.0, 721)
+    ideal = theory.cp_surface(fine, alpha)
+    k = COVERAGE_FACTOR
+    with _house():
+        ax = _new_axes(ax, polar=polar, size=(5.6, 5.0) if polar else _FIGURE_SIZE)
+        style = HOUSE_STYLE[0]
+        to_x = np.radians if polar else np.asarray
+        ax.fill_between(
+            to_x(theta),
+            cp - k * u,
+            cp + k * u,
+            color=style.color,
+            alpha=0.25,
+            linewidth=0,
+            label="Cp ± expanded uncertainty (k = 2)",
+        )
+        ax.plot(
+            to_x(theta),
+            cp,
+            color=style.color,
+            marker=style.marker,
+            markersize=3,
+            linestyle=style.linestyle,
+            label=f"measured, run {run}",
+        )
+        ax.plot(
+            to_x(fine),
+            ideal,
+            color=_THEORY_COLOR,
+            linestyle="--",
+            linewidth=1.0,
+            label=rf"potential flow $1-(\alpha+2\sin\theta)^2$, $\alpha$ = {alpha:.3f}",
+        )
+        if polar:
+            ax.set_theta_zero_location("W")
+            ax.set_theta_direction(1)
+            low = float(np.nanmin([np.nanmin(cp - k * u), ideal.min()]))
+            ax.set_rlim(math.floor(low), 1.5)
+            ax.set_title(f"Cp around the section, run {run} (flow from the left)")
+            ax.legend(loc="lower center", bbox_to_anchor=(0.5, -0.32), fontsize=7)
+        else:
+            ax.set_xlim(-180, 180)
+            ax.set_xticks(np.arange(-180, 181, 45))
+            ax.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
+            ax.set_ylabel(r"pressure coefficient $C_p$")
+            ax.set_title(f"Surface pressure, run {run}")
+            ax.legend(loc="lower left")
+    return ax
+
+
+def _stream_time_label(ax: Axes) -> None:
+    ax.set_xlabel("time from the start of the run [s]")
+
+
+def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Figure:
+    """Diagnostics of one run from its raw logs: α(t), U(t) and the balance zero drift.
+
+    Parameters
+    ----------
+    campaign : tunnelred.readers.Campaign or path-like
+        The opened campaign (:func:`tunnelred.readers.open_campaign`) or its folder.
+    run : str
+        A data run of the campaign.
+    fig : matplotlib.figure.Figure, optional
+        Where to draw three stacked panels; a new Figure when None.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    α(t) = ω(t) R / U(t) on the common time base of :func:`tunnelred.conditions.spin_steadiness`,
+    with its mean and the band mean·(1 ± spin_scatter tolerance); U(t) from
+    :func:`tunnelred.conditions.free_stream` (uncorrected), with mean·(1 ± speed_drift tolerance).
+    The zero panel shows each wind-off zero run's mean channel signals against clock time (the
+    zeros nearest the run), those the run uses filled, the run's start marked: a step or trend
+    there is what the zero_shift flag judges.
+    """
+    from .readers import open_campaign
+
+    if not hasattr(campaign, "load_run"):
+        campaign = open_campaign(campaign, check_logs=False)
+    cfg = campaign.config
+    tol = cfg.reduction.tolerances
+    data = campaign.load_run(run)
+    spec = data.spec
+    with _house():
+        if fig is None:
+            fig = Figure(figsize=(7.0, 8.0), layout="constrained")
+        ax_alpha, ax_speed, ax_zero = fig.subplots(3, 1)
+        style_a, style_u, _ = HOUSE_STYLE[:3]
+
+        flow = None
+        if "tunnel" in data.streams:
+            flow = conditions.free_stream(data.streams["tunnel"], cfg)
+        t_spin, omega, source = conditions.spin_rate(data.streams)
+        if flow is not None and source != "none":
+            steady = conditions.spin_steadiness(
+                t_spin, omega, flow["time"].values, flow["U"].values, cfg.model.diameter / 2
+            )
+            mean = steady.alpha_mean
+            ax_alpha.plot(steady.time, steady.alpha, color=style_a.color, linewidth=0.8)
+            ax_alpha.axhline(mean, color=_THEORY_COLOR, linewidth=1.0, label=f"mean {mean:.4f}")
+            band = abs(mean) * tol.spin_scatter
+            ax_alpha.axhspan(
+                mean - band,
+                mean + band,
+                color=style_a.color,
+                alpha=0.12,
+                label=f"mean ± {100 * tol.spin_scatter:g} % (spin_scatter tolerance)",
+            )
+            ax_alpha.set_title(
+                f"Spin ratio, run {run} ({source}): scatter {100 * steady.scatter:.2f} %, "
+                f"drift {100 * steady.drift:+.2f} %"
+            )
+            ax_alpha.legend(loc="best")
+        else:
+            ax_alpha.set_title(f"Spin ratio, run {run}: not spinning or no tunnel log")
+        ax_alpha.set_ylabel(r"$\alpha(t)$")
+        _stream_time_label(ax_alpha)
+
+        if flow is not None:
+            t, U = flow["time"].values, flow["U"].values
+            stats = conditions.series_statistics(U, t)
+            ax_speed.plot(t, U, color=style_u.color, linewidth=0.8)
+            ax_speed.axhline(stats.mean, color=_THEORY_COLOR, linewidth=1.0)
+            band = stats.mean * tol.speed_drift
+            ax_speed.axhspan(
+                stats.mean - band,
+                stats.mean + band,
+                color=style_u.color,
+                alpha=0.12,
+                label=f"mean ± {100 * tol.speed_drift:g} % (speed_drift tolerance)",
+            )
+            ax_speed.set_title(
+                f"Free-stream speed (uncorrected): mean {stats.mean:.2f} m/s, "
+                f"drift {100 * stats.drift / stats.mean:+.2f} %"
+            )
+            ax_speed.legend(loc="best")
+        ax_speed.set_ylabel(r"$U(t)$ [m/s]")
+        _stream_time_label(ax_speed)
+
+        _zero_panel(ax_zero, campaign, spec)
+    return fig
+
+
+def _zero_panel(ax: Axes, campaign, spec) -> None:
+    balance = campaign.config.instruments.balance
+    zeros = [z for z in campaign.zero_runs() if not campaign.run_problems(z.run)]
+    if balance is None or not zeros:
+        ax.set_title("Balance zeros: no readable wind-off zero runs")
+        return
+    start = pd.Timestamp(spec.start)
+    zeros.sort(key=lambda z: abs((pd.Timestamp(z.start) - start).total_seconds()))
+    zeros = sorted(zeros[:_NEAREST_ZEROS], key=lambda z: z.start)
+    used = set(spec.zero)
+    times, means, units = [], [], {}
+    for z in zeros:
+        stream = campaign.load_run(z.run).streams["balance"]
+        t = stream["time"].values
+        times.append(pd.Timestamp(z.start) + pd.to_timedelta(0.5 * (t[0] + t[-1]), unit="s"))
+        means.append([float(stream[c].values.mean()) for c in balance.channels])
+        units = {c: stream[c].attrs.get("units", "") for c in balance.channels}
+    means = np.array(means)
+    is_used = np.array([z.run in used for z in zeros])
+    # Channels differ in size; each is shown as its departure from its own first zero.
+    relative = means - means[0]
+    for j, channel in enumerate(balance.channels):
+        style = HOUSE_STYLE[j % len(HOUSE_STYLE)]
+        unit = f" [{units[channel]}]" if units.get(channel) else ""
+        ax.plot(
+            times,
+            relative[:, j],
+            color=style.color,
+            linestyle=style.linestyle,
+            marker=style.marker,
+            markerfacecolor="none",
+            label=f"{channel}{unit}",
+        )
+        ax.plot(
+            np.array(times, dtype=object)[is_used],
+            relative[is_used, j],
+            color=style.color,
+            marker=style.marker,
+            linestyle="none",
+        )
+    ax.axvline(start, color=_THEORY_COLOR, linestyle="--", linewidth=1.0, label=f"run {spec.run}")
+    ax.set_title("Balance wind-off zeros (filled: those the run uses)")
+    ax.set_ylabel("mean signal minus the first zero's")
+    ax.set_xlabel("clock time")
+    locator = mpl.dates.AutoDateLocator()
+    ax.xaxis.set_major_locator(locator)
+    ax.xaxis.set_major_formatter(mpl.dates.ConciseDateFormatter(locator))
+    ax.legend(loc="best", ncols=2)
+
+
+def _other_split(by: str) -> str:
+    return "speed" if by == "config" else "config"
+
+
+def plot_comparison(
+    results, name: str = "CL", *, by: str = "config", ax: Axes | None = None
+) -> Axes:
+    """Compare groups of runs — configurations, speeds or Reynolds numbers — on one coefficient.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results.
+    name : str
+        The coefficient against α (as :func:`plot_coefficient`).
+    by : str
+        ``"config"``, ``"speed"`` or ``"re"``: one house style per group.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; a new one when None.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    Each group's runs are joined in order of α by the group's line style, one line per speed
+    (grouping by configuration) or per configuration (grouping by speed or Re), so runs of
+    another sweep are never joined across; bars are ±2u (k = 2). Wall-corrected values only.
+    """
+    ds = results_dataset(results)
+    _check_name(ds, name)
+    k = COVERAGE_FACTOR
+    x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
+    y, uy = _values(ds, name), _values(ds, f"u_{name}")
+    inner = dict(group_runs(ds, _other_split(by)))
+    with _house():
+        ax = _new_axes(ax)
+        for i, (label, idx) in enumerate(group_runs(ds, by)):
+            style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
+            ax.errorbar(
+                x[idx],
+                y[idx],
+                xerr=k * ux[idx],
+                yerr=k * uy[idx],
+                color=style.color,
+                marker=style.marker,
+                linestyle="none",
+                elinewidth=0.8,
+                label=label,
+                zorder=3,
+            )
+            for members in inner.values():
+                part = np.intersect1d(idx, members)
+                part = part[np.argsort(x[part])]
+                if part.size > 1:
+                    ax.plot(
+                        x[part],
+                        y[part],
+                        color=style.color,
+                        linestyle=style.linestyle,
+                        linewidth=1.0,
+                        zorder=2,
+                    )
+        ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
+        ax.set_ylabel(COEFFICIENT_LABELS[name])
+        title = {"config": "configuration", "speed": "tunnel speed", "re": "Reynolds number"}[by]
+        ax.set_title(f"{name} by {title}")
+        ax.legend(title=_K_TEXT, loc="best")
+    return ax
+
+
+def representative_runs(results, count: int = 3) -> list[str]:
+    """Runs that span the campaign's spin ratios, for Cp figures and budgets.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+    count : int
+        How many runs at most.
+
+    Returns
+    -------
+    list of str
+        Run ids with surface pressure data (any run when none has it), unflagged ones preferred,
+        closest to evenly spaced quantiles of |α| (smallest, middle, largest for three).
+    """
+    ds = results_dataset(results)
+    runs = np.asarray(ds["run"].values, dtype=object)
+    alpha = np.abs(_values(ds, "alpha"))
+    ok = np.isfinite(alpha)
+    if "Cp" in ds:
+        has_cp = np.isfinite(np.asarray(ds["Cp"].values, dtype=float)).any(axis=1)
+        if (ok & has_cp).any():
+            ok &= has_cp
+    if "flags" in ds:
+        clean = np.array([not f for f in ds["flags"].values])
+        if (ok & clean).sum() >= min(count, ok.sum()):
+            ok &= clean
+    candidates = np.flatnonzero(ok)
+    if candidates.size == 0:
+        return []
+    targets = np.quantile(alpha[candidates], np.linspace(0.0, 1.0, count))
+    chosen: list[str] = []
+    for target in targets:
+        free = [i for i in candidates if runs[i] not in chosen]
+        if not free:
+            break
+        best = min(free, key=lambda i: abs(alpha[i] - target))
+        chosen.append(str(runs[best]))
+    return chosen
+
+
+def _save(fig: Figure, path: Path) -> Path:
+    with store.atomic_path(path) as tmp:
+        fig.savefig(tmp, format="png", dpi=200)
+    return path
+
+
+def save_standard_figures(results, out_dir) -> list[Path]:
+    """Write the standard figures to ``out_dir``/figures/*.png (200 dpi, each atomically).
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+    out_dir : str or path-like
+        The output folder; figures/ is made inside it.
+
+    Returns
+    -------
+    list of pathlib.Path
+        ``<X>_alpha.png`` for each of CL, CD, CM, C_power, L_D, CL_p, CD_p with finite values;
+        ``<X>_by_speed.png`` and ``<X>_by_re.png`` for CL and CD when the campaign ran more than
+        one speed; ``cp_<run>.png`` for the :func:`representative_runs`.
+    """
+    ds = results_dataset(results)
+    folder = Path(out_dir) / "figures"
+    written: list[Path] = []
+    present = [
+        n for n in ("CL", "CD", "CM", "C_power", "L_D", "CL_p", "CD_p") if _has_values(ds, n)
+    ]
+    for name in present:
+        ax = plot_coefficient(ds, name)
+        written.append(_save(ax.figure, folder / f"{name}_alpha.png"))
+    if len(group_runs(ds, "speed")) > 1:
+        for name in [n for n in ("CL", "CD") if n in present]:
+            for by in ("speed", "re"):
+                ax = plot_comparison(ds, name, by=by)
+                written.append(_save(ax.figure, folder / f"{name}_by_{by}.png"))
+    if "Cp" in ds:
+        for run in representative_runs(ds):
+            ax = plot_cp(ds, run)
+            written.append(_save(ax.figure, folder / f"cp_{run}.png"))
+    return written
+
+
+def _has_values(ds: xr.Dataset, name: str) -> bool:
+    return name in ds and bool(np.isfinite(_values(ds, name)).any())
