@@ -359,7 +359,7 @@ def _only_input_error(tmp_path, data: bytes):
 
 
 @settings(
-    max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+    max_examples=600, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
 @given(ops=_OPS)
 def test_mutated_csv_only_raises_input_error(tmp_path, ops):
@@ -367,7 +367,7 @@ def test_mutated_csv_only_raises_input_error(tmp_path, ops):
 
 
 @settings(
-    max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+    max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
 @given(data=st.binary(max_size=300))
 def test_random_bytes_only_raise_input_error(tmp_path, data):
