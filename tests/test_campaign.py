@@ -1,22 +1,23 @@
 """tunnelred.campaign: failure isolation, parallel executors, the per-run cache, interruption.
 
-The campaigns are small (conftest's fixture: a zero, a spin tare and two data runs, one of them
-using the tare). Which runs a change must re-reduce is worked out here from runs.csv with pandas,
-independently of the engine. Executors are compared with xarray.testing.assert_identical.
+The campaign is a small synthetic one (tunnelred.synth): three zeros, three spin tares and five
+data runs at one speed, one of them with a pressure log, the last three repeats of one set point.
+Which runs a change must re-reduce is worked out here from runs.csv with pandas, independently of
+the engine. Executors are compared with xarray.testing.assert_identical.
 """
 
 from __future__ import annotations
 
 import pickle
-import shutil
 import sys
+from dataclasses import replace
 
 import pandas as pd
 import pytest
 import xarray as xr
 
 from tunnelred import campaign as engine
-from tunnelred import reduction
+from tunnelred import reduction, synth
 from tunnelred.reduction import RunResult
 
 OUTPUT_FILES = {
@@ -26,6 +27,31 @@ OUTPUT_FILES = {
     "failures.csv",
     "budgets.csv",
 }
+
+
+DATA_RUNS = ["R001", "R002", "R003", "R004", "R005"]
+
+
+@pytest.fixture
+def campaign_dir(tmp_path):
+    demo = synth.demo_spec()
+    spec = replace(
+        demo,
+        configurations=demo.configurations[:1],
+        speeds=(9.0,),
+        spin_ratios_up=(0.0, 1.0, 2.0),
+        spin_ratios_down=(),
+        tare_rpms=(1000.0, 3000.0, 4000.0),
+        repeat_point=(demo.configurations[0].label, 9.0, 2.0),
+        repeat_count=2,
+        faults=(),
+        pressure_speeds=(9.0,),
+        pressure_spin_ratios=(2.0,),
+        data_duration=2.0,
+        wind_off_duration=1.0,
+    )
+    synth.make_campaign(tmp_path / "campaign", spec)
+    return tmp_path / "campaign"
 
 
 @pytest.fixture
@@ -77,15 +103,14 @@ def _without_time(ds):
 def test_serial_reduces_every_data_run(campaign_dir, tmp_path):
     out = tmp_path / "out"
     res = _reduce(campaign_dir, out)
-    assert res.dataset["run"].values.tolist() == ["d1", "d2"]  # zero and tare runs are inputs
-    assert (res.reduced, res.from_cache, res.failed) == (2, 0, 0)
+    assert res.dataset["run"].values.tolist() == DATA_RUNS  # zero and tare runs are inputs
+    assert (res.reduced, res.from_cache, res.failed) == (5, 0, 0)
     assert OUTPUT_FILES <= {p.name for p in out.iterdir()}
     assert (out / "figures").is_dir()
     assert set(res.outputs) == OUTPUT_FILES
     assert res.flagged == sum(1 for f in res.dataset["flags"].values if f)
     text = res.summary()
-    assert "reduced  2 (2 now, 0 from cache)" in text and str(out) in text
-    assert "<table" in res._repr_html_() or res.flagged == 0
+    assert "reduced  5 (5 now, 0 from cache)" in text and str(out) in text
 
 
 def test_process_pool_identical_to_serial(campaign_dir):
@@ -110,39 +135,40 @@ def test_dask_missing_says_how_to_install(campaign_dir, monkeypatch):
 
 def test_unchanged_rerun_reduces_nothing(campaign_dir, tmp_path, calls):
     first = _reduce(campaign_dir, tmp_path)
-    assert sorted(calls) == ["d1", "d2"]
+    assert sorted(calls) == DATA_RUNS
     calls.clear()
     again = _reduce(campaign_dir, tmp_path)
     assert calls == []
-    assert (again.reduced, again.from_cache) == (2, 2)
+    assert (again.reduced, again.from_cache) == (5, 5)
     xr.testing.assert_identical(_without_time(again.dataset), _without_time(first.dataset))
 
 
-@pytest.mark.parametrize("log, run", [("logs/d2_all.csv", "d2"), ("logs/t1_bal.csv", "t1")])
+@pytest.mark.parametrize(
+    "log, run",
+    [
+        ("logs/R002_balance.csv", "R002"),  # a data run's own log
+        ("logs/R003_pressure.csv", "R003"),
+        ("logs/T001_balance.csv", "T001"),  # a spin tare: the spinning data runs use it
+        ("logs/Z001_balance.csv", "Z001"),  # a zero only the tares use
+        ("logs/Z003_balance.csv", "Z003"),  # the post-zero of every data run
+    ],
+)
 def test_changed_log_rereduces_the_runs_that_use_it(campaign_dir, tmp_path, calls, log, run):
     _reduce(campaign_dir, tmp_path)
     calls.clear()
     _nudge(campaign_dir / log)
     res = _reduce(campaign_dir, tmp_path)
     expected = _users_of(campaign_dir, run)
-    assert expected and expected != {"d1", "d2"}  # the change concerns some runs, not all
+    assert expected  # every log here is used by some data run
     assert sorted(calls) == sorted(expected)
-    assert res.from_cache == 2 - len(expected)
-
-
-def test_changed_zero_log_rereduces_every_run_using_it(campaign_dir, tmp_path, calls):
-    _reduce(campaign_dir, tmp_path)
-    calls.clear()
-    _nudge(campaign_dir / "logs/z1_bal.csv")
-    _reduce(campaign_dir, tmp_path)
-    assert sorted(calls) == sorted(_users_of(campaign_dir, "z1")) == ["d1", "d2"]
+    assert res.from_cache == len(DATA_RUNS) - len(expected)
 
 
 def test_fresh_rereduces_all_and_rewrites_cache(campaign_dir, tmp_path, calls):
     _reduce(campaign_dir, tmp_path)
     calls.clear()
     res = _reduce(campaign_dir, tmp_path, fresh=True)
-    assert sorted(calls) == ["d1", "d2"] and res.from_cache == 0
+    assert sorted(calls) == DATA_RUNS and res.from_cache == 0
     calls.clear()
     _reduce(campaign_dir, tmp_path)
     assert calls == []
@@ -151,74 +177,87 @@ def test_fresh_rereduces_all_and_rewrites_cache(campaign_dir, tmp_path, calls):
 def test_corrupt_cache_entry_is_a_miss(campaign_dir, tmp_path, calls):
     _reduce(campaign_dir, tmp_path)
     entries = sorted((tmp_path / ".cache").glob("*.pkl"))
-    assert len(entries) == 2
+    assert len(entries) == len(DATA_RUNS)
     entries[0].write_bytes(b"not a pickle")
+    entries[1].write_bytes(entries[1].read_bytes()[:100])  # truncated
     calls.clear()
     res = _reduce(campaign_dir, tmp_path)
-    assert len(calls) == 1 and res.reduced == 2
-    pickle.loads(entries[0].read_bytes())  # rewritten whole
+    assert len(calls) == 2 and res.reduced == len(DATA_RUNS)
+    for entry in entries[:2]:
+        assert isinstance(pickle.loads(entry.read_bytes()).result, RunResult)  # rewritten
 
 
 def test_monte_carlo_setting_is_part_of_the_key(campaign_dir):
     from tunnelred.readers import open_campaign
 
     camp = open_campaign(campaign_dir, check_logs=False)
-    assert engine.cache_key(camp, "d1") != engine.cache_key(camp, "d1", monte_carlo=200)
-    assert engine.cache_key(camp, "d1") != engine.cache_key(camp, "d2")
+    assert engine.cache_key(camp, "R002") != engine.cache_key(camp, "R002", monte_carlo=200)
+    assert engine.cache_key(camp, "R002") != engine.cache_key(camp, "R003")
 
 
-def _add_copy_of_d2(campaign_dir):
-    shutil.copy(campaign_dir / "logs/d2_all.csv", campaign_dir / "logs/d3_all.csv")
-    runs = (campaign_dir / "runs.csv").read_text(encoding="utf-8")
-    row = runs.strip().splitlines()[-1].replace("d2", "d3")
-    (campaign_dir / "runs.csv").write_text(runs + row + "\n", encoding="utf-8")
+def _runs_csv_line(campaign_dir, run):
+    table = pd.read_csv(campaign_dir / "runs.csv", dtype=str)
+    return int(table.index[table.run == run][0]) + 2  # the header is line 1
 
 
 def test_broken_runs_fail_alone_with_file_and_line(campaign_dir, tmp_path, calls):
-    _add_copy_of_d2(campaign_dir)
-    # d1: a cell that is not a number on line 5 of its tunnel log (found when it is loaded).
-    tunnel = campaign_dir / "logs/d1_tun.csv"
+    # R002: a cell that is not a number on line 5 of its tunnel log (found when it is loaded).
+    tunnel = campaign_dir / "logs/R002_tunnel.csv"
     lines = tunnel.read_text(encoding="utf-8").splitlines()
     cells = lines[4].split(",")
     cells[1] = "abc"
     lines[4] = ",".join(cells)
     tunnel.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    # d2: its log is missing (found when the campaign is opened; the run is never reduced).
-    (campaign_dir / "logs/d2_all.csv").unlink()
+    # R004: its balance log is missing (found when the campaign is opened: never reduced).
+    (campaign_dir / "logs/R004_balance.csv").unlink()
 
     res = _reduce(campaign_dir, tmp_path)
-    assert res.dataset["run"].values.tolist() == ["d3"]
-    assert (res.reduced, res.failed) == (1, 2)
-    assert "d2" not in calls
+    assert res.dataset["run"].values.tolist() == ["R001", "R003", "R005"]
+    assert (res.reduced, res.failed) == (3, 2)
+    assert "R004" not in calls
     failures = pd.read_csv(tmp_path / "failures.csv")
     assert list(failures.columns) == ["run", "file", "line", "reason"]
-    d1 = failures[failures.run == "d1"]
-    assert (d1.file == "logs/d1_tun.csv").any()
-    assert 5 in d1.line.tolist()
-    d2 = failures[failures.run == "d2"]
-    # The missing file is reported where it is named: runs.csv, d2's row (line 5).
-    assert set(d2.file) == {"runs.csv"} and set(d2.line) == {5}
-    assert d2.reason.str.contains("logs/d2_all.csv").all()
+    bad_cell = failures[failures.run == "R002"]
+    assert bad_cell[["file", "line"]].values.tolist() == [["logs/R002_tunnel.csv", 5]]
+    missing = failures[failures.run == "R004"]
+    # The missing file is reported where it is named: R004's row of runs.csv.
+    assert set(missing.file) == {"runs.csv"}
+    assert set(missing.line) == {_runs_csv_line(campaign_dir, "R004")}
+    assert missing.reason.str.contains("logs/R004_balance.csv").all()
     text = res.summary()
-    assert "failed   2" in text and "logs/d1_tun.csv:5" in text
+    assert "failed   2" in text and "logs/R002_tunnel.csv:5" in text
 
 
 def test_internal_error_is_isolated_and_not_cached(campaign_dir, tmp_path, monkeypatch):
     real = reduction.reduce_run
 
-    def fails_on_d1(campaign, run_id, **kwargs):
-        if run_id == "d1":
+    def fails_on_r002(campaign, run_id, **kwargs):
+        if run_id == "R002":
             raise ZeroDivisionError("float division by zero")
         return real(campaign, run_id, **kwargs)
 
-    monkeypatch.setattr(reduction, "reduce_run", fails_on_d1)
+    monkeypatch.setattr(reduction, "reduce_run", fails_on_r002)
     res = _reduce(campaign_dir, tmp_path)
-    assert res.dataset["run"].values.tolist() == ["d2"]
-    reason = res.failures.set_index("run").loc["d1", "reason"]
+    assert "R002" not in res.dataset["run"].values and res.reduced == 4
+    reason = res.failures.set_index("run").loc["R002", "reason"]
     assert reason == "internal error: ZeroDivisionError: float division by zero"
     monkeypatch.setattr(reduction, "reduce_run", real)
     again = _reduce(campaign_dir, tmp_path)
-    assert (again.reduced, again.from_cache, again.failed) == (2, 1, 0)
+    assert (again.reduced, again.from_cache, again.failed) == (5, 4, 0)
+
+
+def test_repeat_disagreement_flags_the_repeats(campaign_dir):
+    # R003, R004, R005 repeat one set point. Offset R005's lift channel by 0.05 V: with the
+    # synthetic calibration (24 N/V on N2) that is 1.2 N, about 0.25 in CL at q d b near 4.6 N,
+    # some ten times u(CL).
+    log = campaign_dir / "logs/R005_balance.csv"
+    table = pd.read_csv(log)
+    table["N2 [V]"] += 0.05
+    table.to_csv(log, index=False)
+    ds = _reduce(campaign_dir, None).dataset
+    raised = ds["flag_repeat_disagreement"].to_series()
+    assert raised["R005"] and not raised["R001"] and not raised["R002"]
+    assert "repeat_disagreement" in ds["flags"].sel(run="R005").item()
 
 
 def _interrupt_after(monkeypatch, k):
@@ -234,38 +273,38 @@ def _interrupt_after(monkeypatch, k):
     monkeypatch.setattr(reduction, "reduce_run", stops)
 
 
-def _check_cache_whole(cache):
-    for entry in cache.glob("*"):
-        assert entry.suffix == ".pkl", entry.name  # no temporary file left behind
-        outcome = pickle.loads(entry.read_bytes())
-        assert isinstance(outcome.result, RunResult)
+def _check_cache_whole(cache, count):
+    entries = list(cache.iterdir())
+    assert all(e.suffix == ".pkl" for e in entries)  # no temporary file left behind
+    assert len(entries) == count
+    for entry in entries:
+        assert isinstance(pickle.loads(entry.read_bytes()).result, RunResult)
 
 
 def test_interrupt_leaves_no_partial_output(campaign_dir, tmp_path, monkeypatch):
     out = tmp_path / "out"
-    _interrupt_after(monkeypatch, 1)
+    _interrupt_after(monkeypatch, 2)
     with pytest.raises(KeyboardInterrupt):
         _reduce(campaign_dir, out)
     assert [p.name for p in out.iterdir()] == [".cache"]
-    assert len(list((out / ".cache").iterdir())) == 1
-    _check_cache_whole(out / ".cache")
+    _check_cache_whole(out / ".cache", 2)
 
 
 def test_interrupt_keeps_previous_outputs(campaign_dir, tmp_path, monkeypatch):
     _reduce(campaign_dir, tmp_path)
     before = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
-    _interrupt_after(monkeypatch, 1)
+    _interrupt_after(monkeypatch, 2)
     with pytest.raises(KeyboardInterrupt):
         _reduce(campaign_dir, tmp_path, fresh=True)
     after = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
     assert after == before
-    _check_cache_whole(tmp_path / ".cache")
+    _check_cache_whole(tmp_path / ".cache", len(DATA_RUNS))
 
 
 def test_run_ids_select_data_runs(campaign_dir):
-    res = _reduce(campaign_dir, None, run_ids=["d2"])
-    assert res.dataset["run"].values.tolist() == ["d2"] and res.outputs == {}
+    res = _reduce(campaign_dir, None, run_ids=["R002"])
+    assert res.dataset["run"].values.tolist() == ["R002"] and res.outputs == {}
     with pytest.raises(ValueError, match="zero or tare"):
-        _reduce(campaign_dir, None, run_ids=["z1"])
+        _reduce(campaign_dir, None, run_ids=["Z001"])
     with pytest.raises(ValueError, match="no run"):
         _reduce(campaign_dir, None, run_ids=["nope"])

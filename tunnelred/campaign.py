@@ -491,9 +491,10 @@ def reduce_campaign(
     selected = _select(campaign, run_ids)
 
     failures: dict[str, list[dict]] = {}
-    for rid in campaign.unreadable_runs:
-        if run_ids is None or rid in selected:
-            failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
+    # A row too broken to say its kind may be a data run: it is listed with the failures.
+    unreadable = list(campaign.unreadable_runs) if run_ids is None else []
+    for rid in unreadable:
+        failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
     keys: dict[str, str] = {}
     for rid in selected:
         problems = campaign.run_problems(rid)
@@ -544,7 +545,7 @@ def reduce_campaign(
     ds = store.results_to_dataset(
         results, campaign=campaign, methods=_methods(campaign, monte_carlo)
     )
-    failure_rows = [row for rid in failures for row in failures[rid]]
+    failure_rows = [row for rid in [*selected, *unreadable] for row in failures.get(rid, [])]
     failures_table = _failures_table(failure_rows)
     budgets = _budgets_table(results)
 
