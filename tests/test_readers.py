@@ -380,3 +380,37 @@ def test_random_bytes_only_raise_input_error(tmp_path, data):
 @given(prefix=st.binary(max_size=40))
 def test_random_bytes_after_a_good_header(tmp_path, prefix):
     _only_input_error(tmp_path, HEADER.encode() + prefix)
+
+
+def test_tare_of_another_configuration(campaign_dir):
+    problem = row_problem(campaign_dir, "t1,tare,A", "t1,tare,B", "d1")
+    assert (problem.line, problem.column) == (4, "tare")
+    assert "configuration 'B'" in problem.found
+
+
+def test_unknown_runs_column_concerns_every_run(campaign_dir):
+    edit_runs(campaign_dir, ",notes\n", ",operator\n")
+    campaign = open_campaign(campaign_dir)
+    (problem,) = campaign.problems
+    assert (problem.file, problem.line, problem.column) == ("runs.csv", 1, "operator")
+    assert all(problem in campaign.run_problems(r) for r in campaign.runs)
+
+
+def test_header_problems_found_without_parsing(campaign_dir):
+    path = campaign_dir / "logs/d1_tun.csv"
+    path.write_text(path.read_text().replace("RH [%]", "RH [V]"))
+    (problem,) = open_campaign(campaign_dir, check_logs=False).problems
+    assert (problem.file, problem.line, problem.column) == ("logs/d1_tun.csv", 1, "RH")
+
+
+def test_missing_folder(tmp_path):
+    with pytest.raises(InputError):
+        open_campaign(tmp_path / "nowhere")
+
+
+def test_campaign_pickles_for_worker_processes(campaign_dir):
+    import pickle
+
+    campaign = pickle.loads(pickle.dumps(open_campaign(campaign_dir, check_logs=False)))
+    assert campaign.load_run("d2").streams["tunnel"].sizes["time"] == 50
+    assert len(campaign.file_hashes["logs/d2_all.csv"]) == 64

@@ -130,7 +130,7 @@ def _add_demo(subparsers) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("dest", type=Path, help="folder to write (created; must be empty)")
-    p.add_argument("--seed", type=int, default=0, help="random seed of the noise (default 0)")
+    p.add_argument("--seed", type=int, help="random seed of the noise (default: the demo's own)")
     p.add_argument("--force", action="store_true", help="write into a non-empty DEST")
     p.set_defaults(run=_run_demo)
 
@@ -143,7 +143,10 @@ def _run_demo(args) -> int:
         return _fail_usage(f"{dest} is not empty; choose another folder or add --force")
     from .synth import write_demo_campaign  # imported here: only this command needs it
 
-    write_demo_campaign(dest, seed=args.seed)
+    if args.seed is None:
+        write_demo_campaign(dest)
+    else:
+        write_demo_campaign(dest, seed=args.seed)
     print(f"demo campaign written to {dest}")
     return 0
 
