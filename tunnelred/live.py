@@ -1,0 +1,1023 @@
+"""Live mode: reduce and flag each run while the test is still running.
+
+:func:`watch` polls a campaign folder that the data acquisition is writing into. A run is
+*complete* when its row is in runs.csv (whole lines only), every log it names and every log of
+its zero and tare runs exists, ends with a line break, and none of them (nor campaign.toml and
+runs.csv) has changed size or modification time for ``settle`` seconds. Complete inputs are
+copied into a snapshot folder, ``OUT/.live/campaign``, which holds only complete runs; the
+snapshot is reduced by :func:`tunnelred.campaign.reduce_campaign`, whose per-run cache (keyed on
+each run's inputs and those of its zero and tare runs) reduces only the runs that are new or
+whose inputs changed, and which writes OUT atomically. The engine never reads a file the
+acquisition is still writing: it reads the snapshot, and a file is copied into it only when it
+has settled and has not changed while it was copied.
+
+The state of the watch (:class:`Status`) goes to a view after every change: :class:`TerminalView`
+(redrawn in place on a terminal, appended lines otherwise), :class:`LiveView` for a notebook, or
+any object with ``update(status)`` and ``close()``. It is also written to
+``OUT/.live/status.json`` so a notebook can follow a watch running elsewhere, and the lift and
+drag so far are drawn in ``OUT/figures/live.png``.
+
+The folder layout and the rule are described in docs/live.md.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import re
+import shutil
+import sys
+import threading
+import time
+from dataclasses import asdict, dataclass, replace
+from datetime import datetime
+from pathlib import Path
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from . import plotting, quality, store
+from .campaign import reduce_campaign
+from .config import load_config
+from .errors import InputError, Problem
+from .readers import STREAMS
+
+__all__ = [
+    "DEFAULT_SETTLE",
+    "DEFAULT_POLL",
+    "RunLine",
+    "Status",
+    "TerminalView",
+    "LiveView",
+    "render_lines",
+    "read_status",
+    "live_figure",
+    "watch",
+    "main_watch",
+]
+
+#: Seconds a file must keep its size and modification time to count as finished. [s]
+DEFAULT_SETTLE = 2.0
+#: Seconds between two looks at the campaign folder. [s]
+DEFAULT_POLL = 0.5
+
+_LIVE_DIR = ".live"
+_SNAPSHOT_DIR = "campaign"
+_STATUS_FILE = "status.json"
+_FIGURE_FILE = "live.png"
+# Rows of the latest runs the views show.
+_LATEST = 12
+_INPUT_FILES = ("campaign.toml", "runs.csv")
+_NEWLINE = re.compile(rb"\r\n|\r|\n")
+
+# Run states, in the order the counts list them.
+WAITING, TRUNCATED, COMPLETE, REDUCED, FLAGGED, FAILED = (
+    "waiting",
+    "truncated",
+    "complete",
+    "reduced",
+    "flagged",
+    "failed",
+)
+
+
+# ---------------------------------------------------------------------------------------------
+# The state a view shows
+
+
+@dataclass(frozen=True)
+class RunLine:
+    """One data run as the views show it.
+
+    ``state`` is one of waiting, truncated, complete (queued for the engine), reduced, flagged
+    or failed; ``reason`` says why it waits, which flags it raised and why, or why it failed.
+    The coefficients are NaN until the run is reduced.
+    """
+
+    run: str
+    state: str
+    config: str = ""
+    alpha: float = math.nan
+    CL: float = math.nan
+    CD: float = math.nan
+    u_CL: float = math.nan
+    reason: str = ""
+
+
+@dataclass(frozen=True)
+class Status:
+    """Everything a view shows: the data runs in runs.csv order and what the watch is doing.
+
+    ``fresh`` lists the data runs whose inputs were new or changed at the latest reduction
+    (the engine reduced them; the others came from its cache); ``reductions`` counts the
+    engine calls so far. ``problems`` holds what stops the whole campaign (campaign.toml or
+    runs.csv unusable). ``note`` is one line on what the watch is doing now.
+    """
+
+    title: str
+    campaign: str
+    out: str
+    runs: tuple[RunLine, ...] = ()
+    fresh: tuple[str, ...] = ()
+    reductions: int = 0
+    problems: tuple[str, ...] = ()
+    note: str = ""
+    updated: str = ""
+    stopped: bool = False
+
+    def count(self) -> dict[str, int]:
+        """Data runs by state: complete (all inputs in), reduced, flagged, failed, waiting.
+
+        ``complete`` counts every run whose inputs are all in (queued, reduced, flagged or
+        failed); ``reduced`` those with results (flagged ones included); ``waiting`` those still
+        being written, truncated ones included.
+        """
+        states = [r.state for r in self.runs]
+        done = (COMPLETE, REDUCED, FLAGGED, FAILED)
+        return {
+            "complete": sum(s in done for s in states),
+            "reduced": sum(s in (REDUCED, FLAGGED) for s in states),
+            "flagged": states.count(FLAGGED),
+            "failed": states.count(FAILED),
+            "waiting": sum(s in (WAITING, TRUNCATED) for s in states),
+        }
+
+    def to_json(self) -> str:
+        return json.dumps(asdict(self), indent=1, default=_json_default)
+
+    @classmethod
+    def from_json(cls, text: str) -> Status:
+        record = json.loads(text)
+        runs = tuple(
+            RunLine(**{k: (math.nan if v is None else v) for k, v in r.items()})
+            for r in record.pop("runs")
+        )
+        return cls(
+            runs=runs,
+            **{k: tuple(v) if isinstance(v, list) else v for k, v in record.items()},
+        )
+
+
+def _json_default(value):
+    raise TypeError(f"not JSON: {value!r}")
+
+
+def _finite_or_none(x: float):
+    return x if math.isfinite(x) else None
+
+
+def read_status(out_dir) -> Status | None:
+    """The latest status a watch wrote into ``out_dir`` (None when no watch has written one).
+
+    Parameters
+    ----------
+    out_dir : str or path-like
+        The output folder of :func:`watch`.
+
+    Returns
+    -------
+    Status or None
+    """
+    path = Path(out_dir) / _LIVE_DIR / _STATUS_FILE
+    try:
+        return Status.from_json(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        return None
+
+
+def _write_status(out_dir: Path, status: Status) -> None:
+    record = asdict(status)
+    record["runs"] = [
+        {k: _finite_or_none(v) if isinstance(v, float) else v for k, v in r.items()}
+        for r in record["runs"]
+    ]
+    text = json.dumps(record, indent=1) + "\n"
+    store.atomic_write_bytes(out_dir / _LIVE_DIR / _STATUS_FILE, text.encode("utf-8"))
+
+
+# ---------------------------------------------------------------------------------------------
+# Text rendering, shared by the terminal and plain-line views
+
+_MARK = "!!"  # the marker of a flagged or failed run, readable without colour or video
+_INVERSE, _BOLD, _RED, _RESET = "\x1b[7m", "\x1b[1m", "\x1b[31m", "\x1b[0m"
+
+
+def _number(x: float, width: int = 8, digits: int = 3) -> str:
+    return f"{x:{width}.{digits}f}" if math.isfinite(x) else f"{'–':>{width}}"
+
+
+def _run_text(line: RunLine) -> str:
+    mark = _MARK if line.state in (FLAGGED, FAILED) else "  "
+    state = line.state.upper() if line.state in (FLAGGED, FAILED, TRUNCATED) else line.state
+    text = (
+        f"{mark} {line.run:<10} {line.config:<8} {_number(line.alpha)} {_number(line.CL)} "
+        f"{_number(line.CD)} {_number(line.u_CL, 7, 4)}  {state:<9}"
+    )
+    return f"{text} {line.reason}" if line.reason else text
+
+
+def _counts_text(status: Status) -> str:
+    c = status.count()
+    return (
+        f"data runs: {c['complete']} complete, {c['reduced']} reduced, {c['flagged']} flagged, "
+        f"{c['failed']} failed, {c['waiting']} waiting"
+    )
+
+
+_HEADER = (
+    f"   {'run':<10} {'config':<8} {'alpha':>8} {'CL':>8} {'CD':>8} {'u(CL)':>7}  {'state':<9}"
+    " reason"
+)
+
+
+def render_lines(status: Status, *, latest: int = _LATEST) -> list[tuple[str, str]]:
+    """The lines of the live view, each with its emphasis.
+
+    Parameters
+    ----------
+    status : Status
+    latest : int
+        How many of the most recent data runs to list (every flagged, failed, truncated or
+        waiting one is listed besides).
+
+    Returns
+    -------
+    list of (str, str)
+        The text of each line and its kind: ``"title"``, ``"header"``, ``"run"``, ``"flag"``
+        (a flagged or failed run, or a truncated log: to be shown so that it cannot be missed),
+        ``"problem"`` or ``""``.
+
+    Examples
+    --------
+    >>> s = Status("demo", "camp", "out", runs=(RunLine("R1", "flagged", reason="spin_scatter"),))
+    >>> [kind for _, kind in render_lines(s)]
+    ['title', '', '', 'header', 'flag', '']
+    """
+    lines: list[tuple[str, str]] = [
+        (f"tunnelred watch: {status.title}", "title"),
+        (f"{status.campaign} -> {status.out}   (updated {status.updated or '-'})", ""),
+        (_counts_text(status), ""),
+    ]
+    lines += [(f"!! {p}", "problem") for p in status.problems]
+    done = [r for r in status.runs if r.state in (REDUCED, FLAGGED, FAILED, COMPLETE)]
+    shown = set(r.run for r in done[-latest:])
+    shown |= {r.run for r in status.runs if r.state in (FLAGGED, FAILED)}
+    pending = [r for r in status.runs if r.state in (WAITING, TRUNCATED)]
+    lines.append((_HEADER, "header"))
+    for r in status.runs:
+        if r.run in shown:
+            lines.append((_run_text(r), "flag" if r.state in (FLAGGED, FAILED) else "run"))
+    for r in pending:
+        lines.append((_run_text(r), "flag" if r.state == TRUNCATED else "run"))
+    if status.fresh:
+        lines.append((f"reduced at the latest update: {', '.join(status.fresh)}", ""))
+    lines.append((status.note, ""))
+    return lines
+
+
+class TerminalView:
+    """The live view on a text stream: redrawn in place on a terminal, appended lines otherwise.
+
+    On a terminal the frame is redrawn with ANSI cursor movements; a flagged or failed run and a
+    truncated log are in inverse video, marked ``!!`` and in red (the colour only adds to the
+    marker and the video). When the stream is not a terminal, each change is printed once as a
+    plain line (a run reduced, flagged, failed, waiting for a cut-off log), so the output reads
+    well in a log file.
+
+    Parameters
+    ----------
+    stream : text stream, optional
+        Default ``sys.stdout``.
+    tty : bool, optional
+        Draw in place; default: whether ``stream`` is a terminal.
+    """
+
+    def __init__(self, stream=None, *, tty: bool | None = None):
+        self.stream = stream if stream is not None else sys.stdout
+        self.tty = bool(tty if tty is not None else getattr(self.stream, "isatty", bool)())
+        self._drawn = 0
+        self._said: dict[str, tuple[str, str]] = {}
+        self._problems: tuple[str, ...] = ()
+
+    def update(self, status: Status) -> None:
+        if self.tty:
+            self._redraw(status)
+        else:
+            self._append(status)
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.tty and self._drawn:
+            self.stream.write("\x1b[?25h")  # the cursor, hidden while drawing
+            self.stream.flush()
+
+    def _redraw(self, status: Status) -> None:
+        size = shutil.get_terminal_size((100, 40))
+        lines = render_lines(status)
+        if len(lines) > size.lines - 1:
+            cut = len(lines) - (size.lines - 2)
+            lines = [*lines[: size.lines - 2], (f"… {cut} more lines (see OUT)", "")]
+        out = ["\x1b[?25l"]
+        if self._drawn:
+            out.append(f"\x1b[{self._drawn}F")
+        out.append("\x1b[J")
+        for text, kind in lines:
+            text = text[: size.columns - 1]
+            if kind in ("flag", "problem"):
+                text = f"{_INVERSE}{_BOLD}{_RED}{text}{_RESET}"
+            elif kind in ("title", "header"):
+                text = f"{_BOLD}{text}{_RESET}"
+            out.append(text + "\n")
+        self.stream.write("".join(out))
+        self._drawn = len(lines)
+
+    def _append(self, status: Status) -> None:
+        stamp = status.updated[11:19] if len(status.updated) >= 19 else status.updated
+        for problem in status.problems:
+            if problem not in self._problems:
+                print(f"[{stamp}] !! {problem}", file=self.stream)
+        self._problems = status.problems
+        for r in status.runs:
+            said = (r.state, r.reason)
+            if self._said.get(r.run) == said:
+                continue
+            if r.state != WAITING or r.reason != "":
+                print(f"[{stamp}] {_run_text(r).rstrip()}", file=self.stream)
+            self._said[r.run] = said
+        if status.stopped:
+            print(f"[{stamp}] {_counts_text(status)}; {status.note}", file=self.stream)
+
+
+class LiveView:
+    """The live view in a notebook cell: a table of the latest runs and the figure so far.
+
+    Calling :meth:`update` in a cell shows the view the first time and refreshes it in place
+    afterwards (an IPython display handle). With no argument it reads the status a watch last
+    wrote into ``out_dir`` (the watch may run in a thread of the notebook, or as
+    ``tunnelred watch`` elsewhere); :func:`watch` also accepts a LiveView as its ``view``.
+    IPython is imported only when :meth:`update` runs.
+
+    Parameters
+    ----------
+    out_dir : str or path-like
+        The output folder of the watch.
+
+    Examples
+    --------
+    >>> view = LiveView("out")  # doctest: +SKIP
+    >>> view.update()  # doctest: +SKIP
+    """
+
+    def __init__(self, out_dir):
+        self.out_dir = Path(out_dir)
+        self.status: Status | None = None
+        self._handle = None
+        self._image_handle = None
+
+    def update(self, status: Status | None = None) -> None:
+        from IPython.display import HTML, Image, display
+
+        self.status = status if status is not None else read_status(self.out_dir)
+        content = HTML(self._repr_html_())
+        if self._handle is None:
+            self._handle = display(content, display_id=True)
+        else:
+            self._handle.update(content)
+        figure = self.out_dir / "figures" / _FIGURE_FILE
+        if figure.is_file():
+            image = Image(data=figure.read_bytes(), format="png")
+            if self._image_handle is None:
+                self._image_handle = display(image, display_id=True)
+            else:
+                self._image_handle.update(image)
+
+    def close(self) -> None:
+        """Nothing to release; present so a LiveView can be a :func:`watch` view."""
+
+    def _repr_html_(self) -> str:
+        import html
+
+        status = self.status
+        if status is None:
+            return f"<p>no watch has written into <code>{html.escape(str(self.out_dir))}</code></p>"
+        parts = [
+            f"<p><b>{html.escape(status.title)}</b>: {html.escape(_counts_text(status))} "
+            f"(updated {html.escape(status.updated)})</p>"
+        ]
+        parts += [
+            f"<p style='background:#000;color:#fff'><b>!! {html.escape(p)}</b></p>"
+            for p in status.problems
+        ]
+        rows = []
+        for text, kind in render_lines(status)[3 + len(status.problems) :]:
+            if kind in ("header", ""):
+                continue
+            cell = html.escape(text)
+            if kind == "flag":
+                cell = f"<b style='background:#000;color:#fff'>{cell}</b>"
+            rows.append(f"<tr><td><pre style='margin:0'>{cell}</pre></td></tr>")
+        parts.append(
+            f"<table><tr><th><pre style='margin:0'>{html.escape(_HEADER)}</pre></th></tr>"
+            f"{''.join(rows)}</table>"
+        )
+        if status.note:
+            parts.append(f"<p>{html.escape(status.note)}</p>")
+        return "".join(parts)
+
+
+# ---------------------------------------------------------------------------------------------
+# The figure
+
+
+def live_figure(results) -> Figure:
+    """CL and CD against the spin ratio for the runs so far, flagged runs circled.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results (see :func:`tunnelred.plotting.results_dataset`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two Axes: CL with the potential-flow line −2πα, and CD; wall-corrected values with
+        expanded-uncertainty bars (k = 2), drawn by :func:`tunnelred.plotting.plot_coefficient`.
+    """
+    ds = plotting.results_dataset(results)
+    fig = Figure(figsize=(11.0, 4.4), layout="constrained")
+    axes = fig.subplots(1, 2)
+    flagged = np.array([bool(f) for f in ds["flags"].values]) if "flags" in ds else None
+    for ax, name in zip(axes, ("CL", "CD"), strict=True):
+        if name not in ds:
+            ax.set_title(f"no {name} yet")
+            continue
+        plotting.plot_coefficient(ds, name, ax=ax, uncorrected=False, theory=name == "CL")
+        if flagged is not None and flagged.any():
+            ax.plot(
+                ds["alpha"].values[flagged],
+                ds[name].values[flagged],
+                linestyle="none",
+                marker="o",
+                markersize=14,
+                markerfacecolor="none",
+                markeredgecolor="black",
+                markeredgewidth=1.5,
+                label="flagged run",
+                zorder=4,
+            )
+            legend = ax.get_legend()
+            ax.legend(title=legend.get_title().get_text() if legend else None)
+    return fig
+
+
+def _save_figure(results, out_dir: Path) -> None:
+    fig = live_figure(results)
+    with store.atomic_path(out_dir / "figures" / _FIGURE_FILE) as tmp:
+        fig.savefig(tmp, format="png", dpi=100)
+
+
+# ---------------------------------------------------------------------------------------------
+# The campaign folder as the acquisition writes it
+
+
+@dataclass(frozen=True)
+class _Row:
+    """One whole row of runs.csv: what the watch needs to know of it."""
+
+    run: str
+    kind: str
+    config: str
+    logs: tuple[str | None, ...]  # relative paths; None for one outside the folder
+    needs: tuple[str, ...]  # its zero and tare runs
+    lines: tuple[int, int]  # first and past-the-last physical line of the record
+    text: str  # the record as written, for noticing an edited row
+
+
+def _whole_lines(data: bytes) -> bytes:
+    """``data`` up to its last line break outside a quoted field (a row still being written,
+    or a quoted cell still open, is left out)."""
+    end = len(data)
+    while end > 0:
+        breaks = [m.end() for m in _NEWLINE.finditer(data, 0, end)]
+        if not breaks:
+            return b""
+        cut = breaks[-1]
+        if data.count(b'"', 0, cut) % 2 == 0:
+            return data[:cut]
+        end = cut - 1
+    return b""
+
+
+def _inside(root: Path, text: str) -> str | None:
+    """The log path as written (forward slashes), or None when it leads outside the folder.
+
+    The watch must never open a file outside the campaign folder; the readers report such a
+    path as a problem of the run.
+    """
+    rel = text.replace("\\", "/")
+    try:
+        inside = (root / rel).resolve().is_relative_to(root.resolve())
+    except (OSError, RuntimeError, ValueError):
+        inside = False
+    return rel if inside else None
+
+
+def _rows(root: Path, text: str) -> tuple[list[str], list[_Row]]:
+    """The physical lines of a runs.csv holding whole lines, and its rows that name a run."""
+    lines = re.findall(r"[^\r\n]*(?:\r\n|\r|\n)", text)
+    reader = csv.reader(io.StringIO(text, newline=""))
+    header = next(reader, None)
+    if header is None:
+        return lines, []
+    names = [cell.strip().lstrip("\ufeff") for cell in header]
+    rows = []
+    first = reader.line_num
+    for record in reader:
+        last = reader.line_num
+        cells = {n: c.strip() for n, c in zip(names, record, strict=False)}
+        run = cells.get("run", "")
+        if run:
+            logs = tuple(_inside(root, cells[f"{s}_log"]) for s in STREAMS if cells.get(f"{s}_log"))
+            needs = tuple(
+                s.strip()
+                for column in ("zero", "tare")
+                for s in cells.get(column, "").split(";")
+                if s.strip()
+            )
+            rows.append(
+                _Row(
+                    run=run,
+                    kind=cells.get("kind", ""),
+                    config=cells.get("config", ""),
+                    logs=logs,
+                    needs=needs,
+                    lines=(first, last),
+                    text="".join(lines[first:last]),
+                )
+            )
+        first = last
+    return lines, rows
+
+
+class _Changed(Exception):
+    """A file changed while it was being copied into the snapshot."""
+
+
+@dataclass(frozen=True)
+class _FileState:
+    state: str  # missing, empty, growing, cut, ready
+    key: tuple[int, int] | None = None  # size, mtime_ns
+    problem: Problem | None = None
+
+
+@dataclass
+class _Seen:
+    key: tuple[int, int]
+    since: float
+    tail: _FileState | None = None  # the verdict on a settled file, kept while it holds
+
+
+class _Watcher:
+    """One poll after another of a campaign folder; see :func:`watch` for the rule."""
+
+    def __init__(self, campaign_dir, out_dir, *, settle: float, workers: int, clock):
+        self.root = Path(campaign_dir).resolve()
+        self.out = Path(out_dir).resolve()
+        self.snapshot = self.out / _LIVE_DIR / _SNAPSHOT_DIR
+        self.settle = float(settle)
+        self.workers = workers
+        self.clock = clock
+        self.seen: dict[str, _Seen] = {}
+        self.copied: dict[str, tuple[int, int]] = {}
+        self.rows: list[_Row] = []
+        self.lines: list[str] = []
+        self.runs_key: tuple[int, int] | None = None
+        self.signatures: dict[str, tuple] = {}
+        self.results = None
+        self.tolerances = None
+        self.title = ""
+        self.problems: tuple[str, ...] = ()
+        self.fresh: tuple[str, ...] = ()
+        self.reductions = 0
+
+    # -- one file
+    def _look(self, rel: str, *, whole_lines: bool) -> _FileState:
+        path = self.root / rel
+        try:
+            st = path.stat()
+        except OSError:
+            self.seen.pop(rel, None)
+            return _FileState("missing")
+        key = (st.st_size, st.st_mtime_ns)
+        now = self.clock()
+        seen = self.seen.get(rel)
+        if seen is None or seen.key != key:
+            self.seen[rel] = seen = _Seen(key, now)
+        if st.st_size == 0:
+            return _FileState("empty", key)
+        if now - seen.since < self.settle:
+            return _FileState("growing", key)
+        if seen.tail is None:
+            seen.tail = self._verdict(rel, key) if whole_lines else _FileState("ready", key)
+        return seen.tail
+
+    def _verdict(self, rel: str, key: tuple[int, int]) -> _FileState:
+        """A settled log: ready, or cut off mid-line (its last line has no line break)."""
+        with open(self.root / rel, "rb") as f:
+            f.seek(-1, os.SEEK_END)
+            if f.read(1) in b"\r\n":
+                return _FileState("ready", key)
+            f.seek(0)
+            data = f.read()
+        number = len(_NEWLINE.findall(data)) + 1
+        last = data[data.rfind(b"\n") + 1 :].decode("utf-8", errors="replace")
+        problem = Problem(
+            rel,
+            number,
+            None,
+            "a line break at the end of the last line",
+            f"line {number} cut off mid-line: {last[:40]!r}, unchanged for {self.settle:g} s",
+            "The logger stopped while writing; complete the line or delete it.",
+        )
+        return _FileState("cut", key, problem)
+
+    def _copy(self, rel: str, key: tuple[int, int]) -> bool:
+        """Copy a settled file into the snapshot; False when it changed meanwhile."""
+        if self.copied.get(rel) == key:
+            return False
+        source, dest = self.root / rel, self.snapshot / rel
+        try:
+            st = dest.stat()
+            if (st.st_size, st.st_mtime_ns) == key:
+                # Left by an earlier watch of the same folder into the same OUT.
+                self.copied[rel] = key
+                return True
+        except OSError:
+            pass
+        try:
+            with store.atomic_path(dest) as tmp:
+                shutil.copyfile(source, tmp)
+                after = source.stat()
+                if (after.st_size, after.st_mtime_ns) != key:
+                    raise _Changed(rel)
+                os.utime(tmp, ns=(after.st_atime_ns, after.st_mtime_ns))
+        except (_Changed, OSError):
+            self.seen.pop(rel, None)
+            return False
+        self.copied[rel] = key
+        return True
+
+    # -- one poll
+    def cycle(self, publish) -> Status:
+        changed = False
+        inputs = {rel: self._look(rel, whole_lines=False) for rel in _INPUT_FILES}
+        waiting_inputs = [rel for rel, s in inputs.items() if s.state != "ready"]
+        if "campaign.toml" not in waiting_inputs:
+            if self._copy("campaign.toml", inputs["campaign.toml"].key):
+                changed = True
+                config, _ = load_config(self.snapshot / "campaign.toml")
+                self.tolerances = config.reduction.tolerances if config else None
+                self.title = config.campaign.title if config else ""
+        if "runs.csv" not in waiting_inputs and inputs["runs.csv"].key != self.runs_key:
+            data = (self.root / "runs.csv").read_bytes()
+            text = _whole_lines(data).decode("utf-8-sig", errors="replace")
+            self.lines, self.rows = _rows(self.root, text)
+            self.runs_key = inputs["runs.csv"].key
+        by_id = {r.run: r for r in self.rows}
+        files = {rel for r in self.rows for rel in r.logs if rel is not None}
+        states = {rel: self._look(rel, whole_lines=True) for rel in sorted(files)}
+        for rel, s in states.items():
+            if s.state == "ready" and self._copy(rel, s.key):
+                changed = True
+
+        verdicts: dict[str, tuple[str, str]] = {}
+        for row in self.rows:
+            self._judge(row.run, by_id, states, verdicts, ())
+        available = {r.run for r in self.rows if self._available(r.run, by_id, set())}
+        snapshot_text = self._snapshot_runs(available)
+        runs_path = self.snapshot / "runs.csv"
+        old = runs_path.read_bytes() if runs_path.is_file() else None
+        if old != snapshot_text and (self.snapshot / "campaign.toml").is_file():
+            store.atomic_write_bytes(runs_path, snapshot_text)
+            changed = True
+
+        data_runs = [r for r in self.rows if r.kind == "data"]
+        signatures = {r.run: self._signature(r.run, by_id) for r in data_runs if r.run in available}
+        fresh = tuple(rid for rid, sig in signatures.items() if self.signatures.get(rid) != sig)
+        reduce_now = (changed or self.reductions == 0) and runs_path.is_file() and bool(available)
+        if reduce_now:
+            self.fresh = fresh
+            publish(self._status(verdicts, available, note=f"reducing {_list(fresh)}"))
+            self._reduce()
+            self.signatures = signatures
+        note = self._note(waiting_inputs)
+        return self._status(verdicts, available, note=note)
+
+    def _judge(self, rid, by_id, states, verdicts, chain) -> tuple[str, str]:
+        """(state, reason) of a run from its own logs and its zero and tare runs."""
+        if rid in verdicts:
+            return verdicts[rid]
+        row = by_id.get(rid)
+        if row is None:
+            return WAITING, f"{rid}: no row in runs.csv yet"
+        if rid in chain:
+            return COMPLETE, ""  # a loop of references is the readers' problem to report
+        verdict = (COMPLETE, "")
+        for rel in row.logs:
+            s = states.get(rel) if rel is not None else None
+            if s is None or s.state == "ready":
+                continue
+            if s.state == "cut":
+                verdict = (TRUNCATED, str(s.problem))
+                break
+            text = {"missing": "not written yet", "empty": "empty so far"}.get(
+                s.state, "still being written"
+            )
+            verdict = (WAITING, f"{rel}: {text}")
+            break
+        if verdict[0] == COMPLETE:
+            for need in row.needs:
+                state, reason = self._judge(need, by_id, states, verdicts, (*chain, rid))
+                if state != COMPLETE:
+                    prefix = f"{need}: " if not reason.startswith(f"{need}:") else ""
+                    verdict = (state, f"{prefix}{reason}")
+                    break
+        verdicts[rid] = verdict
+        return verdict
+
+    def _available(self, rid, by_id, visiting) -> bool:
+        """Every log of the run and of its zero and tare runs has a copy in the snapshot."""
+        row = by_id.get(rid)
+        if row is None:
+            return False
+        if rid in visiting:
+            return True
+        visiting = visiting | {rid}
+        own = all(rel is None or rel in self.copied for rel in row.logs)
+        return own and all(self._available(n, by_id, visiting) for n in row.needs)
+
+    def _signature(self, rid, by_id, visiting=frozenset()) -> tuple:
+        """What the run's reduction reads, as the watch knows it: rows and copied versions."""
+        row = by_id.get(rid)
+        if row is None or rid in visiting:
+            return (rid,)
+        own = (row.text, tuple((rel, self.copied.get(rel)) for rel in row.logs))
+        deps = tuple(self._signature(n, by_id, visiting | {rid}) for n in row.needs)
+        return (self.copied.get("campaign.toml"), own, deps)
+
+    def _snapshot_runs(self, available: set[str]) -> bytes:
+        """runs.csv of the snapshot: the rows of available runs; the others blanked, so that
+        every row keeps its line number (the readers skip blank lines)."""
+        lines = list(self.lines)
+        for row in self.rows:
+            if row.run not in available:
+                for i in range(*row.lines):
+                    lines[i] = lines[i][len(lines[i].rstrip("\r\n")) :]
+        return "".join(lines).encode("utf-8")
+
+    def _reduce(self) -> None:
+        try:
+            self.results = reduce_campaign(
+                self.snapshot, self.out, workers=self.workers, progress=False
+            )
+        except InputError as exc:
+            self.problems = tuple(str(p) for p in exc.problems)
+            return
+        self.problems = ()
+        self.reductions += 1
+        if self.results.reduced:
+            _save_figure(self.results, self.out)
+
+    def _status(self, verdicts, available, *, note: str) -> Status:
+        values, reasons, failed = {}, {}, {}
+        if self.results is not None:
+            ds = self.results.dataset
+            if ds.sizes.get("run", 0):
+                table = store.run_table(ds)
+                reasons = _flag_reasons(table, self.tolerances)
+                for rec in table.to_dict("records"):
+                    values[str(rec["run"])] = rec
+            for rec in self.results.failures.to_dict("records"):
+                failed.setdefault(str(rec["run"]), _failure_text(rec))
+        lines = []
+        listed = set()
+        for row in self.rows:
+            if row.kind != "data":
+                continue
+            listed.add(row.run)
+            state, reason = verdicts.get(row.run, (WAITING, ""))
+            rec = values.get(row.run) if row.run in available else None
+            if row.run in available and row.run in failed:
+                lines.append(RunLine(row.run, FAILED, row.config, reason=failed[row.run]))
+                continue
+            if rec is not None:
+                if state == COMPLETE:
+                    flags = str(rec.get("flags") or "")
+                    state = FLAGGED if flags else REDUCED
+                    reason = reasons.get(row.run, "")
+                else:
+                    reason = f"{reason} (results of the previous version)"
+                lines.append(
+                    RunLine(
+                        row.run,
+                        state,
+                        str(rec.get("config", row.config)),
+                        *(float(rec.get(k, math.nan)) for k in ("alpha", "CL", "CD", "u_CL")),
+                        reason=reason,
+                    )
+                )
+                continue
+            lines.append(RunLine(row.run, state, row.config, reason=reason))
+        lines += [
+            RunLine(rid, FAILED, reason=why) for rid, why in failed.items() if rid not in listed
+        ]
+        return Status(
+            title=self.title,
+            campaign=str(self.root),
+            out=str(self.out),
+            runs=tuple(lines),
+            fresh=self.fresh,
+            reductions=self.reductions,
+            problems=self.problems,
+            note=note,
+            updated=datetime.now().isoformat(timespec="seconds"),
+        )
+
+    def _note(self, waiting_inputs) -> str:
+        if waiting_inputs:
+            return f"waiting for {' and '.join(waiting_inputs)} to settle"
+        return f"watching {self.root} (a file counts once unchanged for {self.settle:g} s)"
+
+
+def _list(runs) -> str:
+    runs = list(runs)
+    return ", ".join(runs) if len(runs) <= 6 else f"{', '.join(runs[:5])} and {len(runs) - 5} more"
+
+
+def _failure_text(rec: dict) -> str:
+    where = str(rec.get("file") or "")
+    line = rec.get("line")
+    if where and line is not None and not (isinstance(line, float) and math.isnan(line)):
+        try:
+            where += f":{int(line)}"
+        except (TypeError, ValueError):
+            pass
+    return f"{where}: {rec['reason']}" if where else str(rec["reason"])
+
+
+# Results columns that the per-run quality checks judge, so that a raised flag's reason can be
+# given again in the check's own words.
+_MEASURES = (
+    "spin_scatter",
+    "spin_drift",
+    "speed_drift",
+    "temperature_drift",
+    "zero_shift",
+    "revolutions",
+    "alpha",
+    "Cp_max",
+)
+
+
+def _flag_reasons(table, tolerances) -> dict[str, str]:
+    """Each flagged run's flags with their reasons, as the quality checks word them.
+
+    The results hold each flag's name and the steadiness measures it judged; the checks of
+    :mod:`tunnelred.quality` are run again on those measures to word the reason. A flag whose
+    measures are not among the results (overload, dead taps, …) is given by name.
+    """
+    if tolerances is None or "flags" not in table:
+        return {}
+    repeats = {}
+    if "repeat_disagreement" in ";".join(map(str, table["flags"])):
+        repeats = quality.repeat_disagreement(table, tolerances)
+    reasons = {}
+    for rec in table.to_dict("records"):
+        names = [n for n in str(rec.get("flags") or "").split(";") if n]
+        if not names:
+            continue
+        measures = {k: float(rec[k]) for k in _MEASURES if k in rec and np.isfinite(float(rec[k]))}
+        worded = {f.name: f.reason for f in quality.check_run(measures, tolerances)}
+        if str(rec["run"]) in repeats:
+            worded["repeat_disagreement"] = repeats[str(rec["run"])].reason
+        reasons[str(rec["run"])] = "; ".join(
+            f"{n}: {worded[n]}" if n in worded else n for n in names
+        )
+    return reasons
+
+
+# ---------------------------------------------------------------------------------------------
+# The watch
+
+
+def watch(
+    campaign_dir,
+    out_dir,
+    *,
+    settle: float = DEFAULT_SETTLE,
+    poll: float = DEFAULT_POLL,
+    workers: int = 1,
+    stop_event: threading.Event | None = None,
+    view=True,
+) -> None:
+    """Reduce and flag each run of a campaign while the data acquisition writes it.
+
+    Parameters
+    ----------
+    campaign_dir : str or path-like
+        The campaign folder being written (read-only for tunnelred).
+    out_dir : str or path-like
+        The output folder: results.nc, results.csv, failures.csv, … as ``tunnelred reduce``
+        writes them, figures/live.png, and ``.live/`` (the snapshot of complete inputs and
+        status.json).
+    settle : float
+        Seconds a file must keep its size and modification time to count as finished. [s]
+    poll : float
+        Seconds between two looks at the folder. [s]
+    workers : int
+        Processes the engine reduces with (1: in this process).
+    stop_event : threading.Event, optional
+        The watch returns once it is set (checked between polls; a reduction under way is
+        finished first). Without one, the watch runs until Ctrl-C.
+    view : bool or view object
+        True: a :class:`TerminalView` on stdout; False: none; or any object with
+        ``update(status)`` and ``close()`` (a :class:`LiveView`, a test's recorder).
+
+    Notes
+    -----
+    A data run is *complete* when
+
+    - its row is in runs.csv (only whole lines count: a row still being written is ignored);
+    - every log it names, and every log of the zero and tare runs it names, exists and ends
+      with a line break;
+    - none of those files, nor campaign.toml and runs.csv, has changed size or modification
+      time over polls spanning ``settle`` seconds (measured on this machine's clock, so a file
+      server's clock does not matter).
+
+    A log that has settled without a line break at its end is *truncated* (the logger stopped
+    mid-line): it is shown as such and waited for, never read as data. Complete inputs are
+    copied into ``OUT/.live/campaign`` and that snapshot is reduced by
+    :func:`tunnelred.campaign.reduce_campaign`: its cache re-reduces exactly the runs whose row,
+    logs or zero and tare runs changed (all of them when campaign.toml changes). Every output
+    is written atomically, so stopping at any moment leaves OUT whole.
+
+    Examples
+    --------
+    >>> import threading
+    >>> stop = threading.Event()
+    >>> worker = threading.Thread(target=watch, args=("campaign", "out"),
+    ...                           kwargs={"stop_event": stop, "view": False})  # doctest: +SKIP
+    """
+    if settle < 0 or poll <= 0:
+        raise ValueError("settle must be 0 or more and poll more than 0 seconds")
+    watcher = _Watcher(
+        campaign_dir, out_dir, settle=settle, workers=max(1, int(workers)), clock=time.monotonic
+    )
+    shown = TerminalView() if view is True else (view or None)
+    stop = stop_event if stop_event is not None else threading.Event()
+    last: list[Status | None] = [None]
+
+    def publish(status: Status) -> None:
+        if last[0] is not None and replace(last[0], updated="") == replace(status, updated=""):
+            return
+        last[0] = status
+        _write_status(watcher.out, status)
+        if shown is not None:
+            shown.update(status)
+
+    how = "stop asked"
+    try:
+        while True:
+            publish(watcher.cycle(publish))
+            if stop.wait(poll):
+                break
+    except KeyboardInterrupt:
+        how = "Ctrl-C"
+    finally:
+        final = last[0] or watcher._status({}, set(), note="")
+        counts = final.count()
+        note = f"stopped ({how}); {watcher.out} holds the {counts['reduced']} runs reduced so far"
+        try:
+            publish(replace(final, stopped=True, note=note))
+        finally:
+            if shown is not None:
+                shown.close()
+
+
+def main_watch(args) -> int:
+    """The ``tunnelred watch`` command: ``args.campaign``, ``args.out``, ``args.settle``,
+    ``args.poll`` (and ``args.workers`` if given). Returns the exit status (0; 2 usage error)."""
+    campaign = Path(args.campaign)
+    if not campaign.is_dir():
+        print(f"tunnelred: error: {campaign}: no such folder", file=sys.stderr)
+        return 2
+    settle = float(getattr(args, "settle", DEFAULT_SETTLE))
+    poll = float(getattr(args, "poll", DEFAULT_POLL))
+    if settle < 0 or poll <= 0:
+        print("tunnelred: error: --settle must be >= 0 and --poll > 0", file=sys.stderr)
+        return 2
+    watch(campaign, args.out, settle=settle, poll=poll, workers=getattr(args, "workers", 1) or 1)
+    return 0
