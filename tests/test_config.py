@@ -149,3 +149,33 @@ def test_duplicate_tap_and_reserved_name(tmp_path):
         line_of(text, 'name = "tap01"') + 4,  # the second [[taps]] table
         line_of(text, 'name = "angle"'),
     ]
+
+
+def test_configuration_tolerances_replace_the_campaign_ones(tmp_path):
+    # A bare cylinder's mid-span pressure lift exceeds its whole-span balance lift (end effects):
+    # the configuration states the expected difference; the other configuration keeps the default.
+    text = CAMPAIGN_TOML.replace(
+        '[configurations.A]\ndescription = "bare cylinder"',
+        '[configurations.A]\ndescription = "bare cylinder"\n\n'
+        "[configurations.A.tolerances]\ncl_agreement = 0.2\nspin_scatter = 0.05",
+    )
+    path = tmp_path / "campaign.toml"
+    path.write_text(text, encoding="utf-8")
+    cfg, problems = load_config(path)
+    assert problems == []
+    assert cfg.tolerances_for("A").cl_agreement == 0.2
+    assert cfg.tolerances_for("A").spin_scatter == 0.05
+    assert cfg.tolerances_for("A").speed_drift == cfg.reduction.tolerances.speed_drift
+    assert cfg.tolerances_for("B") == cfg.reduction.tolerances
+
+
+def test_configuration_tolerance_unknown_key_is_reported(tmp_path):
+    text = CAMPAIGN_TOML.replace(
+        '[configurations.A]\ndescription = "bare cylinder"',
+        '[configurations.A]\ndescription = "bare cylinder"\n\n'
+        "[configurations.A.tolerances]\nwobble = 1",
+    )
+    path = tmp_path / "campaign.toml"
+    path.write_text(text, encoding="utf-8")
+    _, problems = load_config(path)
+    assert any(p.column == "configurations.A.tolerances.wobble" for p in problems), problems

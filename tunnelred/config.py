@@ -11,7 +11,7 @@ import hashlib
 import math
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .errors import InputError, Problem
@@ -102,6 +102,9 @@ class Configuration:
     description: str = ""
     end_plates: bool = False
     end_plate_diameter: float | None = None  # [m]
+    # [configurations.LABEL.tolerances]: values that replace [reduction.tolerances] for this
+    # configuration's runs (a bare cylinder's end effects, say)
+    tolerance_overrides: dict[str, float] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -165,6 +168,9 @@ class Tolerances:
     stream_overlap: float = 0.95  # fraction of the run all streams cover [-]
     min_revolutions: float = 20.0  # for phase binning [-]
     agreement_k: float = 2.0  # coverage factor for balance/pressure and repeat agreement [-]
+    # relative difference between whole-span balance CL and mid-span pressure CL_p that end
+    # effects are expected to make, allowed on top of the uncertainty [-]
+    cl_agreement: float = 0.0
     stagnation_cp: float = 0.05  # |Cp_max - 1| allowed on alpha = 0 runs [-]
 
 
@@ -191,6 +197,13 @@ class CampaignConfig:
     taps: tuple[TapConfig, ...]
     reduction: ReductionConfig
     sha256: str = ""  # of campaign.toml's bytes
+
+    def tolerances_for(self, label: str) -> Tolerances:
+        """The tolerances that apply to a configuration's runs."""
+        configuration = self.configurations.get(label)
+        if configuration is None or not configuration.tolerance_overrides:
+            return self.reduction.tolerances
+        return replace(self.reduction.tolerances, **configuration.tolerance_overrides)
 
     def tap(self, name: str) -> TapConfig:
         for t in self.taps:
@@ -240,7 +253,7 @@ _KEYS = {
         "spans_section",
         "transducer_radius",
     ),
-    "configuration": ("description", "end_plates", "end_plate_diameter"),
+    "configuration": ("description", "end_plates", "end_plate_diameter", "tolerances"),
     "balance": (
         "channels",
         "matrix",
@@ -633,6 +646,20 @@ def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None) -> ModelConfig |
     )
 
 
+def _tolerance_values(r: _Reader, parent: dict, path: str, *, given_only: bool) -> dict:
+    """Tolerances of a ``tolerances`` table: every one (defaults filled), or just those given."""
+    table = r.table(parent, "tolerances", path, tuple(Tolerances.__dataclass_fields__))
+    defaults = Tolerances()
+    values = {}
+    for name in Tolerances.__dataclass_fields__:
+        if given_only and name not in table:
+            continue
+        check = _NON_NEGATIVE if name == "cl_agreement" else _POSITIVE
+        kind = _TOLERANCE_KINDS.get(name, "fraction")
+        values[name] = r.get(table, path, name, kind, getattr(defaults, name), check)
+    return values
+
+
 def _configurations(r: _Reader, data: dict, model) -> dict[str, Configuration]:
     p = "configurations"
     tables = data.get(p)
@@ -662,6 +689,7 @@ def _configurations(r: _Reader, data: dict, model) -> dict[str, Configuration]:
             description=r.get(t, path, "description", "str", ""),
             end_plates=r.get(t, path, "end_plates", "bool", False),
             end_plate_diameter=r.get(t, path, "end_plate_diameter", "length", None, plate_check),
+            tolerance_overrides=_tolerance_values(r, t, f"{path}.tolerances", given_only=True),
         )
     return out
 
@@ -832,22 +860,7 @@ def _reduction(r: _Reader, data: dict, model) -> ReductionConfig:
             r.problem(f"{p}.base_arc", "two angles 0 ≤ start < end ≤ 360", repr(t["base_arc"]))
         elif got is not None:
             base_arc = got
-    tp = f"{p}.tolerances"
-    tt = r.table(t, "tolerances", tp, tuple(Tolerances.__dataclass_fields__))
-    defaults = Tolerances()
-    tolerances = Tolerances(
-        **{
-            name: r.get(
-                tt,
-                tp,
-                name,
-                _TOLERANCE_KINDS.get(name, "fraction"),
-                getattr(defaults, name),
-                _POSITIVE,
-            )
-            for name in Tolerances.__dataclass_fields__
-        }
-    )
+    tolerances = Tolerances(**_tolerance_values(r, t, f"{p}.tolerances", given_only=False))
     return ReductionConfig(
         blockage=blockage,
         maskell_factor=r.get(t, p, "maskell_factor", "fraction", None, _POSITIVE),

@@ -260,7 +260,8 @@ def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures:
     per_tap = [
         pressure.bin_cp(thetas[i], readings[i] / q_mean, bins=bins) for i in range(len(names))
     ]
-    dead = pressure.find_dead_taps(names, per_tap, tolerance=cfg.reduction.tolerances.dead_tap)
+    tolerance = cfg.tolerances_for(data.spec.config).dead_tap
+    dead = pressure.find_dead_taps(names, per_tap, tolerance=tolerance)
     measures["dead_taps"] = dead
     keep = [i for i, name in enumerate(names) if name not in dead]
     if not keep:
@@ -626,7 +627,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         for name in RUN_OUTPUTS:
             values[f"u_{name}_mc"] = float(np.asarray(mc.u[name]).reshape(-1)[0])
 
-    flags = tuple(quality.check_run(measures, cfg.reduction.tolerances))
+    flags = tuple(quality.check_run(measures, cfg.tolerances_for(spec.config)))
     values.update(quality.flag_columns(flags))
 
     budgets = []
