@@ -220,7 +220,10 @@ def _theory_lines(ax: Axes, ds: xr.Dataset, name: str) -> None:
     finite = alpha[np.isfinite(alpha)]
     if name not in ("CL", "CL_p") or finite.size == 0:
         return
-    lo, hi = min(finite.min(), 0.0), max(finite.max(), 0.0)
+    # Beyond |alpha| = 2 the stagnation points leave the surface and the line would pass the
+    # bound it derives from; it stops where it meets Prandtl's limit.
+    lo = max(min(finite.min(), 0.0), -2.0)
+    hi = min(max(finite.max(), 0.0), 2.0)
     grid = np.linspace(lo, hi, 201)
     ax.plot(
         grid,
@@ -278,7 +281,8 @@ def plot_coefficient(
     -----
     Wall-corrected values are drawn with filled markers and error bars of ±k·u (k = 2) in α and in
     the coefficient; uncorrected ones with hollow markers of the same style. The potential-flow
-    line holds while the stagnation points stay on the surface, |α| ≤ 2.
+    line is drawn where it holds, while the stagnation points stay on the surface (|α| ≤ 2); it
+    ends on Prandtl's limit |CL| = 4π.
 
     References
     ----------
@@ -427,7 +431,7 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
             ax.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
             ax.set_ylabel(r"pressure coefficient $C_p$")
             ax.set_title(f"Surface pressure, run {run}")
-            ax.legend(loc="lower left")
+            ax.legend(loc="best")
     return ax
 
 
@@ -663,7 +667,8 @@ def representative_runs(results, count: int = 3) -> list[str]:
     -------
     list of str
         Run ids with surface pressure data (any run when none has it), unflagged ones preferred,
-        closest to evenly spaced quantiles of |α| (smallest, middle, largest for three).
+        one per distinct |α| (to 0.01), closest to evenly spaced quantiles of |α| (smallest,
+        middle, largest for three), in that order.
     """
     ds = results_dataset(results)
     runs = np.asarray(ds["run"].values, dtype=object)
@@ -680,6 +685,9 @@ def representative_runs(results, count: int = 3) -> list[str]:
     candidates = np.flatnonzero(ok)
     if candidates.size == 0:
         return []
+    # Repeats and the other sweep leg sit at the same spin ratio: one run per distinct |alpha|.
+    _, first = np.unique(np.round(alpha[candidates], 2), return_index=True)
+    candidates = candidates[np.sort(first)]
     targets = np.quantile(alpha[candidates], np.linspace(0.0, 1.0, count))
     chosen: list[str] = []
     for target in targets:

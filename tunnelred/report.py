@@ -23,6 +23,7 @@ import matplotlib as mpl
 import numpy as np
 import pandas as pd
 import xarray as xr
+from matplotlib.figure import Figure
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_CENTER
 from reportlab.lib.pagesizes import A4
@@ -33,6 +34,7 @@ from reportlab.pdfbase.ttfonts import TTFont
 from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import (
     BaseDocTemplate,
+    CondPageBreak,
     Frame,
     Image,
     KeepTogether,
@@ -80,6 +82,9 @@ _WIDTH = _PAGE[0] - 2 * _MARGIN
 _K = plotting.COVERAGE_FACTOR
 _FIGURE_DPI = 200
 _BUDGET_ROWS = 6  # contributors listed per output
+_SECTION_ROOM = 70 * mm  # least room below a section heading for it to start on this page
+_TABLE_ROOM = 35 * mm  # least room for a table's caption and first rows
+_PLOT_SIZE = (6.4, 3.7)  # inches, for figures drawn for the report
 _GRID = colors.HexColor("#b0b0b0")
 _HEAD_FILL = colors.HexColor("#e4ecf4")
 _STRIPE = colors.HexColor("#f6f6f6")
@@ -119,13 +124,22 @@ def _styles(faces: dict[str, str]) -> dict[str, ParagraphStyle]:
     )
     return {
         "body": body,
+        "intro": ParagraphStyle("intro", parent=body, keepWithNext=1),
         "small": ParagraphStyle("small", parent=body, fontSize=7.5, leading=9.5),
-        "cell": ParagraphStyle("cell", parent=body, fontSize=7.5, leading=9, spaceAfter=0),
+        "cell": ParagraphStyle("cell", parent=body, fontSize=7.2, leading=9, spaceAfter=0),
         "head": ParagraphStyle(
             "head", parent=body, fontName=faces["bold"], fontSize=7.5, leading=9
         ),
         "caption": ParagraphStyle(
             "caption", parent=body, fontName=faces["italic"], fontSize=8, leading=10, spaceAfter=8
+        ),
+        "table_caption": ParagraphStyle(
+            "table_caption",
+            parent=body,
+            fontName=faces["italic"],
+            fontSize=8,
+            leading=10,
+            spaceAfter=3,
         ),
         "h1": ParagraphStyle(
             "h1",
@@ -272,7 +286,11 @@ def format_uncertain(value: float, expanded: float) -> str:
     if expanded is None or not np.isfinite(expanded) or expanded <= 0:
         return _number(value)
     decimals = max(1 - math.floor(math.log10(abs(expanded))), 0)
-    return f"{value:.{decimals}f} ± {expanded:.{decimals}f}"
+    shown = f"{value:.{decimals}f}"
+    if float(shown) == 0:
+        # A value that rounds to zero is shown without the sign of its unrounded part.
+        shown = f"{0.0:.{decimals}f}"
+    return f"{shown} ± {expanded:.{decimals}f}"
 
 
 def _number(value, digits: int = 4) -> str:
@@ -322,6 +340,8 @@ class _Builder:
         self.story.extend(flowables)
 
     def section(self, title: str) -> None:
+        # A heading low on a page would sit alone there: start a new page instead.
+        self.add(CondPageBreak(_SECTION_ROOM))
         self._sections += 1
         text = f"{self._sections}  {title}"
         heading = Paragraph(escape(text), self.s["h1"])
@@ -355,9 +375,10 @@ class _Builder:
         style += [("BACKGROUND", (0, i), (-1, i), _STRIPE) for i in range(2, len(data), 2)]
         table.setStyle(TableStyle(style))
         if caption:
-            self.add(KeepTogether([self.p(caption, "caption", markup=True), table]))
-        else:
-            self.add(table)
+            # Room for the caption and a few rows, or a new page; a long table then splits
+            # under its repeated header (keepWithNext would move the whole table instead).
+            self.add(CondPageBreak(_TABLE_ROOM), self.p(caption, "table_caption", markup=True))
+        self.add(table)
         self.add(Spacer(1, 4 * mm))
 
     def figure(self, fig, caption: str, *, width: float = _WIDTH) -> None:
@@ -477,6 +498,10 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
     b.add(PageBreak())
 
 
+def _axes():
+    return Figure(figsize=_PLOT_SIZE, layout="constrained").add_subplot()
+
+
 def _on_off(value) -> str:
     return "–" if value is None else ("on" if value else "off")
 
@@ -492,7 +517,8 @@ def _summary(b: _Builder, data: _Inputs) -> None:
             f"{ds.sizes['run']} data runs in {len(configs)} configuration(s) at "
             f"{len(speeds)} tunnel speed(s); spin ratio from {_fixed(np.nanmin(alpha), 3)} to "
             f"{_fixed(np.nanmax(alpha), 3)}. Coefficients are wall-corrected; error bars and "
-            f"tabulated uncertainties are expanded uncertainties with coverage factor k = 2."
+            f"tabulated uncertainties are expanded uncertainties with coverage factor k = 2.",
+            "intro",
         )
     )
     header = ["configuration"] + [label for label, _ in speeds]
@@ -517,9 +543,22 @@ def _summary(b: _Builder, data: _Inputs) -> None:
         caption=f"{b.next_table()} Runs by configuration and tunnel speed, with their "
         "spin-ratio range.",
     )
+    flagged = [(r, f) for r, f in zip(data.runs, _flags(ds), strict=True) if f]
+    b.add(b.p("Flagged runs", "h2"))
+    if flagged:
+        b.add(
+            b.p(
+                f"{len(flagged)} run(s) raised quality flags (reasons under Quality flags): "
+                + ", ".join(f"{r} ({f.replace(';', ', ')})" for r, f in flagged)
+                + "."
+            )
+        )
+    else:
+        b.add(b.p("No run raised a quality flag."))
+    b.add(b.p("Lift and drag", "h2"))
     for name in ("CL", "CD"):
         if name in ds and np.isfinite(data.column(name)).any():
-            ax = plotting.plot_coefficient(ds, name)
+            ax = plotting.plot_coefficient(ds, name, ax=_axes())
             b.figure(
                 ax.figure,
                 f"{b.next_figure()} {name} against spin ratio, wall-corrected (filled) and "
@@ -527,18 +566,6 @@ def _summary(b: _Builder, data: _Inputs) -> None:
                 + (" The line is potential flow, CL = −2πα." if name == "CL" else ""),
                 width=0.85 * _WIDTH,
             )
-    flagged = [(r, f) for r, f in zip(data.runs, _flags(ds), strict=True) if f]
-    b.add(b.p("Flagged runs", "h2"))
-    if flagged:
-        b.add(
-            b.p(
-                f"{len(flagged)} run(s) raised quality flags (section 7 gives the reasons): "
-                + ", ".join(f"{r} ({f.replace(';', ', ')})" for r, f in flagged)
-                + "."
-            )
-        )
-    else:
-        b.add(b.p("No run raised a quality flag."))
 
 
 def _flags(ds: xr.Dataset) -> list[str]:
@@ -552,7 +579,8 @@ def _conditions(b: _Builder, data: _Inputs) -> None:
     b.add(
         b.p(
             "Run means of the free stream, wall-corrected (q, U, Re), and of the air: temperature "
-            "T, barometric pressure p, relative humidity RH and density ρ (CIPM-2007)."
+            "T, barometric pressure p, relative humidity RH and density ρ (CIPM-2007).",
+            "intro",
         )
     )
     cols = {n: data.column(n) for n in ("U", "q", "Re", "T", "p_baro", "RH", "rho")}
@@ -617,13 +645,17 @@ def _corrections(b: _Builder, data: _Inputs) -> None:
 
 
 def _value_table(b: _Builder, data: _Inputs, names: list[str], caption: str) -> None:
+    """Value ± U (k = 2) of ``names`` for every run that has the last of them."""
     header = ["run", "config"] + [_HEADS[n] for n in names]
     rows = []
+    has = np.isfinite(data.column(names[-1]))
     for i, run in enumerate(data.runs):
+        if not has[i]:
+            continue
         config = str(data.table["config"].iloc[i]) if "config" in data.table else ""
         cells = [format_uncertain(data.column(n)[i], _K * data.column(f"u_{n}")[i]) for n in names]
         rows.append([run, config, *cells])
-    b.table(header, rows, [1.1, 1.0] + [1.35] * len(names), caption=caption)
+    b.table(header, rows, [0.7, 0.7] + [1.45] * len(names), caption=caption)
 
 
 _HEADS = {
@@ -643,7 +675,8 @@ def _results(b: _Builder, data: _Inputs) -> None:
         b.p(
             "Wall-corrected coefficients on q·d·b (CM on q·d·b·R). Each cell is the value and its "
             "expanded uncertainty U = k·u with k = 2 (about 95 % coverage for a normal "
-            "distribution), rounded to U's second significant digit."
+            "distribution), rounded to U's second significant digit.",
+            "intro",
         )
     )
     _value_table(
@@ -674,12 +707,30 @@ def _comparison(b: _Builder, data: _Inputs) -> None:
     if table is None or len(table) == 0:
         return
     b.section(_COMPARISON)
-    b.add(b.p("Differences between configurations over matching sweeps (tunnelred.compare)."))
-    rows = [
-        [_number(v) if isinstance(v, int | float | np.number) else str(v) for v in row]
-        for row in table.itertuples(index=False)
-    ]
-    b.table([str(c) for c in table.columns], rows, [1.0] * len(table.columns))
+    b.add(
+        b.p(
+            "Differences between configurations on a common spin-ratio grid, sweep leg by sweep "
+            "leg at each tunnel speed (tunnelred.compare): ΔX = X(configuration) − "
+            "X(reference), with its expanded uncertainty (k = 2). A difference marked * exceeds "
+            "its expanded uncertainty.",
+            "intro",
+        )
+    )
+    rows = []
+    for row in table.itertuples(index=False):
+        cells = [str(row.config), str(row.reference), _fixed(row.speed, 1), str(row.leg)]
+        cells.append(_fixed(row.alpha, 2))
+        for x in ("CL", "CD"):
+            text = format_uncertain(getattr(row, f"d{x}"), _K * getattr(row, f"u_d{x}"))
+            cells.append(text + (" *" if getattr(row, f"sig_d{x}") else ""))
+        rows.append(cells)
+    b.table(
+        ["config", "reference", "U [m/s]", "leg", "α", "ΔCL", "ΔCD"],
+        rows,
+        [1.0, 1.0, 0.8, 0.6, 0.6, 1.5, 1.5],
+        caption=f"{b.next_table()} Configuration differences of CL and CD; value ± expanded "
+        "uncertainty (k = 2); * marks a difference larger than its expanded uncertainty.",
+    )
 
 
 def _surface_pressure(b: _Builder, data: _Inputs, runs: list[str]) -> None:
@@ -692,11 +743,12 @@ def _surface_pressure(b: _Builder, data: _Inputs, runs: list[str]) -> None:
             "Measured Cp(θ) at mid-span of representative runs (the smallest, a middle and the "
             "largest spin ratio), with the band of expanded uncertainty (k = 2), against potential "
             "flow Cp = 1 − (α + 2 sin θ)² at the run's corrected α. θ is measured from the "
-            "windward point, positive in the sense of positive spin."
+            "windward point, positive in the sense of positive spin.",
+            "intro",
         )
     )
     for run in runs:
-        ax = plotting.plot_cp(data.ds, run)
+        ax = plotting.plot_cp(data.ds, run, ax=_axes())
         b.figure(
             ax.figure,
             f"{b.next_figure()} Surface pressure of run {escape(run)} against potential flow; "
@@ -718,6 +770,7 @@ def _budget(b: _Builder, data: _Inputs, runs: list[str]) -> None:
             f"Budget of run {run}: the inputs that contribute most to the variance of α, CL, CD "
             "and CM (linear propagation, JCGM 100:2008). Contribution = sensitivity × standard "
             "uncertainty; share = its fraction of the output variance.",
+            "intro",
         )
     )
     for output in ("alpha", "CL", "CD", "CM"):
@@ -812,7 +865,8 @@ def _quality(b: _Builder, data: _Inputs) -> None:
         b.p(
             "A flag never removes a run: it marks a run whose steadiness, zeros, loads or "
             "agreement break a tolerance of campaign.toml, so that it is looked at before its "
-            "numbers are used."
+            "numbers are used.",
+            "intro",
         )
     )
     rows = []

@@ -1,0 +1,277 @@
+"""Plotting: what each figure holds (artists, labels, data), checked on reduced synthetic results.
+
+The results come from a small synthetic campaign (tunnelred.synth) reduced end to end: two
+configurations, two speeds, an up and a down sweep, pressure logs on three runs and one planted
+spin-scatter fault. Figures are drawn on the Agg backend and never shown.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+from matplotlib.colors import to_rgb  # noqa: E402
+from matplotlib.container import ErrorbarContainer  # noqa: E402
+
+from tunnelred import plotting, synth  # noqa: E402
+from tunnelred.campaign import reduce_campaign  # noqa: E402
+from tunnelred.readers import open_campaign  # noqa: E402
+from tunnelred.store import read_results  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def reduced(tmp_path_factory):
+    """(campaign folder, output folder) of a small synthetic campaign, reduced."""
+    root = tmp_path_factory.mktemp("plotting")
+    demo = synth.demo_spec()
+    plates = demo.configurations[0].label
+    spec = replace(
+        demo,
+        speeds=(6.0, 12.0),
+        spin_ratios_up=(0.0, 1.0, 2.0, 3.0),
+        spin_ratios_down=(1.5,),
+        pressure_speeds=(12.0,),
+        pressure_spin_ratios=(0.0, 1.0, 2.0),
+        tare_rpms=(500.0, 2000.0, 4000.0, 6000.0),
+        repeat_point=None,
+        repeat_count=0,
+        faults=(synth.Fault("spin_scatter", plates, 12.0, 3.0, 0.05),),
+        data_duration=3.0,
+        wind_off_duration=1.0,
+    )
+    synth.make_campaign(root / "campaign", spec)
+    reduce_campaign(root / "campaign", root / "out", workers=2, progress=False)
+    return root / "campaign", root / "out"
+
+
+@pytest.fixture(scope="module")
+def results(reduced):
+    return read_results(reduced[1])
+
+
+@pytest.fixture(autouse=True)
+def _no_pyplot_figures():
+    """Every plotting function must leave pyplot's figure list as it found it."""
+    before = plt.get_fignums()
+    yield
+    assert plt.get_fignums() == before
+
+
+def _containers(ax):
+    return [c for c in ax.containers if isinstance(c, ErrorbarContainer)]
+
+
+def _legend_texts(ax):
+    legend = ax.get_legend()
+    return [t.get_text() for t in legend.get_texts()] + [legend.get_title().get_text()]
+
+
+def _segment_half_lengths(collection, axis: int) -> np.ndarray:
+    """Half the length of each error-bar segment along x (0) or y (1)."""
+    segments = np.array(collection.get_segments())
+    return 0.5 * np.abs(segments[:, 1, axis] - segments[:, 0, axis])
+
+
+@pytest.mark.parametrize("name", ["CL", "CD", "CM", "C_power", "L_D"])
+def test_coefficient_error_bars_carry_the_results_and_k2(results, name):
+    ax = plotting.plot_coefficient(results, name)
+    containers = _containers(ax)
+    configs = list(dict.fromkeys(str(c) for c in results["config"].values))
+    assert [c.get_label() for c in containers] == configs
+    for container, config in zip(containers, configs, strict=True):
+        mine = results.where(results["config"] == config, drop=True)
+        # ErrorbarContainer.lines: (data line, caps, (x bars, y bars)).
+        line, (xbars, ybars) = container.lines[0], container.lines[2]
+        # The drawn points are the results' values, exactly (same floats).
+        np.testing.assert_array_equal(line.get_xdata(), mine["alpha"].values)
+        np.testing.assert_array_equal(line.get_ydata(), mine[name].values)
+        # Bars are expanded uncertainties k = 2 (DESIGN.md §4); segment ends are float sums,
+        # so compare to 1e-12 relative.
+        np.testing.assert_allclose(
+            _segment_half_lengths(xbars, 0), 2 * mine["u_alpha"].values, rtol=1e-12
+        )
+        np.testing.assert_allclose(
+            _segment_half_lengths(ybars, 1), 2 * mine[f"u_{name}"].values, rtol=1e-12
+        )
+    assert any("k = 2" in text for text in _legend_texts(ax))
+    assert ax.get_xlabel() == plotting.COEFFICIENT_LABELS["alpha"]
+    assert ax.get_ylabel() == plotting.COEFFICIENT_LABELS[name]
+
+
+def test_corrected_filled_uncorrected_hollow(results):
+    ax = plotting.plot_coefficient(results, "CL", theory=False)
+    filled = [c.lines[0] for c in _containers(ax)]
+    hollow = [line for line in ax.lines if line.get_label().endswith(", uncorrected")]
+    assert len(hollow) == len(filled) == 2
+    for line in filled:
+        assert line.get_markerfacecolor() != "none"
+    for line in hollow:
+        assert line.get_markerfacecolor() == "none"
+    drawn = np.sort(np.concatenate([line.get_ydata() for line in hollow]))
+    np.testing.assert_array_equal(drawn, np.sort(results["CL_uncorrected"].values))
+
+
+def test_cl_theory_line_and_prandtl_bound(results):
+    ax = plotting.plot_coefficient(results, "CL")
+    theory = next(line for line in ax.lines if "potential flow" in line.get_label())
+    alpha = np.asarray(theory.get_xdata())
+    # Kutta-Joukowski with Gamma = 2 pi omega R^2: CL = -2 pi alpha (Anderson, Fundamentals of
+    # Aerodynamics, 6th ed., §3.16); computed here from the formula, not from tunnelred.theory.
+    np.testing.assert_allclose(theory.get_ydata(), -2 * np.pi * alpha, rtol=1e-12)
+    # The line stops where the stagnation points leave the surface, |alpha| = 2 (Anderson §3.15).
+    assert alpha.max() == pytest.approx(2.0)
+    bound = next(line for line in ax.lines if "Prandtl" in line.get_label())
+    # Prandtl's limit |CL| = 4 pi (from memory; Anderson §3.15 gives the merging at |alpha| = 2).
+    np.testing.assert_allclose(bound.get_ydata(), [-4 * np.pi, -4 * np.pi], rtol=1e-12)
+
+
+def test_no_theory_for_drag(results):
+    ax = plotting.plot_coefficient(results, "CD")
+    assert not [line for line in ax.lines if "potential flow" in line.get_label()]
+
+
+def test_unknown_coefficient_is_refused(results):
+    with pytest.raises(ValueError, match="cannot plot"):
+        plotting.plot_coefficient(results, "Gamma")
+
+
+def test_draws_on_the_given_axes_without_pyplot(results):
+    from matplotlib.figure import Figure
+
+    fig = Figure()
+    ax = fig.add_subplot()
+    assert plotting.plot_coefficient(results, "CD", ax=ax) is ax
+
+
+def test_group_by_speed_labels(results):
+    ax = plotting.plot_coefficient(results, "CL", by="speed")
+    assert [c.get_label() for c in _containers(ax)] == ["U = 6 m/s", "U = 12 m/s"]
+
+
+@pytest.mark.parametrize("polar", [False, True])
+def test_cp_band_and_theory(results, polar):
+    run = plotting.representative_runs(results)[-1]
+    row = results.sel(run=run)
+    ax = plotting.plot_cp(results, run, polar=polar)
+    assert (ax.name == "polar") is polar
+    measured = next(line for line in ax.lines if line.get_label() == f"measured, run {run}")
+    theta = np.asarray(measured.get_xdata())
+    theta_deg = np.degrees(theta) if polar else theta
+    wrapped = (row["theta"].values + 180.0) % 360.0 - 180.0
+    order = np.argsort(wrapped)
+    np.testing.assert_array_equal(np.asarray(measured.get_ydata()), row["Cp"].values[order])
+    np.testing.assert_allclose(theta_deg, wrapped[order], atol=1e-9)
+    ideal = next(line for line in ax.lines if "potential flow" in line.get_label())
+    x = np.asarray(ideal.get_xdata())
+    x_deg = np.degrees(x) if polar else x
+    alpha = float(row["alpha"])
+    # Potential flow about a spinning cylinder, Cp = 1 - (alpha + 2 sin theta)^2 (Anderson §3.15,
+    # in the azimuth of DESIGN.md §4), written out here independently of tunnelred.theory.
+    expected = 1 - (alpha + 2 * np.sin(np.radians(x_deg))) ** 2
+    np.testing.assert_allclose(ideal.get_ydata(), expected, rtol=1e-12, atol=1e-12)
+    band = ax.collections[0]
+    assert "k = 2" in band.get_label()
+    # The band spans Cp ± 2 u(Cp): its vertical extent is the widest 4 u where Cp is finite.
+    ys = band.get_paths()[0].vertices[:, 1]
+    cp, u = row["Cp"].values, row["u_Cp"].values
+    finite = np.isfinite(cp)
+    assert ys.max() == pytest.approx(np.max(cp[finite] + 2 * u[finite]), rel=1e-12)
+    assert ys.min() == pytest.approx(np.min(cp[finite] - 2 * u[finite]), rel=1e-12)
+
+
+def test_cp_of_a_run_without_pressure_is_refused(results):
+    no_cp = [
+        str(r)
+        for r, cp in zip(results["run"].values, results["Cp"].values, strict=True)
+        if not np.isfinite(cp).any()
+    ]
+    with pytest.raises(ValueError, match="no surface pressure"):
+        plotting.plot_cp(results, no_cp[0])
+
+
+def test_run_diagnostics_panels(reduced, results):
+    campaign_dir, _ = reduced
+    flagged = [
+        str(r) for r, f in zip(results["run"].values, results["flags"].values, strict=True) if f
+    ]
+    run = next(r for r in flagged if "spin_scatter" in results.sel(run=r)["flags"].item())
+    campaign = open_campaign(campaign_dir, check_logs=False)
+    fig = plotting.plot_run_diagnostics(campaign, run)
+    ax_alpha, ax_speed, ax_zero = fig.axes
+    alpha_line = ax_alpha.lines[0]
+    # The mean of the plotted alpha(t) is the run's uncorrected spin ratio, to within the
+    # difference between a sample mean and reduce_run's ratio of means (a 5 % scatter makes the
+    # two differ at the 1e-3 level: mean(w/U) vs mean(w)/mean(U)).
+    assert np.mean(alpha_line.get_ydata()) == pytest.approx(
+        float(results.sel(run=run)["alpha_uncorrected"]), rel=5e-3
+    )
+    assert "scatter" in ax_alpha.get_title()
+    scatter = float(results.sel(run=run)["spin_scatter"])
+    assert f"{100 * scatter:.2f} %" in ax_alpha.get_title()
+    assert ax_speed.get_ylabel().startswith("$U(t)$")
+    # One line per balance channel, plus the filled markers of the zeros the run uses.
+    channels = campaign.config.instruments.balance.channels
+    labelled = [line.get_label() for line in ax_zero.lines if not line.get_label().startswith("_")]
+    assert [lab.split(" ")[0] for lab in labelled[: len(channels)]] == list(channels)
+    assert f"run {run}" in labelled
+
+
+def test_comparison_joins_each_sweep_separately(results):
+    ax = plotting.plot_comparison(results, "CL", by="config")
+    assert [c.get_label() for c in _containers(ax)] == list(
+        dict.fromkeys(str(c) for c in results["config"].values)
+    )
+    # Lines that are not an error-bar container's data line or caps are the joins.
+    points = {id(x) for c in _containers(ax) for x in (c.lines[0], *c.lines[1])}
+    joins = [line for line in ax.lines if id(line) not in points]
+    assert joins
+    for line in joins:
+        x = np.asarray(line.get_xdata())
+        assert np.all(np.diff(x) >= 0)  # joined in order of alpha
+    ax_re = plotting.plot_comparison(results, "CD", by="re")
+    assert all(c.get_label().startswith("Re ≈") for c in _containers(ax_re))
+    with pytest.raises(ValueError, match="by must be"):
+        plotting.plot_comparison(results, "CL", by="colour")
+
+
+def test_house_style_distinct_in_greyscale():
+    colours = [s.color for s in plotting.HOUSE_STYLE]
+    markers = [s.marker for s in plotting.HOUSE_STYLE]
+    dashes = [str(s.linestyle) for s in plotting.HOUSE_STYLE]
+    assert len(set(markers)) == len(set(dashes)) == len(set(colours)) == len(colours)
+    # Okabe & Ito (2008), "Color Universal Design", the eight-colour palette (RGB 0-255):
+    okabe_ito = {
+        (0, 0, 0),
+        (230, 159, 0),
+        (86, 180, 233),
+        (0, 158, 115),
+        (240, 228, 66),
+        (0, 114, 178),
+        (213, 94, 0),
+        (204, 121, 167),
+    }
+    for colour in colours:
+        assert tuple(round(255 * v) for v in to_rgb(colour)) in okabe_ito
+
+
+def test_standard_figures_written(results, tmp_path):
+    paths = plotting.save_standard_figures(results, tmp_path)
+    names = {p.name for p in paths}
+    assert {"CL_alpha.png", "CD_alpha.png", "CL_by_speed.png"} <= names
+    assert any(n.startswith("cp_") for n in names)
+    for path in paths:
+        assert path.parent == tmp_path / "figures"
+        # PNG signature (ISO/IEC 15948 §5.2) and no temporary file left beside it.
+        assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == sorted(names)
+    from PIL import Image
+
+    with Image.open(paths[0]) as image:
+        # 200 dpi (the PNG pHYs chunk stores pixels per metre: 200/0.0254 = 7874).
+        assert image.info["dpi"][0] == pytest.approx(200, abs=0.5)
