@@ -152,8 +152,88 @@ def _run_demo(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# reduce
 
-_SUBCOMMANDS = (_add_check, _add_demo)
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected 1 or more, got {value}")
+    return value
+
+
+def _add_reduce(subparsers) -> None:
+    p = subparsers.add_parser(
+        "reduce",
+        help="reduce every data run of a campaign to coefficients with uncertainties",
+        description="Reduce every data run of a campaign folder: free stream, balance loads "
+        "(zeros, spin tares, wind axes), surface pressure, wall corrections, GUM uncertainty and "
+        "quality flags. Writes OUT/results.nc, results.csv, budgets.csv, failures.csv, "
+        "provenance.json and figures/. Runs already reduced from unchanged inputs are taken "
+        "from the cache in OUT/.cache.",
+        epilog="examples:\n  tunnelred reduce sample_runs -o out --report\n"
+        "  tunnelred reduce big-campaign -o out --workers 2\n"
+        "  tunnelred reduce big-campaign -o out --dask tcp://scheduler:8786\n\n"
+        "exit status: 0 every run reduced, 1 some runs failed (see OUT/failures.csv), "
+        "2 usage error.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
+    p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
+    p.add_argument("--workers", type=_positive_int, help="processes to use (default: every core)")
+    p.add_argument(
+        "--dask",
+        metavar="ADDRESS",
+        help="reduce on a dask.distributed cluster: 'local' starts one on this machine, "
+        "'tcp://host:port' uses a running scheduler",
+    )
+    p.add_argument("--fresh", action="store_true", help="ignore the cache and reduce every run")
+    p.add_argument(
+        "--monte-carlo",
+        type=_positive_int,
+        metavar="N",
+        default=0,
+        help="also propagate the uncertainty with N Monte Carlo draws (JCGM 101) to check the "
+        "linear result; both are recorded",
+    )
+    p.add_argument("--report", action="store_true", help="also write OUT/report.pdf")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(run=_run_reduce)
+
+
+def _run_reduce(args) -> int:
+    from .campaign import reduce_campaign
+
+    if not args.campaign.is_dir():
+        return _fail_usage(f"{args.campaign}: no such folder")
+    if args.out.exists() and not args.out.is_dir():
+        return _fail_usage(f"{args.out} exists and is not a folder")
+    results = reduce_campaign(
+        args.campaign,
+        args.out,
+        workers=args.workers,
+        dask=args.dask,
+        fresh=args.fresh,
+        monte_carlo=args.monte_carlo,
+        progress=not args.quiet,
+    )
+    if args.report:
+        from .report import write_report
+
+        pdf = write_report(args.out, campaign=args.campaign)
+        results.outputs["report"] = pdf
+    print(results.summary())
+    if args.report:
+        print(f"  report   {pdf}")
+    return 1 if results.failed else 0
+
+
+# ---------------------------------------------------------------------------------------------
+
+_SUBCOMMANDS = (_add_check, _add_reduce, _add_demo)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -161,7 +241,8 @@ def _parser() -> argparse.ArgumentParser:
         prog="tunnelred",
         description="Reduce wind-tunnel data from rotating-cylinder tests: validate a campaign "
         "folder, reduce its runs to wall-corrected coefficients with uncertainties, and report.",
-        epilog="examples:\n  tunnelred demo my-demo\n  tunnelred check my-demo\n\n"
+        epilog="examples:\n  tunnelred demo my-demo\n  tunnelred check my-demo\n"
+        "  tunnelred reduce my-demo -o out --report\n\n"
         "Run 'tunnelred COMMAND --help' for a command's options.",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )

@@ -257,7 +257,9 @@ class LinearResult:
         layout = self._out()
         i, j = layout.flat_index(a), layout.flat_index(b)
         C = self.covariance
-        return float(C[i, j] / math.sqrt(C[i, i] * C[j, j]))
+        scale = math.sqrt(C[i, i] * C[j, j])
+        # An exact output (no uncertainty) or an undefined one has no correlation.
+        return float(C[i, j] / scale) if scale > 0 else math.nan
 
     def budget(self, output: str, *, group: bool = True) -> pd.DataFrame:
         """Uncertainty budget of one scalar output (or element ``"Cp[3]"``).
