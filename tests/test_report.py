@@ -1,0 +1,147 @@
+"""The PDF test report: opened with pypdf, its text checked against the results files."""
+
+from __future__ import annotations
+
+import re
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import pandas as pd  # noqa: E402
+import pytest  # noqa: E402
+from pypdf import PdfReader  # noqa: E402
+from test_plotting import reduced  # noqa: E402, F401  (the reduced synthetic campaign fixture)
+
+from tunnelred import report, store  # noqa: E402
+
+# The headings docs/report.md promises, written out here rather than taken from report.SECTIONS.
+HEADINGS = (
+    "Cautions",
+    "Provenance",
+    "Contents",
+    "Summary",
+    "Test matrix",
+    "Flagged runs",
+    "Test conditions",
+    "Wall corrections",
+    "Results",
+    "Surface pressure",
+    "Uncertainty budget",
+    "Quality flags",
+    "Appendix: configuration and input files",
+    "SHA-256 of every input file",
+)
+
+
+def _text(pdf) -> tuple[str, list[str]]:
+    pages = [page.extract_text() for page in PdfReader(pdf).pages]
+    return "\n".join(pages), pages
+
+
+@pytest.fixture(scope="module")
+def built(reduced):  # noqa: F811
+    campaign_dir, out = reduced
+    pdf = report.write_report(out, campaign=campaign_dir)
+    text, pages = _text(pdf)
+    return pdf, text, pages, out
+
+
+def test_written_atomically_into_the_output_folder(built):
+    pdf, _, _, out = built
+    assert pdf == out / "report.pdf"
+    assert pdf.read_bytes()[:5] == b"%PDF-"
+    assert not [p for p in out.iterdir() if p.name.endswith(".tmp")]
+
+
+def test_every_section_heading(built):
+    _, text, _, _ = built
+    for heading in HEADINGS:
+        assert heading in text, heading
+
+
+def test_title_run_count_and_page_numbers(built):
+    _, text, pages, out = built
+    ds = store.read_results(out)
+    assert ds.attrs["title"] in text.replace("\n", " ")
+    assert f"{ds.sizes['run']} data runs reduced" in text
+    total = len(pages)
+    for number, page in enumerate(pages, start=1):
+        assert f"page {number} of {total}" in page
+
+
+def test_cautions_on_the_title_page(built):
+    _, _, pages, _ = built
+    first = " ".join(pages[0].split())
+    assert "safety rules" in first
+    assert "licensed engineering practice" in first
+    assert "local codes" in first
+
+
+def test_numbers_match_results_csv(built):
+    _, text, _, out = built
+    table = pd.read_csv(out / "results.csv")
+    row = table.loc[table["CL"].abs().idxmax()]
+    cell = report.format_uncertain(row["CL"], 2 * row["u_CL"])
+    assert cell in text
+    # The cell reads back as the results.csv values rounded to U's second significant digit
+    # (GUM, JCGM 100:2008 §7.2.6): value within half a unit of the last digit shown.
+    value, expanded = (float(x) for x in cell.split(" ± "))
+    last = 10.0 ** -len(cell.split(" ± ")[1].split(".")[1])
+    assert abs(value - row["CL"]) <= 0.5 * last + 1e-12
+    assert abs(expanded - 2 * row["u_CL"]) <= 0.5 * last + 1e-12
+    # The conditions table shows the run's speed to 0.01 m/s.
+    assert f"{row['U']:.2f}" in text
+    assert "k = 2" in text
+
+
+def test_flag_table_names_the_planted_fault(built):
+    _, text, _, out = built
+    table = pd.read_csv(out / "results.csv", keep_default_na=False)
+    flagged = table[table["flag_spin_scatter"].astype(str) == "True"]
+    assert len(flagged) == 1
+    run = flagged["run"].iloc[0]
+    scatter = flagged["spin_scatter"].astype(float).iloc[0]
+    # The reason gives the measured scatter as quality.spin_scatter words it.
+    assert re.search(rf"{run}\s+spin_scatter\s+spin ratio scatter {100 * scatter:.1f} %", text)
+
+
+def test_configuration_comparison_when_two_configurations(built):
+    _, text, _, _ = built
+    pytest.importorskip("tunnelred.compare")
+    assert "Configuration comparison" in text
+
+
+@pytest.mark.parametrize(
+    ("value", "expanded", "expected"),
+    [
+        # JCGM 100:2008 §7.2.4: m_S = (100.021 47 ± 0.000 79) g.
+        (100.02147, 0.00079, "100.02147 ± 0.00079"),
+        # JCGM 100:2008 §7.2.6: an uncertainty rounded to two significant digits (worked by
+        # hand: 0.0432 → 0.043, and the value to the same decimal).
+        (-3.14159, 0.0432, "-3.142 ± 0.043"),
+        (1234.5, 17.0, "1234 ± 17"),
+        (-0.00004, 0.0073, "0.0000 ± 0.0073"),
+    ],
+)
+def test_format_uncertain(value, expanded, expected):
+    assert report.format_uncertain(value, expanded) == expected
+
+
+def test_user_text_with_markup_characters(reduced, tmp_path):  # noqa: F811
+    _, out = reduced
+    ds = store.read_results(out)
+    title = 'Rotor <b>sail</b> & "plates" <unclosed'
+    ds.attrs["title"] = title
+    failures = pd.DataFrame(
+        [{"run": "R999", "file": "logs/<odd>&.csv", "line": 3, "reason": "expected <number>"}]
+    )
+    budgets = pd.read_csv(out / "budgets.csv")
+    store.write_results(ds, tmp_path, failures=failures, budgets=budgets)
+    pdf = report.write_report(tmp_path, tmp_path / "odd.pdf")
+    text, _ = _text(pdf)
+    flat = " ".join(text.split())
+    assert title in flat
+    assert "expected <number>" in flat
+    # Without the campaign folder the appendix says so instead of failing.
+    assert "campaign folder was not given" in flat
