@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import uncertainties
+import xarray as xr
 from scipy import stats
 
 from tunnelred import compare
@@ -434,3 +435,25 @@ def test_run_compare_two_folders(tmp_path):
     assert not list(tmp_path.joinpath("cmp").glob(".*.tmp"))  # nothing half-written left behind
     with pytest.raises(InputError, match="results.nc or results.csv"):
         compare.run_compare(tmp_path / "missing", dest=tmp_path / "cmp2")
+
+
+def test_dataset_input_and_pairing_by_speed_and_re():
+    # The same results as an xarray Dataset (dim run, as store.read_results gives them) give
+    # the same sweeps as the DataFrame.
+    frame = pd.concat(
+        [
+            sweep_frame("A", speed=20.0),
+            sweep_frame("A", speed=10.0, prefix="A10", t0="2031-05-02T08:00:00"),
+            sweep_frame("B", speed=20.0, t0="2031-05-03T08:00:00"),
+        ],
+        ignore_index=True,
+    )
+    ds = xr.Dataset.from_dataframe(frame.set_index("run"))
+    assert [s.runs for s in compare.find_sweeps(ds)] == [s.runs for s in compare.find_sweeps(frame)]
+    by_speed = compare.comparison_table(ds, by="speed", names=["CL"])
+    assert set(zip(by_speed.a, by_speed.b, strict=True)) == {
+        ("A | 10 m/s | single", "A | 20 m/s | single")
+    }
+    by_re = compare.comparison_table(ds, by="re", names=["CL"])
+    assert set(by_re.config_a) == {"B"} and set(by_re.config_b) == {"A"}
+    assert (by_re.Re_a == by_re.Re_b).all()
