@@ -1429,11 +1429,11 @@ def run_compare(
     written: dict[str, Path] = {}
     comparison = comparison_table(table, by=by, names=names, power_level=power_level)
     written["comparison.csv"] = atomic_write_bytes(dest / "comparison.csv", _csv_bytes(comparison))
-    sweeps = find_sweeps(table, by=by)
-    figures = pd.DataFrame([characteristics(s, power_level=power_level) for s in sweeps])
+    figures = characteristics_table(table, by=by, power_level=power_level)
     written["characteristics.csv"] = atomic_write_bytes(
         dest / "characteristics.csv", _csv_bytes(figures)
     )
+    sweeps = find_sweeps(table, by=by)
     groups: dict[str, list[Sweep]] = {}
     for sweep in sweeps:
         label = (
