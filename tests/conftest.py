@@ -128,3 +128,36 @@ def campaign_dir(tmp_path: Path) -> Path:
 
 def dedent(text: str) -> str:
     return textwrap.dedent(text).lstrip("\n")
+
+
+REPO = Path(__file__).resolve().parents[1]
+SAMPLE_RUNS = REPO / "sample_runs"
+
+
+@pytest.fixture(scope="session")
+def demo_campaign_dir(tmp_path_factory) -> Path:
+    """The committed demo campaign (sample_runs/), or a fresh copy from synth if absent."""
+    if (SAMPLE_RUNS / "campaign.toml").is_file():
+        return SAMPLE_RUNS
+    from tunnelred.synth import write_demo_campaign
+
+    dest = tmp_path_factory.mktemp("demo") / "campaign"
+    write_demo_campaign(dest)
+    return dest
+
+
+@pytest.fixture(scope="session")
+def demo_results(demo_campaign_dir, tmp_path_factory):
+    """The demo campaign reduced once for the whole session (two worker processes)."""
+    from tunnelred.campaign import reduce_campaign
+
+    out = tmp_path_factory.mktemp("demo_out") / "out"
+    return reduce_campaign(demo_campaign_dir, out, workers=2, progress=False)
+
+
+@pytest.fixture(scope="session")
+def demo_truth(demo_campaign_dir):
+    """synth's truth.csv of the demo campaign, indexed by run."""
+    import pandas as pd
+
+    return pd.read_csv(demo_campaign_dir / "truth.csv", keep_default_na=False).set_index("run")

@@ -1,0 +1,136 @@
+"""End to end: the demo campaign, reduced, recovers the truth synth built it from.
+
+synth.py runs a forward model of the test (free stream, spin, balance channels through the inverse
+calibration, zero drift, spin tares, rotating taps with tubing delay and centrifugal head, and the
+wall interference of the configured method applied forward). The reduction must undo all of it.
+The tolerance of every comparison is the result's own expanded uncertainty, U = 2u (JCGM 100:2008
+§6.2, k = 2), plus nothing: a result outside it is a defect of the reduction or of its u.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tunnelred.quality import FLAG_NAMES
+from tunnelred.readers import open_campaign
+from tunnelred.reduction import BUDGET_OUTPUTS, RUN_OUTPUTS, reduce_run
+
+K = 2.0  # coverage factor of the comparisons (JCGM 100:2008 §6.3)
+
+
+@pytest.fixture(scope="module")
+def table(demo_results):
+    return demo_results.dataset.to_dataframe().reset_index().drop_duplicates("run").set_index("run")
+
+
+@pytest.fixture(scope="module")
+def clean(demo_truth, table):
+    truth = demo_truth.loc[table.index]
+    return truth.index[truth["planted_fault"] == ""]
+
+
+def _z(table, truth, runs, name, truth_name=None):
+    got = table.loc[runs, name]
+    want = truth.loc[runs, truth_name or name]
+    return ((got - want) / table.loc[runs, f"u_{name}"]).dropna()
+
+
+@pytest.mark.parametrize("name", ["U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power"])
+def test_corrected_results_recover_the_free_air_truth(table, demo_truth, clean, name):
+    z = _z(table, demo_truth, clean, name)
+    assert len(z) >= 0.8 * len(clean)
+    assert np.all(np.abs(z) <= K), z[np.abs(z) > K]
+
+
+@pytest.mark.parametrize("name", ["U", "alpha", "CL", "CD", "CM"])
+def test_uncorrected_results_miss_the_free_air_truth(table, demo_truth, clean, name):
+    # The walls change the demo's coefficients by a few per cent, far more than their
+    # uncertainty: without the corrections most runs would sit outside their own U = 2u.
+    z = (table.loc[clean, f"{name}_uncorrected"] - demo_truth.loc[clean, name]) / table.loc[
+        clean, f"u_{name}"
+    ]
+    spinning = demo_truth.loc[clean, "alpha"].abs() > 0.1 if name == "alpha" else slice(None)
+    assert np.median(np.abs(z[spinning].dropna())) > 2 * K
+
+
+@pytest.mark.parametrize("name", ["U", "alpha", "CL", "CD", "CM"])
+def test_uncorrected_results_match_the_in_tunnel_truth(table, demo_truth, clean, name):
+    z = _z(table, demo_truth, clean, f"{name}_uncorrected")
+    assert np.all(np.abs(z) <= K), z[np.abs(z) > K]
+
+
+@pytest.mark.parametrize("name", ["CL_p", "CD_p"])
+def test_pressure_coefficients_recover_the_truth(table, demo_truth, clean, name):
+    with_pressure = [r for r in clean if demo_truth.loc[r, "has_pressure"] in (True, "True")]
+    z = _z(table, demo_truth, with_pressure, name)
+    assert len(z) >= 3
+    assert np.all(np.abs(z) <= K), z[np.abs(z) > K]
+
+
+def test_wall_correction_sizes_are_reported(table, demo_truth, clean):
+    for name in ("eps_solid", "eps_wake", "delta_CD_buoyancy"):
+        got, want = table.loc[clean, name], demo_truth.loc[clean, name]
+        assert np.allclose(got, want, rtol=5e-3, atol=1e-6), name
+    # d/h sets eps_solid = (pi^2/12)(d/h)^2 for every run alike (Allen & Vincenti, NACA R-782).
+    assert table["eps_solid"].nunique() == 1
+
+
+def test_only_the_planted_faults_are_flagged(demo_results, demo_truth, table):
+    flagged = {run for run in table.index if table.loc[run, "flags"]}
+    planted = set(demo_truth.index[demo_truth["planted_fault"] != ""])
+    assert flagged == planted
+    for run in planted:
+        fault = demo_truth.loc[run, "planted_fault"]
+        assert table.loc[run, f"flag_{fault}"], (run, fault, table.loc[run, "flags"])
+
+
+def test_the_dead_tap_is_named(table, demo_truth):
+    run = demo_truth.index[demo_truth["planted_fault"] == "dead_tap"][0]
+    assert table.loc[run, "dead_taps"] != ""
+    assert np.isfinite(table.loc[run, "CL_p"])  # integrated without it
+
+
+def test_every_result_has_its_uncertainty(demo_results):
+    ds = demo_results.dataset
+    for name in RUN_OUTPUTS:
+        assert name in ds and f"u_{name}" in ds, name
+    assert "u_Cp" in ds and ds["u_Cp"].dims == ds["Cp"].dims
+    assert "corr_CL_alpha" in ds
+    assert np.all(np.abs(ds["corr_CL_alpha"].dropna("run")) <= 1.0)
+    for name in FLAG_NAMES:
+        assert f"flag_{name}" in ds
+
+
+def test_budgets_account_for_the_variance(demo_results):
+    budgets = demo_results.budgets
+    assert set(budgets["output"]) == set(BUDGET_OUTPUTS)
+    shares = budgets.groupby(["run", "output"])["share"].sum()
+    # Shares of the variance, the correlation terms included, sum to one (JCGM 100:2008 eq. 13).
+    assert np.allclose(shares, 1.0, atol=1e-6)
+
+
+def test_monte_carlo_agrees_with_the_linear_propagation(demo_campaign_dir, demo_truth):
+    # JCGM 101:2008 §8: the linear (GUM) result is validated when Monte Carlo reproduces it;
+    # 20 000 draws estimate u to about 0.5 % (relative standard error 1/sqrt(2M)), and the model
+    # is close to linear over a few u, so 5 % is a comfortable, still meaningful limit.
+    campaign = open_campaign(demo_campaign_dir, check_logs=False)
+    run = demo_truth.index[(demo_truth["planted_fault"] == "") & (demo_truth["alpha"] > 1.5)][0]
+    result = reduce_run(campaign, run, monte_carlo=20000, seed=1)
+    for name in ("alpha", "CL", "CD", "CM", "q", "U"):
+        linear, mc = result.values[f"u_{name}"], result.values[f"u_{name}_mc"]
+        assert mc == pytest.approx(linear, rel=0.05), name
+
+
+def test_a_zero_or_tare_run_is_not_reduced(demo_campaign_dir):
+    campaign = open_campaign(demo_campaign_dir, check_logs=False)
+    zero = campaign.zero_runs()[0].run
+    with pytest.raises(Exception, match="only data runs"):
+        reduce_run(campaign, zero)
+
+
+def test_results_table_is_one_row_a_run(demo_results, demo_truth):
+    csv = pd.read_csv(demo_results.outputs["results.csv"], keep_default_na=False)
+    assert list(csv["run"]) == list(demo_results.dataset["run"].values)
+    assert set(csv["run"]) == set(demo_truth.index)
