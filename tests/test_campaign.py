@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import pickle
 import sys
+import time
 from dataclasses import replace
 
 import pandas as pd
@@ -113,9 +114,31 @@ def test_serial_reduces_every_data_run(campaign_dir, tmp_path):
     assert "reduced  5 (5 now, 0 from cache)" in text and str(out) in text
 
 
-def test_process_pool_identical_to_serial(campaign_dir):
+def test_process_pool_identical_to_serial(campaign_dir, monkeypatch):
     serial = _reduce(campaign_dir, None)
+    # This process is one of the workers and starts at once; hold its first run until the
+    # pool is up, so that the pool surely reduces some runs.
+    pools = []
+    real_init = engine._PoolStart.__init__
+
+    def init(self, *args):
+        real_init(self, *args)
+        pools.append(self)
+
+    here = []
+    real_guarded = engine._reduce_guarded
+
+    def guarded(campaign, run_id, monte_carlo):
+        deadline = time.monotonic() + 60.0
+        while not pools[-1].ready and time.monotonic() < deadline:
+            time.sleep(0.02)
+        here.append(run_id)
+        return real_guarded(campaign, run_id, monte_carlo)
+
+    monkeypatch.setattr(engine._PoolStart, "__init__", init)
+    monkeypatch.setattr(engine, "_reduce_guarded", guarded)
     pooled = _reduce(campaign_dir, None, workers=2)
+    assert 0 < len(here) < len(DATA_RUNS)  # both this process and the pool reduced runs
     xr.testing.assert_identical(_without_time(pooled.dataset), _without_time(serial.dataset))
     pd.testing.assert_frame_equal(pooled.budgets, serial.budgets)
 

@@ -22,8 +22,11 @@ import multiprocessing
 import os
 import pickle
 import sys
+import threading
 import time
+from collections import deque
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -307,12 +310,77 @@ def _pool_context():
     return multiprocessing.get_context("spawn")
 
 
-def _run_pool(path, token, run_ids, monte_carlo, workers):
-    executor = ProcessPoolExecutor(max_workers=workers, mp_context=_pool_context())
-    pending = {executor.submit(_worker, path, token, rid, monte_carlo): rid for rid in run_ids}
+def _warm(path: str, token: str) -> None:
+    """Open the campaign in a new pool process before its first run arrives."""
+    if _OPEN_CAMPAIGNS.get(path, ("",))[0] != token:
+        _OPEN_CAMPAIGNS[path] = (token, open_campaign(path, check_logs=False))
+
+
+class _PoolStart:
+    """Start a process pool without waiting for it.
+
+    The first submission to a forkserver pool blocks until the server has imported tunnelred
+    (a second or more); a helper thread makes it (a warm-up task) while this process gets on
+    with reducing. Whichever of the two finishes last shuts the pool down.
+    """
+
+    def __init__(self, executor: ProcessPoolExecutor, path: str, token: str):
+        self.executor = executor
+        self._lock = threading.Lock()
+        self._submitted = False
+        self._finished = False
+        self._thread = threading.Thread(target=self._start, args=(path, token), daemon=True)
+        self._thread.start()
+
+    def _start(self, path: str, token: str) -> None:
+        try:
+            self.executor.submit(_warm, path, token)
+        except Exception:
+            pass  # a pool that cannot start leaves the runs to this process
+        with self._lock:
+            self._submitted = True
+            if self._finished:
+                self.executor.shutdown(wait=False, cancel_futures=True)
+
+    @property
+    def ready(self) -> bool:
+        with self._lock:
+            return self._submitted
+
+    def finish(self, wait: bool) -> None:
+        with self._lock:
+            self._finished = True
+            if self._submitted:
+                self.executor.shutdown(wait=wait, cancel_futures=True)
+
+
+def _run_pool(campaign, path, token, run_ids, monte_carlo, workers):
+    """``workers - 1`` pool processes, and this process as the last worker.
+
+    This process reduces from the front of the list at once; once the pool is up, its
+    processes take runs from the back, each kept two runs ahead so that none waits.
+    """
+    todo = deque(run_ids)
+    helpers = workers - 1
+    pool = _PoolStart(
+        ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context()), path, token
+    )
+    pending: dict = {}
+    broken = False
     try:
-        while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+        while todo or pending:
+            while todo and not broken and len(pending) < 2 * helpers and pool.ready:
+                try:
+                    future = pool.executor.submit(_worker, path, token, todo[-1], monte_carlo)
+                except BrokenProcessPool:
+                    broken = True  # the rest is reduced here
+                    break
+                pending[future] = todo.pop()
+            if todo:
+                yield _reduce_guarded(campaign, todo.popleft(), monte_carlo)
+                done = [f for f in pending if f.done()]
+            else:
+                done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in done:
                 run_id = pending.pop(future)
                 try:
@@ -324,7 +392,7 @@ def _run_pool(path, token, run_ids, monte_carlo, workers):
     finally:
         for future in pending:
             future.cancel()
-        executor.shutdown(wait=not pending, cancel_futures=True)
+        pool.finish(wait=not pending)
 
 
 def _distributed():
@@ -522,8 +590,9 @@ def reduce_campaign(
         elif workers == 1 or len(todo) <= 1:
             stream = _run_serial(campaign, todo, monte_carlo)
         else:
+            token = _token(campaign, keys)
             stream = _run_pool(
-                str(path), _token(campaign, keys), todo, monte_carlo, min(workers, len(todo))
+                campaign, str(path), token, todo, monte_carlo, min(workers, len(todo))
             )
         with contextlib.closing(stream):
             for outcome in stream:

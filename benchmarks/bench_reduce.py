@@ -1,0 +1,296 @@
+"""Speed and memory of reduce_campaign on synthetic campaigns of several sizes.
+
+Each measurement runs in a fresh Python process (so that peak RSS belongs to that measurement
+alone), after tunnelred is imported there: import time is not counted. For each size it reports
+
+- wall time of a first reduction (no cache) with 1 worker, and samples per second;
+- the parse floor: the time pyarrow.csv.read_csv takes to parse the same CSV files, and the ratio;
+- peak memory: the Python heap peak by tracemalloc (a second reduction, traced: numpy buffers
+  are traced, pyarrow's are not) and the peak resident set size from resource.getrusage
+  (RUSAGE_SELF of the measuring process, and RUSAGE_CHILDREN for pool workers);
+- the wall time of an unchanged re-run (every run from the cache), as a fraction of the first.
+
+Then the 1 → 2 worker speed-up on the largest campaign, and the linearity of time in runs and in
+samples per run. A "sample" is one row of one CSV log (every stream of every run, zero and tare
+runs included), i.e. one time step of one instrument.
+
+    python benchmarks/bench_reduce.py            # the full set (several minutes on 2 cores)
+    python benchmarks/bench_reduce.py --quick    # a small set, to check it runs
+    python benchmarks/bench_reduce.py --runs 20 50 --seconds 5 --rates 1000
+
+Prints a table and writes benchmarks/results.json.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import replace
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+
+
+def _spec(runs: int, seconds: float, rate: float, taps: int):
+    """A synthetic campaign of ``runs`` data runs, each with a balance, pressure and tunnel log.
+
+    One configuration; runs spread over speeds × spin ratios. The balance and pressure streams
+    are sampled at ``rate``, the tunnel stream at a tenth of it (tunnel sensors are slow).
+    """
+    import numpy as np
+
+    from tunnelred import synth
+
+    demo = synth.demo_spec()
+    per_speed = 10 if runs >= 50 else 5
+    n_speeds = -(-runs // per_speed)
+    speeds = tuple(float(s) for s in np.round(np.linspace(6.0, 15.0, n_speeds), 2))
+    ratios = tuple(float(a) for a in np.round(np.linspace(0.0, 3.0, per_speed), 3))
+    return replace(
+        demo,
+        configurations=demo.configurations[:1],
+        speeds=speeds,
+        spin_ratios_up=ratios,
+        spin_ratios_down=(),
+        pressure_speeds=speeds,
+        pressure_spin_ratios=ratios,
+        repeat_point=None,
+        faults=(),
+        tare_rpms=(500.0, 2000.0, 4000.0, 6000.0, 7500.0),
+        data_duration=float(seconds),
+        wind_off_duration=min(float(seconds), 5.0),
+        balance_rate=float(rate),
+        pressure_rate=float(rate),
+        tunnel_rate=float(rate) / 10.0,
+        n_taps=int(taps),
+    )
+
+
+def _data_run_count(campaign: Path) -> int:
+    import pandas as pd
+
+    runs = pd.read_csv(campaign / "runs.csv", dtype=str)
+    return int((runs["kind"] == "data").sum())
+
+
+def _parse_floor(campaign: Path) -> tuple[float, int]:
+    """Seconds to parse every log with pyarrow.csv.read_csv (default options), and its rows."""
+    import pyarrow.csv as pacsv
+
+    files = sorted((campaign / "logs").glob("*.csv"))
+    rows = 0
+    started = time.perf_counter()
+    for path in files:
+        rows += pacsv.read_csv(path).num_rows
+    return time.perf_counter() - started, rows
+
+
+def _child(args: dict) -> dict:
+    """One measurement, in this (fresh) process."""
+    import resource
+    import tracemalloc
+
+    from tunnelred.campaign import reduce_campaign
+
+    campaign = Path(args["campaign"])
+    work = Path(args["work"])
+    workers = args["workers"]
+    out = work / f"out-{workers}"
+    started = time.perf_counter()
+    first = reduce_campaign(campaign, out, workers=workers, fresh=True, progress=False)
+    wall = time.perf_counter() - started
+    rss_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    rss_children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    started = time.perf_counter()
+    again = reduce_campaign(campaign, out, workers=workers, progress=False)
+    rerun = time.perf_counter() - started
+    record = {
+        "wall": wall,
+        "rerun": rerun,
+        "reduced": first.reduced,
+        "failed": first.failed,
+        "rerun_from_cache": again.from_cache,
+        # Linux reports ru_maxrss in KiB, macOS in bytes.
+        "rss_self_mib": rss_self / (1024 if sys.platform != "darwin" else 1024**2),
+        "rss_children_mib": rss_children / (1024 if sys.platform != "darwin" else 1024**2),
+    }
+    if args["trace"]:
+        tracemalloc.start()
+        reduce_campaign(campaign, work / "out-traced", workers=1, fresh=True, progress=False)
+        record["tracemalloc_peak_mib"] = tracemalloc.get_traced_memory()[1] / 1024**2
+        tracemalloc.stop()
+    record["floor"], record["samples"] = _parse_floor(campaign)
+    return record
+
+
+def _measure(campaign: Path, work: Path, workers: int, trace: bool) -> dict:
+    payload = json.dumps(
+        {"campaign": str(campaign), "work": str(work), "workers": workers, "trace": trace}
+    )
+    done = subprocess.run(
+        [sys.executable, __file__, "--child", payload],
+        check=True,
+        capture_output=True,
+        text=True,
+    )
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def _sizes(options) -> list[tuple[int, float, float, int]]:
+    if options.quick:
+        return [(5, 2.0, 500.0, 8), (10, 2.0, 500.0, 8), (5, 8.0, 500.0, 8), (5, 2.0, 2000.0, 8)]
+    if options.runs or options.seconds or options.rates:
+        return [
+            (r, s, f, options.taps)
+            for r in options.runs or [20]
+            for s in options.seconds or [5.0]
+            for f in options.rates or [1000.0]
+        ]
+    return [
+        (20, 5.0, 1000.0, 8),
+        (50, 5.0, 1000.0, 8),
+        (100, 5.0, 1000.0, 8),
+        (20, 20.0, 1000.0, 8),
+        (20, 5.0, 4000.0, 8),
+    ]
+
+
+def _ratio(rows: list[dict], pick, key) -> list[dict]:
+    """Time per unit of ``key`` of each row, relative to the smallest of a series."""
+    series = sorted((r for r in rows if pick(r)), key=lambda r: r[key])
+    if len(series) < 2:
+        return []
+    base = series[0]
+    return [
+        {
+            "from": base["label"],
+            "to": r["label"],
+            "size_ratio": r[key] / base[key],
+            "time_ratio": r["wall"] / base["wall"],
+            # 1.0 is exactly linear; the target is within ±10 %.
+            "linearity": (r["wall"] / base["wall"]) / (r[key] / base[key]),
+        }
+        for r in series[1:]
+    ]
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--quick", action="store_true", help="a small set of sizes")
+    parser.add_argument("--runs", type=int, nargs="+", help="data runs per campaign")
+    parser.add_argument("--seconds", type=float, nargs="+", help="record length of a data run")
+    parser.add_argument("--rates", type=float, nargs="+", help="balance/pressure rate [Hz]")
+    parser.add_argument("--taps", type=int, default=8, help="pressure taps")
+    parser.add_argument("--output", type=Path, default=HERE / "results.json")
+    parser.add_argument("--child", help=argparse.SUPPRESS)
+    options = parser.parse_args(argv)
+    if options.child:
+        print(json.dumps(_child(json.loads(options.child))))
+        return 0
+
+    from tunnelred import __version__, synth
+
+    rows = []
+    speedup = None
+    sizes = _sizes(options)
+    largest = max(sizes, key=lambda s: (s[0], -s[1] * s[2]))
+    with tempfile.TemporaryDirectory(prefix="tunnelred-bench-") as tmp:
+        for runs, seconds, rate, taps in sizes:
+            label = f"{runs} runs x {seconds:g} s x {rate / 1000:g} kHz x {taps} taps"
+            work = Path(tmp) / label.replace(" ", "")
+            campaign = work / "campaign"
+            synth.make_campaign(campaign, _spec(runs, seconds, rate, taps))
+            print(f"measuring {label} ...", file=sys.stderr, flush=True)
+            one = _measure(campaign, work, workers=1, trace=True)
+            row = {
+                "label": label,
+                "runs": _data_run_count(campaign),
+                "seconds": seconds,
+                "rate": rate,
+                "taps": taps,
+                "samples_per_run": one["samples"] / _data_run_count(campaign),
+                **one,
+                "samples_per_second": one["samples"] / one["wall"],
+                "floor_ratio": one["wall"] / one["floor"],
+                "rerun_fraction": one["rerun"] / one["wall"],
+            }
+            rows.append(row)
+            if (runs, seconds, rate, taps) == largest:
+                two = _measure(campaign, work, workers=2, trace=False)
+                speedup = {
+                    "label": label,
+                    "wall_1": one["wall"],
+                    "wall_2": two["wall"],
+                    "speedup": one["wall"] / two["wall"],
+                    "rss_children_mib_2": two["rss_children_mib"],
+                }
+
+    base = min(sizes, key=lambda s: (s[0], s[1] * s[2]))
+    in_runs = _ratio(rows, lambda r: (r["seconds"], r["rate"]) == (base[1], base[2]), "runs")
+    in_samples = _ratio(rows, lambda r: r["runs"] == rows[0]["runs"], "samples_per_run")
+    memory = [
+        {"label": r["label"], "runs": r["runs"], "tracemalloc_peak_mib": r["tracemalloc_peak_mib"],
+         "rss_self_mib": r["rss_self_mib"]}
+        for r in rows if (r["seconds"], r["rate"]) == (base[1], base[2])
+    ]  # fmt: skip
+    results = {
+        "machine": {
+            "platform": platform.platform(),
+            "processor": platform.processor() or platform.machine(),
+            "cpu_count": os.cpu_count(),
+            "python": platform.python_version(),
+        },
+        "tunnelred_version": __version__,
+        "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+        "sizes": rows,
+        "speedup_1_to_2_workers": speedup,
+        "linearity_in_runs": in_runs,
+        "linearity_in_samples_per_run": in_samples,
+        "memory_versus_runs": memory,
+    }
+    _print(results)
+    options.output.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
+    print(f"\nwritten {options.output}")
+    return 0
+
+
+def _print(results: dict) -> None:
+    head = (
+        f"{'size':<36}{'wall s':>8}{'Msamp/s':>9}{'floor s':>9}{'x floor':>8}"
+        f"{'heap MiB':>10}{'RSS MiB':>9}{'re-run':>8}"
+    )
+    print(head)
+    print("-" * len(head))
+    for r in results["sizes"]:
+        print(
+            f"{r['label']:<36}{r['wall']:>8.2f}{r['samples_per_second'] / 1e6:>9.2f}"
+            f"{r['floor']:>9.3f}{r['floor_ratio']:>8.1f}{r['tracemalloc_peak_mib']:>10.1f}"
+            f"{r['rss_self_mib']:>9.0f}{r['rerun_fraction']:>7.1%}"
+        )
+    s = results["speedup_1_to_2_workers"]
+    if s:
+        print(
+            f"\n1 -> 2 workers on {s['label']}: {s['wall_1']:.2f} s -> {s['wall_2']:.2f} s, "
+            f"speed-up {s['speedup']:.2f}x"
+        )
+    for title, key in (("runs", "linearity_in_runs"), ("samples", "linearity_in_samples_per_run")):
+        for x in results[key]:
+            print(
+                f"time in {title}: {x['from']} -> {x['to']}: size x{x['size_ratio']:.2f}, "
+                f"time x{x['time_ratio']:.2f}, linearity {x['linearity']:.2f}"
+            )
+    print(
+        "\nheap = tracemalloc peak of the Python heap during a traced reduction (1 worker); "
+        "RSS = getrusage(RUSAGE_SELF) peak resident set of the measuring process; "
+        "re-run = unchanged re-run wall time / first run's."
+    )
+
+
+if __name__ == "__main__":
+    sys.exit(main())
