@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+import textwrap
 from collections import Counter, defaultdict
 from pathlib import Path
 
@@ -20,6 +21,22 @@ from . import __version__
 from .errors import InputError, TunnelredError
 
 __all__ = ["main"]
+
+
+class _HelpFormatter(argparse.HelpFormatter):
+    """Wraps prose paragraphs to the terminal; keeps indented lines (examples) as written."""
+
+    def _fill_text(self, text, width, indent):
+        paragraphs = []
+        for paragraph in text.split("\n\n"):
+            if any(line.startswith("  ") for line in paragraph.splitlines()):
+                paragraphs.append("\n".join(indent + line for line in paragraph.splitlines()))
+            else:
+                prose = " ".join(paragraph.split())
+                paragraphs.append(
+                    textwrap.fill(prose, width, initial_indent=indent, subsequent_indent=indent)
+                )
+        return "\n\n".join(paragraphs)
 
 
 def _fail_usage(message: str) -> int:
@@ -41,7 +58,7 @@ def _add_check(subparsers) -> None:
         "every problem found, grouped by file, with its line and column.",
         epilog="example:\n  tunnelred check sample_runs/broken\n\n"
         "exit status: 0 no problems, 1 problems found, 2 usage error.",
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
     p.set_defaults(run=_run_check)
@@ -127,7 +144,7 @@ def _add_demo(subparsers) -> None:
         description="Write a synthetic campaign folder (campaign.toml, runs.csv, logs and "
         "truth.csv with the free-air values used to make it) into DEST.",
         epilog="example:\n  tunnelred demo my-demo --seed 3\n  tunnelred check my-demo",
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        formatter_class=_HelpFormatter,
     )
     p.add_argument("dest", type=Path, help="folder to write (created; must be empty)")
     p.add_argument("--seed", type=int, help="random seed of the noise (default: the demo's own)")
@@ -179,7 +196,7 @@ def _add_reduce(subparsers) -> None:
         "  tunnelred reduce big-campaign -o out --dask tcp://scheduler:8786\n\n"
         "exit status: 0 every run reduced, 1 some runs failed (see OUT/failures.csv), "
         "2 usage error.",
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
     p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
@@ -232,8 +249,55 @@ def _run_reduce(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# compare
 
-_SUBCOMMANDS = (_add_check, _add_reduce, _add_demo)
+
+def _add_compare(subparsers) -> None:
+    p = subparsers.add_parser(
+        "compare",
+        help="compare sweeps and configurations with their uncertainties",
+        description="Group reduced runs into sweeps (configuration and speed, up and down legs), "
+        "interpolate them onto a common spin-ratio grid with uncertainty bands, and write the "
+        "differences between configurations (or speeds, or Reynolds-number bands) with their "
+        "significance at k = 2, the up/down hysteresis, repeatability and each sweep's "
+        "characteristic figures (lift slope, maximum |CL|, minimum CD, maximum |L/D|).",
+        epilog="examples:\n  tunnelred compare out -o out/comparison\n"
+        "  tunnelred compare entry1/out entry2/out --by re -o comparison\n",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("results", type=Path, nargs="+", help="results folders of tunnelred reduce")
+    p.add_argument(
+        "--by",
+        choices=("config", "speed", "re"),
+        default="config",
+        help="what to compare: configurations (default), tunnel speeds, or Reynolds-number bands",
+    )
+    p.add_argument(
+        "--power-level",
+        type=float,
+        metavar="C",
+        help="also find the spin ratio where the power coefficient crosses C",
+    )
+    p.add_argument("-o", "--out", type=Path, required=True, help="folder for tables and figures")
+    p.set_defaults(run=_run_compare)
+
+
+def _run_compare(args) -> int:
+    from .compare import run_compare
+
+    for folder in args.results:
+        if not folder.is_dir():
+            return _fail_usage(f"{folder}: no such folder")
+    written = run_compare(args.results, by=args.by, dest=args.out, power_level=args.power_level)
+    print(f"comparison by {args.by} written to {args.out}:")
+    for name, path in written.items():
+        print(f"  {name:18s} {path}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
+
+_SUBCOMMANDS = (_add_check, _add_reduce, _add_compare, _add_demo)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -244,7 +308,7 @@ def _parser() -> argparse.ArgumentParser:
         epilog="examples:\n  tunnelred demo my-demo\n  tunnelred check my-demo\n"
         "  tunnelred reduce my-demo -o out --report\n\n"
         "Run 'tunnelred COMMAND --help' for a command's options.",
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+        formatter_class=_HelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"tunnelred {__version__}")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
