@@ -289,9 +289,12 @@ def _run_compare(args) -> int:
         if not folder.is_dir():
             return _fail_usage(f"{folder}: no such folder")
     written = run_compare(args.results, by=args.by, dest=args.out, power_level=args.power_level)
+    figures = [name for name in written if name.startswith("figures/")]
     print(f"comparison by {args.by} written to {args.out}:")
     for name, path in written.items():
-        print(f"  {name:18s} {path}")
+        if name not in figures:
+            print(f"  {name:18s} {path}")
+    print(f"  {len(figures)} figures in {args.out / 'figures'}")
     return 0
 
 
