@@ -233,11 +233,12 @@ def _dependencies(campaign, run_id: str) -> list[str]:
     return order
 
 
-def _row_record(campaign, run_id: str) -> dict:
+def _row_record(campaign, run_id: str) -> str:
+    """A run's runs.csv row, with the hash of each log it names, as JSON text."""
     spec = campaign.runs[run_id]
-    record = dataclasses.asdict(spec)
+    record = {f.name: getattr(spec, f.name) for f in dataclasses.fields(spec)}
     record["logs"] = {stream: [rel, campaign.file_hashes[rel]] for stream, rel in spec.logs.items()}
-    return record
+    return json.dumps(record, sort_keys=True, default=str)
 
 
 def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
@@ -257,13 +258,21 @@ def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
         Hex digest over the tunnelred version, the campaign.toml hash, the run's runs.csv row and
         the hashes of its logs, the same for each zero and tare run it uses, and ``monte_carlo``.
     """
+    return _key(campaign, run_id, monte_carlo, {})
+
+
+def _key(campaign, run_id: str, monte_carlo: int, rows: dict[str, str]) -> str:
+    # ``rows`` holds the row records made so far: zero and tare rows serve many runs.
+    for rid in _dependencies(campaign, run_id):
+        if rid not in rows:
+            rows[rid] = _row_record(campaign, rid)
     record = {
         "tunnelred": __version__,
         "config": campaign.config.sha256,
         "monte_carlo": int(monte_carlo),
-        "runs": [_row_record(campaign, rid) for rid in _dependencies(campaign, run_id)],
+        "runs": [rows[rid] for rid in _dependencies(campaign, run_id)],
     }
-    text = json.dumps(record, sort_keys=True, default=str)
+    text = json.dumps(record, sort_keys=True)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
@@ -474,7 +483,7 @@ def _repeat_flags(results: list, campaign) -> list:
     """Add the campaign-level repeat_disagreement flags to the runs they concern."""
     if len(results) < 2:
         return results
-    table = store.run_table(store.results_to_dataset(results, campaign=campaign))
+    table = pd.DataFrame([{**r.values, "run": r.run, "config": r.config} for r in results])
     raised = quality.repeat_disagreement(table, campaign.config.reduction.tolerances)
     return [
         dataclasses.replace(r, flags=(*r.flags, raised[r.run])) if r.run in raised else r
@@ -564,12 +573,13 @@ def reduce_campaign(
     for rid in unreadable:
         failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
     keys: dict[str, str] = {}
+    rows: dict[str, str] = {}
     for rid in selected:
         problems = campaign.run_problems(rid)
         if problems:
             failures[rid] = [_problem_row(rid, p) for p in problems]
         else:
-            keys[rid] = cache_key(campaign, rid, monte_carlo=monte_carlo)
+            keys[rid] = _key(campaign, rid, monte_carlo, rows)
 
     cache = Path(out) / _CACHE_DIR if out is not None else None
     outcomes: dict[str, _Outcome] = {}
