@@ -113,7 +113,8 @@ class Status:
 
     ``fresh`` lists the data runs whose inputs were new or changed at the latest reduction
     (the engine reduced them; the others came from its cache); ``reductions`` counts the
-    engine calls so far. ``problems`` holds what stops the whole campaign (campaign.toml or
+    engine calls so far, and ``busy`` is true while one runs (``fresh`` then lists the runs it
+    is reducing). ``problems`` holds what stops the whole campaign (campaign.toml or
     runs.csv unusable). ``note`` is one line on what the watch is doing now.
     """
 
@@ -126,6 +127,7 @@ class Status:
     problems: tuple[str, ...] = ()
     note: str = ""
     updated: str = ""
+    busy: bool = False
     stopped: bool = False
 
     def count(self) -> dict[str, int]:
@@ -595,6 +597,7 @@ class _Watcher:
         self.rows: list[_Row] = []
         self.lines: list[str] = []
         self.runs_key: tuple[int, int] | None = None
+        self.snapshot_runs: bytes | None = None  # runs.csv as last written into the snapshot
         self.signatures: dict[str, tuple] = {}
         self.results = None
         self.tolerances = None
@@ -672,12 +675,10 @@ class _Watcher:
 
     # -- one poll
     def cycle(self, publish) -> Status:
-        changed = False
         inputs = {rel: self._look(rel, whole_lines=False) for rel in _INPUT_FILES}
         waiting_inputs = [rel for rel, s in inputs.items() if s.state != "ready"]
         if "campaign.toml" not in waiting_inputs:
             if self._copy("campaign.toml", inputs["campaign.toml"].key):
-                changed = True
                 config, _ = load_config(self.snapshot / "campaign.toml")
                 self.tolerances = config.reduction.tolerances if config else None
                 self.title = config.campaign.title if config else ""
@@ -690,27 +691,29 @@ class _Watcher:
         files = {rel for r in self.rows for rel in r.logs if rel is not None}
         states = {rel: self._look(rel, whole_lines=True) for rel in sorted(files)}
         for rel, s in states.items():
-            if s.state == "ready" and self._copy(rel, s.key):
-                changed = True
+            if s.state == "ready":
+                self._copy(rel, s.key)
 
         verdicts: dict[str, tuple[str, str]] = {}
         for row in self.rows:
             self._judge(row.run, by_id, states, verdicts, ())
         available = {r.run for r in self.rows if self._available(r.run, by_id, set())}
         snapshot_text = self._snapshot_runs(available)
-        runs_path = self.snapshot / "runs.csv"
-        old = runs_path.read_bytes() if runs_path.is_file() else None
-        if old != snapshot_text and (self.snapshot / "campaign.toml").is_file():
-            store.atomic_write_bytes(runs_path, snapshot_text)
-            changed = True
+        if snapshot_text != self.snapshot_runs and "campaign.toml" in self.copied:
+            store.atomic_write_bytes(self.snapshot / "runs.csv", snapshot_text)
+            self.snapshot_runs = snapshot_text
 
         data_runs = [r for r in self.rows if r.kind == "data"]
         signatures = {r.run: self._signature(r.run, by_id) for r in data_runs if r.run in available}
         fresh = tuple(rid for rid, sig in signatures.items() if self.signatures.get(rid) != sig)
-        reduce_now = (changed or self.reductions == 0) and runs_path.is_file() and bool(available)
-        if reduce_now:
+        # The engine runs when a data run is new, changed or gone, and once at the start so that
+        # OUT matches a snapshot an earlier watch left.
+        first = self.reductions == 0 and not self.problems and bool(signatures)
+        due = fresh or signatures.keys() != self.signatures.keys() or first
+        if due and self.snapshot_runs is not None:
             self.fresh = fresh
-            publish(self._status(verdicts, available, note=f"reducing {_list(fresh)}"))
+            busy = self._status(verdicts, available, note=f"reducing {_list(fresh)}")
+            publish(replace(busy, busy=True))
             self._reduce()
             self.signatures = signatures
         note = self._note(waiting_inputs)
@@ -766,7 +769,7 @@ class _Watcher:
             return (rid,)
         own = (row.text, tuple((rel, self.copied.get(rel)) for rel in row.logs))
         deps = tuple(self._signature(n, by_id, visiting | {rid}) for n in row.needs)
-        return (self.copied.get("campaign.toml"), own, deps)
+        return (self.copied.get("campaign.toml"), self.lines[0], own, deps)
 
     def _snapshot_runs(self, available: set[str]) -> bytes:
         """runs.csv of the snapshot: the rows of available runs; the others blanked, so that
