@@ -147,9 +147,6 @@ class Status:
             "waiting": sum(s in (WAITING, TRUNCATED) for s in states),
         }
 
-    def to_json(self) -> str:
-        return json.dumps(asdict(self), indent=1, default=_json_default)
-
     @classmethod
     def from_json(cls, text: str) -> Status:
         record = json.loads(text)
@@ -161,10 +158,6 @@ class Status:
             runs=runs,
             **{k: tuple(v) if isinstance(v, list) else v for k, v in record.items()},
         )
-
-
-def _json_default(value):
-    raise TypeError(f"not JSON: {value!r}")
 
 
 def _finite_or_none(x: float):
@@ -447,6 +440,24 @@ def live_figure(results) -> Figure:
     matplotlib.figure.Figure
         Two Axes: CL with the potential-flow line −2πα, and CD; wall-corrected values with
         expanded-uncertainty bars (k = 2), drawn by :func:`tunnelred.plotting.plot_coefficient`.
+
+    Notes
+    -----
+    The potential-flow line is the Kutta–Joukowski lift of a spinning cylinder, CL = −2πα
+    (DESIGN.md §4); it holds while the stagnation points stay on the surface, |α| ≤ 2.
+
+    References
+    ----------
+    .. [1] J. D. Anderson, *Fundamentals of Aerodynamics*, 6th ed., McGraw-Hill, 2017, §3.15–3.16.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"config": ("run", ["A"]), "alpha": ("run", [1.0]),
+    ...                  "CL": ("run", [-2.5]), "CD": ("run", [0.8]), "flags": ("run", [""])},
+    ...                 coords={"run": ["r1"]})
+    >>> [ax.get_ylabel() for ax in live_figure(ds).axes]
+    ['lift coefficient $C_L$', 'drag coefficient $C_D$']
     """
     ds = plotting.results_dataset(results)
     fig = Figure(figsize=(11.0, 4.4), layout="constrained")
