@@ -469,9 +469,9 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
     if not hasattr(campaign, "load_run"):
         campaign = open_campaign(campaign, check_logs=False)
     cfg = campaign.config
-    tol = cfg.reduction.tolerances
     data = campaign.load_run(run)
     spec = data.spec
+    tol = cfg.tolerances_for(spec.config)
     with _house():
         if fig is None:
             fig = Figure(figsize=(7.0, 8.0), layout="constrained")

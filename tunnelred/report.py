@@ -813,7 +813,9 @@ def _flag_reasons(data: _Inputs, i: int, names: list[str]) -> dict[str, str]:
         for part in str(text).split(" | ") if isinstance(text, str) else ():
             name, _, reason = part.partition(": ")
             stored[name] = reason
-    tol = data.campaign.config.reduction.tolerances if data.campaign is not None else None
+    tol = None
+    if data.campaign is not None:
+        tol = data.campaign.config.tolerances_for(str(data.table["config"].iloc[i]))
     reasons = {}
     for name in names:
         if name in stored:
