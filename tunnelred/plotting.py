@@ -28,6 +28,7 @@ import pandas as pd
 import xarray as xr
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 
 from . import conditions, store, theory
 
@@ -618,10 +619,22 @@ def plot_comparison(
     x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
     y, uy = _values(ds, name), _values(ds, f"u_{name}")
     inner = dict(group_runs(ds, _other_split(by)))
+    handles = []
     with _house():
         ax = _new_axes(ax)
         for i, (label, idx) in enumerate(group_runs(ds, by)):
             style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
+            # The legend shows marker and dash together, so that it still reads in greyscale.
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=style.color,
+                    marker=style.marker,
+                    linestyle=style.linestyle,
+                    label=label,
+                )
+            )
             ax.errorbar(
                 x[idx],
                 y[idx],
@@ -650,7 +663,7 @@ def plot_comparison(
         ax.set_ylabel(COEFFICIENT_LABELS[name])
         title = {"config": "configuration", "speed": "tunnel speed", "re": "Reynolds number"}[by]
         ax.set_title(f"{name} by {title}")
-        ax.legend(title=_K_TEXT, loc="best")
+        ax.legend(handles=handles, title=_K_TEXT, loc="best")
     return ax
 
 
