@@ -245,7 +245,8 @@ def test_house_style_distinct_in_greyscale():
     markers = [s.marker for s in plotting.HOUSE_STYLE]
     dashes = [str(s.linestyle) for s in plotting.HOUSE_STYLE]
     assert len(set(markers)) == len(set(dashes)) == len(set(colours)) == len(colours)
-    # Okabe & Ito (2008), "Color Universal Design", the eight-colour palette (RGB 0-255):
+    # Okabe & Ito (2008), "Color Universal Design", the eight-colour palette (RGB 0-255; from
+    # memory). Exact integers, so the check is equality.
     okabe_ito = {
         (0, 0, 0),
         (230, 159, 0),
@@ -267,7 +268,7 @@ def test_standard_figures_written(results, tmp_path):
     assert any(n.startswith("cp_") for n in names)
     for path in paths:
         assert path.parent == tmp_path / "figures"
-        # PNG signature (ISO/IEC 15948 §5.2) and no temporary file left beside it.
+        # PNG signature (ISO/IEC 15948 §5.2, from memory) and no temporary file left beside it.
         assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert sorted(p.name for p in (tmp_path / "figures").iterdir()) == sorted(names)
     from PIL import Image
