@@ -106,3 +106,13 @@ def test_demo_writes_a_campaign_that_passes_check(tmp_path, capsys):
                     reason="the demo campaign in sample_runs/ is not written yet")  # fmt: skip
 def test_sample_campaign_passes_check(capsys):
     assert main(["check", str(REPO / "sample_runs")]) == 0, capsys.readouterr().out
+
+
+def test_watch_help_states_the_live_defaults(capsys):
+    # The help text is written without importing tunnelred.live; it must say what live uses.
+    from tunnelred import cli, live
+
+    assert float(cli._SETTLE_HELP) == live.DEFAULT_SETTLE
+    assert float(cli._POLL_HELP) == live.DEFAULT_POLL
+    assert cli.main(["watch", "--help"]) == 0
+    assert f"default {cli._SETTLE_HELP} s" in capsys.readouterr().out

@@ -299,8 +299,55 @@ def _run_compare(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# watch
 
-_SUBCOMMANDS = (_add_check, _add_reduce, _add_compare, _add_demo)
+
+# The defaults themselves live in tunnelred.live (a test keeps these texts in step); importing
+# it here would make every `tunnelred --help` load the whole pipeline.
+_SETTLE_HELP = "2"
+_POLL_HELP = "0.5"
+
+
+def _add_watch(subparsers) -> None:
+    p = subparsers.add_parser(
+        "watch",
+        help="reduce and flag each run while the test is still running",
+        description="Watch a campaign folder while the data acquisition writes into it. A run "
+        "is reduced as soon as it is complete: its row in runs.csv is a whole line, every log "
+        "it (and its zero and tare runs) names exists and ends with a line break, and none of "
+        "them has changed for SETTLE seconds. OUT is kept up to date (results, figures/live.png) "
+        "and a live view shows the latest runs with their flags. Ctrl-C stops it cleanly.",
+        epilog="example:\n  tunnelred watch /data/entry-3 -o /data/entry-3-out --settle 5",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("campaign", type=Path, help="the campaign folder being written")
+    p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
+    p.add_argument(
+        "--settle",
+        type=float,
+        metavar="SECONDS",
+        help="how long a run's files must stay unchanged before it counts as complete "
+        f"(default {_SETTLE_HELP} s)",
+    )
+    p.add_argument(
+        "--poll",
+        type=float,
+        metavar="SECONDS",
+        help=f"how often to look at the folder (default {_POLL_HELP} s)",
+    )
+    p.add_argument("--workers", type=_positive_int, default=1, help="processes (default 1)")
+    p.set_defaults(run=_run_watch)
+
+
+def _run_watch(args) -> int:
+    from .live import main_watch
+
+    return main_watch(args)
+
+
+# ---------------------------------------------------------------------------------------------
+
+_SUBCOMMANDS = (_add_check, _add_reduce, _add_compare, _add_watch, _add_demo)
 
 
 def _parser() -> argparse.ArgumentParser:

@@ -37,10 +37,8 @@ from datetime import datetime
 from pathlib import Path
 
 import numpy as np
-from matplotlib.figure import Figure
 
-from . import plotting, quality, store
-from .campaign import reduce_campaign
+from . import quality, store
 from .config import load_config
 from .errors import InputError, Problem
 from .readers import STREAMS
@@ -427,7 +425,7 @@ class LiveView:
 # The figure
 
 
-def live_figure(results) -> Figure:
+def live_figure(results):
     """CL and CD against the spin ratio for the runs so far, flagged runs circled.
 
     Parameters
@@ -459,6 +457,10 @@ def live_figure(results) -> Figure:
     >>> [ax.get_ylabel() for ax in live_figure(ds).axes]
     ['lift coefficient $C_L$', 'drag coefficient $C_D$']
     """
+    from matplotlib.figure import Figure  # deferred: `tunnelred --help` need not load matplotlib
+
+    from . import plotting
+
     ds = plotting.results_dataset(results)
     fig = Figure(figsize=(11.0, 4.4), layout="constrained")
     axes = fig.subplots(1, 2)
@@ -794,6 +796,8 @@ class _Watcher:
 
     def _reduce(self) -> None:
         try:
+            from .campaign import reduce_campaign
+
             self.results = reduce_campaign(
                 self.snapshot, self.out, workers=self.workers, progress=False
             )
@@ -1028,8 +1032,10 @@ def main_watch(args) -> int:
     if not campaign.is_dir():
         print(f"tunnelred: error: {campaign}: no such folder", file=sys.stderr)
         return 2
-    settle = float(getattr(args, "settle", DEFAULT_SETTLE))
-    poll = float(getattr(args, "poll", DEFAULT_POLL))
+    settle = getattr(args, "settle", None)
+    poll = getattr(args, "poll", None)
+    settle = DEFAULT_SETTLE if settle is None else float(settle)
+    poll = DEFAULT_POLL if poll is None else float(poll)
     if settle < 0 or poll <= 0:
         print("tunnelred: error: --settle must be >= 0 and --poll > 0", file=sys.stderr)
         return 2
