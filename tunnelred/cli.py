@@ -249,6 +249,45 @@ def _run_reduce(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# report
+
+
+def _add_report(subparsers) -> None:
+    p = subparsers.add_parser(
+        "report",
+        help="write the PDF test report of reduced results",
+        description="Write the test report of a results folder made by 'tunnelred reduce': "
+        "title page with the cautions, summary and test matrix, test conditions, the wall "
+        "corrections with their per-run sizes, results with expanded uncertainties (k = 2), "
+        "Cp against potential flow, an uncertainty budget, the quality flags with their "
+        "reasons, the configuration comparison, and an appendix with the configuration and the "
+        "SHA-256 of every input.",
+        epilog="examples:\n  tunnelred report out \n  tunnelred report out -o entry-3.pdf",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("results", type=Path, help="results folder of tunnelred reduce")
+    p.add_argument("-o", "--out", type=Path, help="PDF to write (default RESULTS/report.pdf)")
+    p.add_argument(
+        "--campaign",
+        type=Path,
+        help="the campaign folder, for the configuration appendix (default: as recorded)",
+    )
+    p.set_defaults(run=_run_report)
+
+
+def _run_report(args) -> int:
+    from .report import write_report
+
+    if not args.results.is_dir():
+        return _fail_usage(f"{args.results}: no such folder")
+    if args.campaign is not None and not args.campaign.is_dir():
+        return _fail_usage(f"{args.campaign}: no such folder")
+    pdf = write_report(args.results, args.out, campaign=args.campaign)
+    print(f"report written to {pdf}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
 # compare
 
 
@@ -347,7 +386,7 @@ def _run_watch(args) -> int:
 
 # ---------------------------------------------------------------------------------------------
 
-_SUBCOMMANDS = (_add_check, _add_reduce, _add_compare, _add_watch, _add_demo)
+_SUBCOMMANDS = (_add_check, _add_reduce, _add_report, _add_compare, _add_watch, _add_demo)
 
 
 def _parser() -> argparse.ArgumentParser:
