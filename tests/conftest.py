@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import textwrap
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -161,3 +162,31 @@ def demo_truth(demo_campaign_dir):
     import pandas as pd
 
     return pd.read_csv(demo_campaign_dir / "truth.csv", keep_default_na=False).set_index("run")
+
+
+@pytest.fixture(scope="session")
+def reduced(tmp_path_factory):
+    """(campaign folder, output folder) of a small synthetic campaign, reduced once a session."""
+    from tunnelred import synth
+    from tunnelred.campaign import reduce_campaign
+
+    root = tmp_path_factory.mktemp("small")
+    demo = synth.demo_spec()
+    plates = demo.configurations[0].label
+    spec = replace(
+        demo,
+        speeds=(6.0, 12.0),
+        spin_ratios_up=(0.0, 1.0, 2.0, 3.0),
+        spin_ratios_down=(1.5,),
+        pressure_speeds=(12.0,),
+        pressure_spin_ratios=(0.0, 1.0, 2.0),
+        tare_rpms=(500.0, 2000.0, 4000.0, 6000.0),
+        repeat_point=None,
+        repeat_count=0,
+        faults=(synth.Fault("spin_scatter", plates, 12.0, 3.0, 0.05),),
+        data_duration=3.0,
+        wind_off_duration=1.0,
+    )
+    synth.make_campaign(root / "campaign", spec)
+    reduce_campaign(root / "campaign", root / "out", workers=2, progress=False)
+    return root / "campaign", root / "out"

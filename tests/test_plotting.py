@@ -7,8 +7,6 @@ spin-scatter fault. Figures are drawn on the Agg backend and never shown.
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import matplotlib
 
 matplotlib.use("Agg")
@@ -19,35 +17,9 @@ import pytest  # noqa: E402
 from matplotlib.colors import to_rgb  # noqa: E402
 from matplotlib.container import ErrorbarContainer  # noqa: E402
 
-from tunnelred import plotting, synth  # noqa: E402
-from tunnelred.campaign import reduce_campaign  # noqa: E402
+from tunnelred import plotting  # noqa: E402
 from tunnelred.readers import open_campaign  # noqa: E402
 from tunnelred.store import read_results  # noqa: E402
-
-
-@pytest.fixture(scope="module")
-def reduced(tmp_path_factory):
-    """(campaign folder, output folder) of a small synthetic campaign, reduced."""
-    root = tmp_path_factory.mktemp("plotting")
-    demo = synth.demo_spec()
-    plates = demo.configurations[0].label
-    spec = replace(
-        demo,
-        speeds=(6.0, 12.0),
-        spin_ratios_up=(0.0, 1.0, 2.0, 3.0),
-        spin_ratios_down=(1.5,),
-        pressure_speeds=(12.0,),
-        pressure_spin_ratios=(0.0, 1.0, 2.0),
-        tare_rpms=(500.0, 2000.0, 4000.0, 6000.0),
-        repeat_point=None,
-        repeat_count=0,
-        faults=(synth.Fault("spin_scatter", plates, 12.0, 3.0, 0.05),),
-        data_duration=3.0,
-        wind_off_duration=1.0,
-    )
-    synth.make_campaign(root / "campaign", spec)
-    reduce_campaign(root / "campaign", root / "out", workers=2, progress=False)
-    return root / "campaign", root / "out"
 
 
 @pytest.fixture(scope="module")

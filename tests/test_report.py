@@ -11,7 +11,6 @@ matplotlib.use("Agg")
 import pandas as pd  # noqa: E402
 import pytest  # noqa: E402
 from pypdf import PdfReader  # noqa: E402
-from test_plotting import reduced  # noqa: E402, F401  (the reduced synthetic campaign fixture)
 
 from tunnelred import report, store  # noqa: E402
 
@@ -40,7 +39,7 @@ def _text(pdf) -> tuple[str, list[str]]:
 
 
 @pytest.fixture(scope="module")
-def built(reduced):  # noqa: F811
+def built(reduced):
     campaign_dir, out = reduced
     pdf = report.write_report(out, campaign=campaign_dir)
     text, pages = _text(pdf)
