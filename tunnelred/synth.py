@@ -52,7 +52,8 @@ import numpy as np
 import pandas as pd
 from scipy.signal import lfilter
 
-from . import air, balance, conditions, corrections
+from . import air, balance, conditions, corrections, pressure
+from ._arraylike import arraylike
 from .config import Configuration
 
 __all__ = [
@@ -86,6 +87,7 @@ def _lift_shape(end_plates):
     return (9.0, 1.8) if end_plates else (5.5, 1.6)
 
 
+@arraylike
 def true_lift_coefficient(alpha, reynolds, *, end_plates):
     """Whole-span lift coefficient of the illustrative rotating-cylinder model, in free air.
 
@@ -129,8 +131,7 @@ def true_lift_coefficient(alpha, reynolds, *, end_plates):
     """
     a = np.asarray(alpha, dtype=float)
     sat, scale = _lift_shape(end_plates)
-    cl = -np.sign(a) * sat * np.tanh(np.abs(a) / scale) ** 2 * _re_factor(reynolds, 0.03)
-    return cl[()] if cl.ndim == 0 else cl
+    return -np.sign(a) * sat * np.tanh(np.abs(a) / scale) ** 2 * _re_factor(reynolds, 0.03)
 
 
 def _re_factor(reynolds, exponent):
@@ -143,6 +144,7 @@ def _drag_curve(alpha, reynolds, rise):
     return cd0 - 0.75 * (1.0 - np.exp(-(a**2))) + rise * a**2
 
 
+@arraylike
 def true_drag_coefficient(alpha, reynolds, *, end_plates):
     """Whole-span drag coefficient of the illustrative rotating-cylinder model, in free air.
 
@@ -182,10 +184,10 @@ def true_drag_coefficient(alpha, reynolds, *, end_plates):
     >>> round(true_drag_coefficient(0.0, 1e5, end_plates=True), 3)
     1.15
     """
-    cd = _drag_curve(alpha, reynolds, 0.04 if end_plates else 0.07)
-    return cd[()] if cd.ndim == 0 else cd
+    return _drag_curve(alpha, reynolds, 0.04 if end_plates else 0.07)
 
 
+@arraylike
 def true_torque_coefficient(alpha, reynolds, *, end_plates):
     """Aerodynamic torque coefficient of the illustrative rotating-cylinder model, in free air.
 
@@ -229,10 +231,10 @@ def true_torque_coefficient(alpha, reynolds, *, end_plates):
     a = np.asarray(alpha, dtype=float)
     cf = 0.012 * _re_factor(reynolds, -0.2)
     plates = 1.15 if end_plates else 1.0
-    cm = -np.sign(a) * np.pi * cf * (a**2 + 0.5 * np.abs(a)) * plates
-    return cm[()] if cm.ndim == 0 else cm
+    return -np.sign(a) * np.pi * cf * (a**2 + 0.5 * np.abs(a)) * plates
 
 
+@arraylike
 def true_pressure_coefficients(alpha, reynolds, *, end_plates):
     """Mid-span pressure lift and drag coefficients ``CL_p``, ``CD_p`` of the model, in free air.
 
@@ -256,9 +258,9 @@ def true_pressure_coefficients(alpha, reynolds, *, end_plates):
     -----
     Mid-span sees nearly two-dimensional flow, the span average does not: without end plates
     the tip vortices shed circulation toward the ends, so the mid-span section lifts more than
-    the span average, ``CL_p = 1.15 CL``; end plates keep the loading nearly uniform,
-    ``CL_p = 1.02 CL``. The pressure drag follows the end-plate drag curve (no tip-induced drag
-    at mid-span) less 3 % of skin friction, in both configurations:
+    the span average, ``CL_p = 1.15 CL``; end plates keep the loading nearly uniform, and the
+    model takes it as uniform, ``CL_p = CL``. The pressure drag follows the end-plate drag curve
+    (no tip-induced drag at mid-span) less 3 % of skin friction, in both configurations:
     ``CD_p = 0.97 CD_plates``.
 
     References
@@ -271,10 +273,9 @@ def true_pressure_coefficients(alpha, reynolds, *, end_plates):
     >>> round(cd_p, 4)
     1.1155
     """
-    factor = 1.02 if end_plates else 1.15
-    cl_p = factor * np.asarray(true_lift_coefficient(alpha, reynolds, end_plates=end_plates))
-    cd_p = 0.97 * np.asarray(_drag_curve(alpha, reynolds, 0.04))
-    return (cl_p[()] if cl_p.ndim == 0 else cl_p), (cd_p[()] if cd_p.ndim == 0 else cd_p)
+    factor = 1.0 if end_plates else 1.15
+    cl_p = factor * true_lift_coefficient(alpha, reynolds, end_plates=end_plates)
+    return cl_p, 0.97 * _drag_curve(alpha, reynolds, 0.04)
 
 
 # Cp shape: attached potential-like front (1 - (a_e + 2 sin θ)², softly floored), a separated base,
@@ -294,7 +295,9 @@ def _cp_shape(theta, a_e):
     attached = 1.0 - (a_e + 2.0 * np.sin(theta)) ** 2
     floor = -1.25 - 3.0 * a_e - 3.0 * a_e**2
     soft = 0.25
-    attached = floor + soft * np.logaddexp(0.0, (attached - floor) / soft)
+    # Softplus floor, shifted so that Cp = 1 stays exactly 1.
+    lift_off = soft * np.log1p(np.exp(-(1.0 - floor) / soft))
+    attached = floor + soft * np.logaddexp(0.0, (attached - floor) / soft) - lift_off
     base = -1.05 - 0.6 * a_e - 0.9 * a_e**2
     upper = np.deg2rad(78.0 + 25.0 * a_e)
     lower = np.deg2rad(-78.0 + 5.0 * a_e)
@@ -344,6 +347,7 @@ def _shaped_cp(theta, cl_p, cd_p):
     return _cp_shape(th, a_e) + drag_gain * f_drag + lift_gain * f_lift
 
 
+@arraylike
 def true_surface_cp(theta, alpha, reynolds, *, end_plates):
     """Mid-span surface pressure coefficient of the illustrative model, in free air.
 
@@ -387,13 +391,12 @@ def true_surface_cp(theta, alpha, reynolds, *, end_plates):
 
     Examples
     --------
-    >>> round(true_surface_cp(0.0, 0.0, 1e5, end_plates=True), 6)
+    >>> round(true_surface_cp(0.0, 0.0, 1e5, end_plates=True), 5)
     1.0
     """
     th = np.deg2rad(np.asarray(theta, dtype=float))
     cl_p, cd_p = true_pressure_coefficients(alpha, reynolds, end_plates=end_plates)
-    cp = np.asarray(_shaped_cp(th, cl_p, cd_p))
-    return cp[()] if cp.ndim == 0 else cp
+    return _shaped_cp(th, cl_p, cd_p)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -884,12 +887,6 @@ def _tunnel_cp(theta, state) -> np.ndarray:
     return 1.0 - (1.0 - cp_c) * speed2 + drag_gain * f_drag + lift_gain * f_lift
 
 
-def _centrifugal_head(spec: SynthSpec, rho, omega):
-    """Pressure rise from transducer to tap in the air column spinning with the model. [Pa]"""
-    R = spec.diameter / 2.0
-    return 0.5 * rho * omega**2 * (R**2 - spec.transducer_radius**2)
-
-
 @dataclass
 class _Ambient:
     """The air over the campaign: linear trends in time [s from the campaign start]."""
@@ -1099,14 +1096,15 @@ class _Writer:
             "omega": omega_m,
             "Gamma": float(conditions.circulation(omega_m, s.diameter / 2.0)),
         }
+        # + 0.0 turns the -0.0 of a run at rest into 0.0.
         for k in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
-            row[k] = float(state[k])
+            row[k] = float(state[k]) + 0.0
         row["L_D"] = row["CL"] / row["CD"]
-        row["CL_ideal"] = -2.0 * np.pi * row["alpha"]
+        row["CL_ideal"] = -2.0 * np.pi * row["alpha"] + 0.0
         for k in ("eps_solid", "eps_wake", "delta_CD_buoyancy"):
             row[k] = float(state[k])
         for k in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
-            row[f"{k}_uncorrected"] = float(state[f"{k}_uncorrected"])
+            row[f"{k}_uncorrected"] = float(state[f"{k}_uncorrected"]) + 0.0
         row["L_D_uncorrected"] = row["CL_uncorrected"] / row["CD_uncorrected"]
         self.truth.append(row)
 
@@ -1115,7 +1113,7 @@ class _Writer:
         rng = self.rng
         tp = _stream_times(rng, s.pressure_rate, r.duration)
         q_p, rho_p, w_p = (np.interp(tp, tb, x) for x in (q, rho, omega))
-        head = _centrifugal_head(s, rho_p, w_p)
+        head = pressure.centrifugal_head(rho_p, w_p, s.diameter / 2.0, s.transducer_radius)
         delayed = tp[:, None] - self.tap_delay[None, :]
         theta = np.interp(delayed, tb, angle) + np.deg2rad(self.tap_azimuth)[None, :]
         cp = _tunnel_cp(theta, state)
