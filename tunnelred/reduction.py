@@ -632,7 +632,8 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     budgets = []
     for name in BUDGET_OUTPUTS:
-        if np.isfinite(values[name]):
+        # An exact result (alpha of a model at rest) has no variance to share out.
+        if np.isfinite(values[name]) and values[f"u_{name}"] > 0:
             table = linear.budget(name)
             table.insert(0, "output", name)
             table.insert(0, "run", run_id)

@@ -435,9 +435,11 @@ class Fault:
 
 
 def _default_configurations():
+    # The bare cylinder's mid-span pressure lift is 15 % above its whole-span balance lift (end
+    # effects, see true_pressure_coefficients): its configuration allows for that difference.
     return (
         Configuration("plates", "end plates of 2 d diameter at both ends", True, 0.25),
-        Configuration("bare", "no end plates", False, None),
+        Configuration("bare", "no end plates", False, None, {"cl_agreement": 0.2}),
     )
 
 
@@ -1218,6 +1220,8 @@ def _campaign_toml(w: _Writer) -> str:
         if c.end_plate_diameter is not None:
             items.append(("end_plate_diameter", c.end_plate_diameter))
         table(f"configurations.{c.label}", items)
+        if c.tolerance_overrides:
+            table(f"configurations.{c.label}.tolerances", list(c.tolerance_overrides.items()))
     table(
         "instruments.balance",
         [
