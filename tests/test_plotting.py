@@ -248,3 +248,22 @@ def test_standard_figures_written(results, tmp_path):
     with Image.open(paths[0]) as image:
         # 200 dpi (the PNG pHYs chunk stores pixels per metre: 200/0.0254 = 7874).
         assert image.info["dpi"][0] == pytest.approx(200, abs=0.5)
+
+
+def test_steadiness_figure_singles_out_the_unsteady_spin_run(results):
+    # The small campaign plants a 5 % rpm scatter in one run; the tolerance is the documented
+    # default of 2 % (docs/input-format.md, [reduction.tolerances] spin_scatter).
+    ax = plotting.plot_steadiness(results, "spin_scatter")
+    flagged = [str(r) for r in results["run"].values[results["flag_spin_scatter"].values]]
+    assert len(flagged) == 1
+    annotations = [t.get_text() for t in ax.texts]
+    assert annotations == flagged
+    tolerance_lines = [line for line in ax.get_lines() if line.get_label().startswith("tolerance")]
+    assert tolerance_lines and np.allclose(tolerance_lines[0].get_ydata(), 2.0)
+    plotted = np.concatenate([line.get_ydata() for line in ax.get_lines()[:2]])
+    expected = np.abs(results["spin_scatter"].values) * 100  # runs at rest have none (NaN)
+    assert np.allclose(
+        np.sort(plotted[np.isfinite(plotted)]), np.sort(expected[np.isfinite(expected)])
+    )
+    with pytest.raises(ValueError, match="steadiness measure"):
+        plotting.plot_steadiness(results, "CL")

@@ -17,6 +17,7 @@ References
 from __future__ import annotations
 
 import contextlib
+import json
 import math
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -44,6 +45,7 @@ __all__ = [
     "plot_cp",
     "plot_run_diagnostics",
     "plot_comparison",
+    "plot_steadiness",
     "save_standard_figures",
 ]
 
@@ -667,6 +669,84 @@ def plot_comparison(
     return ax
 
 
+#: Steadiness measures, their flag and their axis label (values as fractions unless stated).
+_STEADINESS = {
+    "spin_scatter": ("spin-ratio scatter std(α)/|α|", 100.0, "%"),
+    "spin_drift": ("spin-ratio drift over the run", 100.0, "%"),
+    "speed_drift": ("tunnel-speed drift over the run", 100.0, "%"),
+    "temperature_drift": ("temperature drift over the run", 1.0, "K"),
+    "zero_shift": ("zero shift, fraction of full scale", 100.0, "%"),
+}
+
+
+def plot_steadiness(
+    results, name: str = "spin_scatter", *, tolerance: float | None = None, ax: Axes | None = None
+) -> Axes:
+    """One steadiness measure for every run, in run order, against its tolerance.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results.
+    name : str
+        ``"spin_scatter"`` (default), ``"spin_drift"``, ``"speed_drift"``,
+        ``"temperature_drift"`` or ``"zero_shift"`` (docs/results.md).
+    tolerance : float, optional
+        The limit drawn, in the measure's own unit (a fraction, or K); default: the campaign's
+        ``[reduction.tolerances]`` value recorded in the results, else the documented default.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; a new one when None.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    Runs whose ``flag_<name>`` is raised are drawn with a distinct marker and labelled with their
+    run id, so the run to repeat stands out at a glance; a configuration's own tolerance (set in
+    ``[configurations.LABEL.tolerances]``) decides the flag even where it differs from the line.
+    """
+    from .config import Tolerances  # only the documented defaults are needed here
+
+    if name not in _STEADINESS:
+        raise ValueError(f"no steadiness measure {name!r}; choose one of {sorted(_STEADINESS)}")
+    ds = results_dataset(results)
+    label, scale, unit = _STEADINESS[name]
+    if tolerance is None:
+        recorded = ds.attrs.get("tolerances")
+        tolerance = json.loads(recorded).get(name) if recorded else getattr(Tolerances(), name)
+    values = np.abs(_values(ds, name)) * scale
+    runs = [str(r) for r in ds["run"].values]
+    flagged = (
+        np.asarray(ds[f"flag_{name}"].values, dtype=bool)
+        if f"flag_{name}" in ds
+        else np.zeros(len(runs), dtype=bool)
+    )
+    order = np.arange(len(runs))
+    good, bad = HOUSE_STYLE[0], HOUSE_STYLE[1]
+    with _house():
+        ax = _new_axes(ax)
+        ax.plot(order[~flagged], values[~flagged], linestyle="none", marker=good.marker,
+                color=good.color, label="runs")  # fmt: skip
+        if flagged.any():
+            ax.plot(order[flagged], values[flagged], linestyle="none", marker=bad.marker,
+                    markersize=9, color=bad.color, label="flagged")  # fmt: skip
+            for i in np.flatnonzero(flagged):
+                ax.annotate(runs[i], (order[i], values[i]), textcoords="offset points",
+                            xytext=(6, 4), color=bad.color)  # fmt: skip
+        ax.axhline(tolerance * scale, color=_BOUND_COLOR, linestyle="--",
+                   label=f"tolerance {_sig(tolerance * scale)} {unit}")  # fmt: skip
+        step = max(1, len(runs) // 12)
+        ax.set_xticks(order[::step], [runs[i] for i in order[::step]], rotation=45, ha="right")
+        ax.set_xlabel("run")
+        ax.set_ylabel(f"{label} [{unit}]")
+        ax.set_ylim(bottom=0)
+        ax.set_title(label)
+        ax.legend(loc="best")
+    return ax
+
+
 def representative_runs(results, count: int = 3) -> list[str]:
     """Runs that span the campaign's spin ratios, for Cp figures and budgets.
 
@@ -732,7 +812,8 @@ def save_standard_figures(results, out_dir) -> list[Path]:
     list of pathlib.Path
         ``<X>_alpha.png`` for each of CL, CD, CM, C_power, L_D, CL_p, CD_p with finite values;
         ``<X>_by_speed.png`` and ``<X>_by_re.png`` for CL and CD when the campaign ran more than
-        one speed; ``cp_<run>.png`` for the :func:`representative_runs`.
+        one speed; ``spin_scatter.png`` and ``speed_drift.png`` (:func:`plot_steadiness`);
+        ``cp_<run>.png`` for the :func:`representative_runs`.
     """
     ds = results_dataset(results)
     folder = Path(out_dir) / "figures"
@@ -748,6 +829,9 @@ def save_standard_figures(results, out_dir) -> list[Path]:
             for by in ("speed", "re"):
                 ax = plot_comparison(ds, name, by=by)
                 written.append(_save(ax.figure, folder / f"{name}_by_{by}.png"))
+    for name in [n for n in ("spin_scatter", "speed_drift") if _has_values(ds, n)]:
+        ax = plot_steadiness(ds, name)
+        written.append(_save(ax.figure, folder / f"{name}.png"))
     if "Cp" in ds:
         for run in representative_runs(ds):
             ax = plot_cp(ds, run)
