@@ -6,8 +6,9 @@ alone), after tunnelred is imported there: import time is not counted. For each 
 - wall time of a first reduction (no cache) with 1 worker, and samples per second;
 - the parse floor: the time pyarrow.csv.read_csv takes to parse the same CSV files, and the ratio;
 - peak memory: the Python heap peak by tracemalloc (a second reduction, traced: numpy buffers
-  are traced, pyarrow's are not) and the peak resident set size from resource.getrusage
-  (RUSAGE_SELF of the measuring process, and RUSAGE_CHILDREN for pool workers);
+  are traced, pyarrow's are not) and the peak resident set size of the measuring process from
+  resource.getrusage(RUSAGE_SELF), with 1 worker so that all the work is in that process (pool
+  workers are forked by the forkserver, not by it, so RUSAGE_CHILDREN would not see them);
 - the wall time of an unchanged re-run (every run from the cache), as a fraction of the first.
 
 Then the 1 → 2 worker speed-up on the largest campaign, and the linearity of time in runs and in
@@ -106,7 +107,6 @@ def _child(args: dict) -> dict:
     first = reduce_campaign(campaign, out, workers=workers, fresh=True, progress=False)
     wall = time.perf_counter() - started
     rss_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    rss_children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     started = time.perf_counter()
     again = reduce_campaign(campaign, out, workers=workers, progress=False)
     rerun = time.perf_counter() - started
@@ -118,7 +118,6 @@ def _child(args: dict) -> dict:
         "rerun_from_cache": again.from_cache,
         # Linux reports ru_maxrss in KiB, macOS in bytes.
         "rss_self_mib": rss_self / (1024 if sys.platform != "darwin" else 1024**2),
-        "rss_children_mib": rss_children / (1024 if sys.platform != "darwin" else 1024**2),
     }
     if args["trace"]:
         tracemalloc.start()
@@ -196,6 +195,7 @@ def main(argv=None) -> int:
 
     from tunnelred import __version__, synth
 
+    load_before = os.getloadavg()
     rows = []
     speedup = None
     sizes = _sizes(options)
@@ -228,7 +228,6 @@ def main(argv=None) -> int:
                     "wall_1": one["wall"],
                     "wall_2": two["wall"],
                     "speedup": one["wall"] / two["wall"],
-                    "rss_children_mib_2": two["rss_children_mib"],
                 }
 
     base = min(sizes, key=lambda s: (s[0], s[1] * s[2]))
@@ -245,6 +244,8 @@ def main(argv=None) -> int:
             "processor": platform.processor() or platform.machine(),
             "cpu_count": os.cpu_count(),
             "python": platform.python_version(),
+            # Other processes on the machine slow every figure; the 1-minute load says how busy.
+            "load_average_1min_start_end": [load_before[0], os.getloadavg()[0]],
         },
         "tunnelred_version": __version__,
         "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),

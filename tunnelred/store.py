@@ -12,7 +12,6 @@ reader never sees a half-written file, whatever interrupts the writer.
 from __future__ import annotations
 
 import functools
-import io
 import json
 import os
 import tempfile
@@ -419,22 +418,20 @@ def _escape_cell(value):
     return value
 
 
-def _csv_bytes(table: pd.DataFrame) -> bytes:
-    """CSV text of a table whose text cells cannot be taken for spreadsheet formulas.
+def _write_csv(table: pd.DataFrame, path: Path) -> None:
+    """Write a table as CSV, atomically, its text cells unable to pass for spreadsheet formulas.
 
-    Only text is escaped (OWASP "CSV Injection"): a number such as -0.25 stays a number.
+    Only text is escaped (OWASP "CSV Injection"): a number such as -0.25 stays a number. The
+    rows are streamed to the file in chunks, so a large budget table is never one string.
     """
     table = table.copy()
     for column in table.columns:
-        if not (
-            pd.api.types.is_numeric_dtype(table[column])
-            or pd.api.types.is_bool_dtype(table[column])
-        ):
-            table[column] = table[column].map(_escape_cell).astype(object)
-    buffer = io.StringIO()
-    # RFC 4180 line ends (CRLF); they also make the writer quote a cell holding a lone CR or LF.
-    table.to_csv(buffer, index=False, lineterminator="\r\n")
-    return buffer.getvalue().encode("utf-8")
+        values = table[column]
+        if not (pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values)):
+            table[column] = values.map(_escape_cell).astype(object)
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as handle:
+        # RFC 4180 line ends (CRLF); they also make the writer quote a cell holding a lone CR or LF.
+        table.to_csv(handle, index=False, lineterminator="\r\n", chunksize=1_000)
 
 
 def _with_columns(table: pd.DataFrame | None, columns: tuple[str, ...]) -> pd.DataFrame:
@@ -488,12 +485,12 @@ def write_results(
     }
     with atomic_path(paths["results.nc"]) as tmp:
         ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
-    atomic_write_bytes(paths["results.csv"], _csv_bytes(run_table(ds)))
+    _write_csv(run_table(ds), paths["results.csv"])
     atomic_write_bytes(paths["provenance.json"], _provenance_json(ds))
     failures = _with_columns(failures, FAILURE_COLUMNS)
     failures["line"] = failures["line"].astype("Int64")
-    atomic_write_bytes(paths["failures.csv"], _csv_bytes(failures))
-    atomic_write_bytes(paths["budgets.csv"], _csv_bytes(_with_columns(budgets, BUDGET_COLUMNS)))
+    _write_csv(failures, paths["failures.csv"])
+    _write_csv(_with_columns(budgets, BUDGET_COLUMNS), paths["budgets.csv"])
     return paths
 
 
