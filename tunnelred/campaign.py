@@ -21,6 +21,7 @@ import json
 import multiprocessing
 import os
 import pickle
+import secrets
 import sys
 import threading
 import time
@@ -32,6 +33,7 @@ from pathlib import Path
 
 import pandas as pd
 import xarray as xr
+from threadpoolctl import threadpool_limits
 
 from . import __version__, quality, reduction, store
 from .errors import InputError, Problem, ReductionError
@@ -196,12 +198,33 @@ def _reduce_guarded(campaign, run_id: str, monte_carlo: int) -> _Outcome:
     return _Outcome(run_id, result=result)
 
 
-# A worker process opens each campaign once and keeps it for the runs it is sent; the token
-# (a hash of every input) makes a long-lived dask worker reopen a campaign that has changed.
+# A worker process opens each campaign once and keeps it for the runs it is sent, with a token:
+# a pool's own (its processes live for one reduction), or for dask a hash of every input, so
+# that a long-lived dask worker reopens a campaign that has changed.
 _OPEN_CAMPAIGNS: dict[str, tuple[str, object]] = {}
 
 
+def _blas_one_thread():
+    """Hold numpy's BLAS to one thread.
+
+    A run's matrices are small: a threaded BLAS spends a second core on them for nothing (and
+    with several worker processes, oversubscribes the machine). Parallelism comes from
+    processes.
+    """
+    return threadpool_limits(limits=1, user_api="blas")
+
+
+_LIMITED: list[bool] = []
+
+
+def _worker_setup() -> None:
+    if not _LIMITED:
+        _blas_one_thread()  # kept for the life of the worker process
+        _LIMITED.append(True)
+
+
 def _worker(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
+    _worker_setup()
     try:
         held = _OPEN_CAMPAIGNS.get(path)
         if held is None or held[0] != token:
@@ -321,29 +344,36 @@ def _pool_context():
 
 def _warm(path: str, token: str) -> None:
     """Open the campaign in a new pool process before its first run arrives."""
+    _worker_setup()
     if _OPEN_CAMPAIGNS.get(path, ("",))[0] != token:
         _OPEN_CAMPAIGNS[path] = (token, open_campaign(path, check_logs=False))
 
 
 class _PoolStart:
-    """Start a process pool without waiting for it.
+    """A process pool of ``helpers`` processes, started without waiting for it.
 
     The first submission to a forkserver pool blocks until the server has imported tunnelred
-    (a second or more); a helper thread makes it (a warm-up task) while this process gets on
-    with reducing. Whichever of the two finishes last shuts the pool down.
+    (a second or more); a helper thread makes it (a warm-up task that opens the campaign) while
+    this process gets on with its own work. Whichever of the two finishes last shuts the pool
+    down. The pool lives for one reduction, so its processes' opened campaign is current: the
+    token is only this pool's.
     """
 
-    def __init__(self, executor: ProcessPoolExecutor, path: str, token: str):
-        self.executor = executor
+    def __init__(self, path: str, helpers: int):
+        self.path = path
+        self.helpers = helpers
+        self.token = secrets.token_hex(8)
+        self.executor = ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context())
         self._lock = threading.Lock()
         self._submitted = False
         self._finished = False
-        self._thread = threading.Thread(target=self._start, args=(path, token), daemon=True)
+        self._thread = threading.Thread(target=self._start, daemon=True)
         self._thread.start()
 
-    def _start(self, path: str, token: str) -> None:
+    def _start(self) -> None:
         try:
-            self.executor.submit(_warm, path, token)
+            for _ in range(self.helpers):
+                self.executor.submit(_warm, self.path, self.token)
         except Exception:
             pass  # a pool that cannot start leaves the runs to this process
         with self._lock:
@@ -363,24 +393,22 @@ class _PoolStart:
                 self.executor.shutdown(wait=wait, cancel_futures=True)
 
 
-def _run_pool(campaign, path, token, run_ids, monte_carlo, workers):
-    """``workers - 1`` pool processes, and this process as the last worker.
+def _run_pool(campaign, pool: _PoolStart, run_ids, monte_carlo):
+    """The pool's processes, and this process as one more worker.
 
     This process reduces from the front of the list at once; once the pool is up, its
     processes take runs from the back, each kept two runs ahead so that none waits.
     """
     todo = deque(run_ids)
-    helpers = workers - 1
-    pool = _PoolStart(
-        ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context()), path, token
-    )
     pending: dict = {}
     broken = False
     try:
         while todo or pending:
-            while todo and not broken and len(pending) < 2 * helpers and pool.ready:
+            while todo and not broken and len(pending) < 2 * pool.helpers and pool.ready:
                 try:
-                    future = pool.executor.submit(_worker, path, token, todo[-1], monte_carlo)
+                    future = pool.executor.submit(
+                        _worker, pool.path, pool.token, todo[-1], monte_carlo
+                    )
                 except BrokenProcessPool:
                     broken = True  # the rest is reduced here
                     break
@@ -475,6 +503,7 @@ def _select(campaign, run_ids) -> list[str]:
 
 
 def _token(campaign, keys: dict[str, str]) -> str:
+    """A hash of every input: a long-lived dask worker reopens a campaign that has changed."""
     text = json.dumps([campaign.config.sha256, sorted(keys.values())])
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -563,8 +592,21 @@ def reduce_campaign(
     if dask is not None:
         _distributed()
     path = Path(path).resolve()
-    campaign = open_campaign(path, check_logs=False)
     workers = max(1, int(workers or os.cpu_count() or 1))
+    # The pool starts first, so that its start-up overlaps opening the campaign and reading
+    # the cache; it is shut down unused if every run comes from the cache.
+    pool = _PoolStart(str(path), workers - 1) if dask is None and workers > 1 else None
+    try:
+        return _reduce(
+            path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids
+        )
+    finally:
+        if pool is not None:
+            pool.finish(wait=False)
+
+
+def _reduce(path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids):
+    campaign = open_campaign(path, check_logs=False)
     selected = _select(campaign, run_ids)
 
     failures: dict[str, list[dict]] = {}
@@ -597,14 +639,11 @@ def reduce_campaign(
     try:
         if dask is not None:
             stream = _run_dask(str(path), _token(campaign, keys), todo, monte_carlo, workers, dask)
-        elif workers == 1 or len(todo) <= 1:
+        elif pool is None or len(todo) <= 1:
             stream = _run_serial(campaign, todo, monte_carlo)
         else:
-            token = _token(campaign, keys)
-            stream = _run_pool(
-                campaign, str(path), token, todo, monte_carlo, min(workers, len(todo))
-            )
-        with contextlib.closing(stream):
+            stream = _run_pool(campaign, pool, todo, monte_carlo)
+        with contextlib.closing(stream), _blas_one_thread():
             for outcome in stream:
                 outcomes[outcome.run] = outcome
                 if cache is not None and outcome.cacheable:
