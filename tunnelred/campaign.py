@@ -214,17 +214,29 @@ def _blas_one_thread():
     return threadpool_limits(limits=1, user_api="blas")
 
 
-_LIMITED: list[bool] = []
+_blas_limited = False
 
 
 def _worker_setup() -> None:
-    if not _LIMITED:
+    global _blas_limited
+    if not _blas_limited:
         _blas_one_thread()  # kept for the life of the worker process
-        _LIMITED.append(True)
+        _blas_limited = True
 
 
 def _worker(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
+    """A pool process's task: its BLAS stays at one thread (the process is ours)."""
     _worker_setup()
+    return _open_and_reduce(path, token, run_id, monte_carlo)
+
+
+def _dask_task(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
+    """A dask worker's task: the worker may serve others, so the BLAS limit is for this run."""
+    with _blas_one_thread():
+        return _open_and_reduce(path, token, run_id, monte_carlo)
+
+
+def _open_and_reduce(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
     try:
         held = _OPEN_CAMPAIGNS.get(path)
         if held is None or held[0] != token:
@@ -459,7 +471,7 @@ def _run_dask(path, token, run_ids, monte_carlo, workers, dask):
     futures = []
     try:
         futures = [
-            client.submit(_worker, path, token, rid, monte_carlo, pure=False) for rid in run_ids
+            client.submit(_dask_task, path, token, rid, monte_carlo, pure=False) for rid in run_ids
         ]
         names = {future.key: rid for future, rid in zip(futures, run_ids, strict=True)}
         for future in as_completed(futures):
