@@ -32,8 +32,8 @@ from matplotlib.figure import Figure
 from scipy import stats
 
 from .errors import InputError
-from .plotting import COEFFICIENT_LABELS, COVERAGE_FACTOR, HOUSE_STYLE, _house
-from .store import _csv_bytes, atomic_path, atomic_write_bytes, read_results, run_table
+from .plotting import COEFFICIENT_LABELS, COVERAGE_FACTOR, HOUSE_STYLE, house_style
+from .store import atomic_path, read_results, run_table, write_csv
 
 __all__ = [
     "COVERAGE_FACTOR",
@@ -1254,7 +1254,7 @@ def plot_sweeps(sweeps: Sequence[Sweep], name: str, *, ax: Axes | None = None) -
         One line (labelled with the sweep key) and one band per sweep that has ``name``.
     """
     k = COVERAGE_FACTOR
-    with _house():
+    with house_style():
         ax = _axes(ax)
         for i, sweep in enumerate(s for s in sweeps if _has(s, name)):
             style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
@@ -1306,7 +1306,7 @@ def plot_difference(d: Difference, *, ax: Axes | None = None) -> Axes:
     """
     style = HOUSE_STYLE[0]
     k = d.k
-    with _house():
+    with house_style():
         ax = _axes(ax)
         ax.axhline(0.0, color="#777777", linewidth=0.8)
         ax.fill_between(
@@ -1428,11 +1428,9 @@ def run_compare(
     dest = Path(dest)
     written: dict[str, Path] = {}
     comparison = comparison_table(table, by=by, names=names, power_level=power_level)
-    written["comparison.csv"] = atomic_write_bytes(dest / "comparison.csv", _csv_bytes(comparison))
+    written["comparison.csv"] = write_csv(comparison, dest / "comparison.csv")
     figures = characteristics_table(table, by=by, power_level=power_level)
-    written["characteristics.csv"] = atomic_write_bytes(
-        dest / "characteristics.csv", _csv_bytes(figures)
-    )
+    written["characteristics.csv"] = write_csv(figures, dest / "characteristics.csv")
     sweeps = find_sweeps(table, by=by)
     groups: dict[str, list[Sweep]] = {}
     for sweep in sweeps:

@@ -476,8 +476,9 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
             run, f"the tunnel stream lacks {', '.join(missing)} (q_source = {source!r})", file
         )
     factor = config.tunnel.contraction_factor if source == "contraction" else 1.0
-    T, p, RH = tunnel["T"], tunnel["p_baro"], tunnel["RH"]
-    qc = factor * tunnel[column]
+    # Plain arrays inside: the columns share one time base, so labels add only alignment cost.
+    T, p, RH = (tunnel[name].to_numpy() for name in ("T", "p_baro", "RH"))
+    qc = factor * tunnel[column].to_numpy()
     q = dynamic_pressure(qc, p)
     rho = air.density(T, p, RH)
     mu = air.viscosity(T)
@@ -496,7 +497,7 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
     out = xr.Dataset(coords={"time": tunnel["time"]}, attrs=dict(tunnel.attrs))
     for name, da in values.items():
         units, long_name = _FREE_STREAM_ATTRS[name]
-        out[name] = ("time", as_array(da), {"units": units, "long_name": long_name})
+        out[name] = ("time", np.asarray(da, dtype=float), {"units": units, "long_name": long_name})
     return out
 
 

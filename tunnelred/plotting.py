@@ -35,6 +35,7 @@ from . import conditions, store, theory
 
 __all__ = [
     "HOUSE_STYLE",
+    "house_style",
     "SeriesStyle",
     "COVERAGE_FACTOR",
     "COEFFICIENT_LABELS",
@@ -116,7 +117,8 @@ _NEAREST_ZEROS = 20  # zero runs shown in the drift panel, nearest in time to th
 
 
 @contextlib.contextmanager
-def _house() -> Iterator[None]:
+def house_style() -> Iterator[None]:
+    """Context in which figures are drawn in the house style (fonts, grid, line widths)."""
     with mpl.rc_context(_RC):
         yield
 
@@ -303,7 +305,7 @@ def plot_coefficient(
     """
     ds = results_dataset(results)
     _check_name(ds, name)
-    with _house():
+    with house_style():
         ax = _new_axes(ax)
         if theory:
             _theory_lines(ax, ds, name)
@@ -391,7 +393,7 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
     fine = np.linspace(-180.0, 180.0, 721)
     ideal = theory.cp_surface(fine, alpha)
     k = COVERAGE_FACTOR
-    with _house():
+    with house_style():
         ax = _new_axes(ax, polar=polar, size=(5.6, 5.0) if polar else _FIGURE_SIZE)
         style = HOUSE_STYLE[0]
         to_x = np.radians if polar else np.asarray
@@ -475,7 +477,7 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
     data = campaign.load_run(run)
     spec = data.spec
     tol = cfg.tolerances_for(spec.config)
-    with _house():
+    with house_style():
         if fig is None:
             fig = Figure(figsize=(7.0, 8.0), layout="constrained")
         ax_alpha, ax_speed, ax_zero = fig.subplots(3, 1)
@@ -622,7 +624,7 @@ def plot_comparison(
     y, uy = _values(ds, name), _values(ds, f"u_{name}")
     inner = dict(group_runs(ds, _other_split(by)))
     handles = []
-    with _house():
+    with house_style():
         ax = _new_axes(ax)
         for i, (label, idx) in enumerate(group_runs(ds, by)):
             style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
@@ -725,7 +727,7 @@ def plot_steadiness(
     )
     order = np.arange(len(runs))
     good, bad = HOUSE_STYLE[0], HOUSE_STYLE[1]
-    with _house():
+    with house_style():
         ax = _new_axes(ax)
         ax.plot(order[~flagged], values[~flagged], linestyle="none", marker=good.marker,
                 color=good.color, label="runs")  # fmt: skip

@@ -630,14 +630,17 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     flags = tuple(quality.check_run(measures, cfg.tolerances_for(spec.config)))
     values.update(quality.flag_columns(flags))
 
-    budgets = []
-    for name in BUDGET_OUTPUTS:
+    budgets = {
+        name: linear.budget(name)
+        for name in BUDGET_OUTPUTS
         # An exact result (alpha of a model at rest) has no variance to share out.
-        if np.isfinite(values[name]) and values[f"u_{name}"] > 0:
-            table = linear.budget(name)
-            table.insert(0, "output", name)
-            table.insert(0, "run", run_id)
-            budgets.append(table)
+        if np.isfinite(values[name]) and values[f"u_{name}"] > 0
+    }
+    budget_table = None
+    if budgets:
+        budget_table = pd.concat(budgets, names=["output", None]).reset_index(0)
+        budget_table.insert(0, "run", run_id)
+        budget_table = budget_table.reset_index(drop=True)
     return RunResult(
         run=run_id,
         config=spec.config,
@@ -645,7 +648,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         theta=theta,
         profiles=profiles,
         flags=flags,
-        budgets=pd.concat(budgets, ignore_index=True) if budgets else None,
+        budgets=budget_table,
         inputs=_files_used(campaign, spec),
     )
 

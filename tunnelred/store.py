@@ -44,6 +44,7 @@ __all__ = [
     "read_results",
     "atomic_path",
     "atomic_write_bytes",
+    "write_csv",
 ]
 
 # An empty units string marks a variable that has none (text, booleans): CF gives such variables
@@ -418,7 +419,7 @@ def _escape_cell(value):
     return value
 
 
-def _write_csv(table: pd.DataFrame, path: Path) -> None:
+def write_csv(table: pd.DataFrame, path) -> Path:
     """Write a table as CSV, atomically, its text cells unable to pass for spreadsheet formulas.
 
     Only text is escaped (OWASP "CSV Injection"): a number such as -0.25 stays a number. The
@@ -432,6 +433,7 @@ def _write_csv(table: pd.DataFrame, path: Path) -> None:
     with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as handle:
         # RFC 4180 line ends (CRLF); they also make the writer quote a cell holding a lone CR or LF.
         table.to_csv(handle, index=False, lineterminator="\r\n", chunksize=1_000)
+    return Path(path)
 
 
 def _with_columns(table: pd.DataFrame | None, columns: tuple[str, ...]) -> pd.DataFrame:
@@ -485,12 +487,12 @@ def write_results(
     }
     with atomic_path(paths["results.nc"]) as tmp:
         ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
-    _write_csv(run_table(ds), paths["results.csv"])
+    write_csv(run_table(ds), paths["results.csv"])
     atomic_write_bytes(paths["provenance.json"], _provenance_json(ds))
     failures = _with_columns(failures, FAILURE_COLUMNS)
     failures["line"] = failures["line"].astype("Int64")
-    _write_csv(failures, paths["failures.csv"])
-    _write_csv(_with_columns(budgets, BUDGET_COLUMNS), paths["budgets.csv"])
+    write_csv(failures, paths["failures.csv"])
+    write_csv(_with_columns(budgets, BUDGET_COLUMNS), paths["budgets.csv"])
     return paths
 
 

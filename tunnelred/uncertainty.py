@@ -288,53 +288,45 @@ class LinearResult:
         var = float(contrib @ self.input_correlation @ contrib)
         with np.errstate(divide="ignore", invalid="ignore"):
             share = contrib**2 / var
-        rows = []
+        columns = ("input", "value", "u", "sensitivity", "contribution", "share", "kind")
         if group:
-            for name, sl in self.input_index.items():
-                scalar = sl.stop - sl.start == 1 and self.input_names[sl.start] == name
-                rows.append(
-                    {
-                        "input": name,
-                        "value": self.input_values[sl.start] if scalar else np.nan,
-                        "u": self.input_u[sl.start] if scalar else np.nan,
-                        "sensitivity": sens[sl.start] if scalar else np.nan,
-                        "contribution": (
-                            contrib[sl.start] if scalar else math.sqrt(np.sum(contrib[sl] ** 2))
-                        ),
-                        "share": float(np.sum(share[sl])),
-                        "kind": self.input_kind[sl.start],
-                    }
-                )
+            starts = np.array([sl.start for sl in self.input_index.values()])
+            sizes = np.array([sl.stop - sl.start for sl in self.input_index.values()])
+            names = list(self.input_index)
+            scalar = (sizes == 1) & np.array(
+                [self.input_names[i] == n for i, n in zip(starts, names, strict=True)]
+            )
+            # Vector inputs: variance contributions added, the contribution a root sum of squares.
+            sum_sq = np.add.reduceat(contrib**2, starts)
+            table = {
+                "input": names,
+                "value": np.where(scalar, self.input_values[starts], np.nan),
+                "u": np.where(scalar, self.input_u[starts], np.nan),
+                "sensitivity": np.where(scalar, sens[starts], np.nan),
+                "contribution": np.where(scalar, contrib[starts], np.sqrt(sum_sq)),
+                "share": np.add.reduceat(np.nan_to_num(share, nan=0.0), starts)
+                if var > 0
+                else np.full(len(names), np.nan),
+                "kind": [self.input_kind[i] for i in starts],
+            }
         else:
-            for i, label in enumerate(self.input_names):
-                rows.append(
-                    {
-                        "input": label,
-                        "value": self.input_values[i],
-                        "u": self.input_u[i],
-                        "sensitivity": sens[i],
-                        "contribution": contrib[i],
-                        "share": share[i],
-                        "kind": self.input_kind[i],
-                    }
-                )
+            table = {
+                "input": list(self.input_names),
+                "value": self.input_values,
+                "u": self.input_u,
+                "sensitivity": sens,
+                "contribution": contrib,
+                "share": share,
+                "kind": list(self.input_kind),
+            }
+        frame = pd.DataFrame(table, columns=columns)
         acting = contrib != 0
         off = self.input_correlation[np.ix_(acting, acting)] - np.eye(int(acting.sum()))
         if np.any(off != 0):
-            rows.append(
-                {
-                    "input": CORRELATION_ROW,
-                    "value": np.nan,
-                    "u": np.nan,
-                    "sensitivity": np.nan,
-                    "contribution": np.nan,
-                    "share": (var - float(np.sum(contrib**2))) / var if var > 0 else np.nan,
-                    "kind": "",
-                }
-            )
-        return pd.DataFrame(
-            rows, columns=["input", "value", "u", "sensitivity", "contribution", "share", "kind"]
-        )
+            cross = (var - float(np.sum(contrib**2))) / var if var > 0 else np.nan
+            row = {"input": CORRELATION_ROW, "share": cross, "kind": ""}
+            frame.loc[len(frame)] = [row.get(c, np.nan) for c in columns]
+        return frame
 
     def ufloats(self, names: Sequence[str]) -> dict[str, object]:
         """Scalar outputs as correlated ``uncertainties`` numbers, for notebooks.

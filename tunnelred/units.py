@@ -17,6 +17,7 @@ not say whether cycles or radians are meant.
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from dataclasses import dataclass
@@ -91,6 +92,7 @@ def _is_angular(units: pint.Unit, root: pint.Unit) -> bool:
     return ureg.get_root_units(units)[1] == root
 
 
+@functools.lru_cache(maxsize=1024)
 def conversion(unit_text: str, dimension: str | None) -> Conversion:
     """The conversion of values in ``unit_text`` to the SI target of ``dimension``.
 
@@ -125,15 +127,14 @@ def conversion(unit_text: str, dimension: str | None) -> Conversion:
         return _conversion_any(units)
     target, attr, _ = DIMENSIONS[dimension]
     target_units = _units_of(target)
-    wrong = f"{unit_text!r}, a unit of {_describe(units)}"
     if units.dimensionality != target_units.dimensionality:
-        raise ValueError(wrong)
+        raise ValueError(f"{unit_text!r}, a unit of {_describe(units)}")
     if dimension == "angle" and not _is_angular(units, _ANGLE_ROOT):
         raise ValueError(f"{unit_text!r}, which is not an angular unit")
     if dimension == "rotation_rate" and not _is_angular(units, _RATE_ROOT):
         raise ValueError(f"{unit_text!r}, which does not say cycles or radians per time")
     if dimension == "fraction" and _is_angular(units, _ANGLE_ROOT):
-        raise ValueError(wrong)
+        raise ValueError(f"{unit_text!r}, a unit of {_describe(units)}")
     zero = ureg.Quantity(0.0, units)
     one = ureg.Quantity(1.0, units)
     if dimension == "temperature_difference":
