@@ -170,9 +170,11 @@ def test_check_run_skips_missing_keys():
 def test_flag_columns_layout():
     flags = [Flag("overload", 0.95, 0.9, "x"), Flag("spin_scatter", 0.05, 0.02, "y")]
     cols = q.flag_columns(flags)
-    # docs/results.md: `flags` then one boolean `flag_<name>` per kind, names ';'-separated.
-    assert list(cols) == ["flags"] + [f"flag_{n}" for n in FLAG_NAMES]
+    # docs/results.md: `flags`, `flag_reasons`, then one boolean `flag_<name>` per kind; names
+    # ';'-separated, reasons 'name: reason' joined by ' | ', both in FLAG_NAMES order.
+    assert list(cols) == ["flags", "flag_reasons"] + [f"flag_{n}" for n in FLAG_NAMES]
     assert cols["flags"] == "spin_scatter;overload"
+    assert cols["flag_reasons"] == "spin_scatter: y | overload: x"
     assert cols["flag_overload"] is True and cols["flag_spin_scatter"] is True
     assert sum(v is True for v in cols.values()) == 2
     assert q.flag_columns([])["flags"] == ""

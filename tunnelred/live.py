@@ -613,7 +613,6 @@ class _Watcher:
         self.snapshot_runs: bytes | None = None  # runs.csv as last written into the snapshot
         self.signatures: dict[str, tuple] = {}
         self.results = None
-        self.tolerances = None
         self.title = ""
         self.problems: tuple[str, ...] = ()
         self.fresh: tuple[str, ...] = ()
@@ -693,7 +692,6 @@ class _Watcher:
         if "campaign.toml" not in waiting_inputs:
             if self._copy("campaign.toml", inputs["campaign.toml"].key):
                 config, _ = load_config(self.snapshot / "campaign.toml")
-                self.tolerances = config.reduction.tolerances if config else None
                 self.title = config.campaign.title if config else ""
         if "runs.csv" not in waiting_inputs and inputs["runs.csv"].key != self.runs_key:
             data = (self.root / "runs.csv").read_bytes()
@@ -815,7 +813,7 @@ class _Watcher:
             ds = self.results.dataset
             if ds.sizes.get("run", 0):
                 table = store.run_table(ds)
-                reasons = _flag_reasons(table, self.tolerances)
+                reasons = _flag_reasons(table)
                 for rec in table.to_dict("records"):
                     values[str(rec["run"])] = rec
             for rec in self.results.failures.to_dict("records"):
@@ -886,44 +884,13 @@ def _failure_text(rec: dict) -> str:
     return f"{where}: {rec['reason']}" if where else str(rec["reason"])
 
 
-# Results columns that the per-run quality checks judge, so that a raised flag's reason can be
-# given again in the check's own words.
-_MEASURES = (
-    "spin_scatter",
-    "spin_drift",
-    "speed_drift",
-    "temperature_drift",
-    "zero_shift",
-    "revolutions",
-    "alpha",
-    "Cp_max",
-)
-
-
-def _flag_reasons(table, tolerances) -> dict[str, str]:
-    """Each flagged run's flags with their reasons, as the quality checks word them.
-
-    The results hold each flag's name and the steadiness measures it judged; the checks of
-    :mod:`tunnelred.quality` are run again on those measures to word the reason. A flag whose
-    measures are not among the results (overload, dead taps, …) is given by name.
-    """
-    if tolerances is None or "flags" not in table:
-        return {}
-    repeats = {}
-    if "repeat_disagreement" in ";".join(map(str, table["flags"])):
-        repeats = quality.repeat_disagreement(table, tolerances)
+def _flag_reasons(table) -> dict[str, str]:
+    """Each flagged run's flags with their reasons, as the results record them."""
     reasons = {}
-    for rec in table.to_dict("records"):
-        names = [n for n in str(rec.get("flags") or "").split(";") if n]
-        if not names:
-            continue
-        measures = {k: float(rec[k]) for k in _MEASURES if k in rec and np.isfinite(float(rec[k]))}
-        worded = {f.name: f.reason for f in quality.check_run(measures, tolerances)}
-        if str(rec["run"]) in repeats:
-            worded["repeat_disagreement"] = repeats[str(rec["run"])].reason
-        reasons[str(rec["run"])] = "; ".join(
-            f"{n}: {worded[n]}" if n in worded else n for n in names
-        )
+    for run, flags, text in zip(table["run"], table["flags"], table["flag_reasons"], strict=True):
+        if flags:
+            worded = quality.parse_flag_reasons(text)
+            reasons[str(run)] = "; ".join(f"{n}: {r}" for n, r in worded.items())
     return reasons
 
 

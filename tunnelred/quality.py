@@ -38,6 +38,7 @@ __all__ = [
     "repeat_disagreement",
     "check_run",
     "flag_columns",
+    "parse_flag_reasons",
 ]
 
 #: Every flag kind, in the order the report lists them (docs/results.md).
@@ -782,8 +783,9 @@ def flag_columns(flags: Iterable[Flag]) -> dict[str, str | bool]:
     Returns
     -------
     dict
-        ``"flags"``: the raised kinds in FLAG_NAMES order, ``;``-separated ("" for none); then
-        ``"flag_<name>"``: bool, for every name in FLAG_NAMES (docs/results.md).
+        ``"flags"``: the raised kinds in FLAG_NAMES order, ``;``-separated ("" for none);
+        ``"flag_reasons"``: ``name: reason`` of each, in the same order, separated by `` | ``;
+        then ``"flag_<name>"``: bool, for every name in FLAG_NAMES (docs/results.md).
 
     Examples
     --------
@@ -795,6 +797,27 @@ def flag_columns(flags: Iterable[Flag]) -> dict[str, str | bool]:
     unknown = raised - set(FLAG_NAMES)
     if unknown:
         raise ValueError(f"unknown flag kind(s) {sorted(unknown)}; known: {', '.join(FLAG_NAMES)}")
-    columns: dict[str, str | bool] = {"flags": ";".join(n for n in FLAG_NAMES if n in raised)}
+    ordered = sorted(flags, key=lambda f: FLAG_NAMES.index(f.name))
+    columns: dict[str, str | bool] = {
+        "flags": ";".join(n for n in FLAG_NAMES if n in raised),
+        # A reason is one line; " | " cannot occur in one, so the text splits back unambiguously.
+        "flag_reasons": " | ".join(f"{f.name}: {' '.join(f.reason.split())}" for f in ordered),
+    }
     columns.update({f"flag_{n}": n in raised for n in FLAG_NAMES})
     return columns
+
+
+def parse_flag_reasons(text: str) -> dict[str, str]:
+    """The ``flag_reasons`` text of a run (:func:`flag_columns`) back as {flag name: reason}.
+
+    Examples
+    --------
+    >>> parse_flag_reasons("spin_scatter: too much | overload: near full scale")
+    {'spin_scatter': 'too much', 'overload': 'near full scale'}
+    """
+    reasons = {}
+    for part in str(text or "").split(" | "):
+        name, _, reason = part.partition(": ")
+        if name:
+            reasons[name] = reason
+    return reasons

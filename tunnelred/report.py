@@ -806,59 +806,9 @@ def _budget(b: _Builder, data: _Inputs, runs: list[str]) -> None:
 
 
 def _flag_reasons(data: _Inputs, i: int, names: list[str]) -> dict[str, str]:
-    """Why each raised flag was raised, from the results' measures and the tolerances."""
-    stored = {}
-    if "flag_reasons" in data.table:
-        text = data.table["flag_reasons"].iloc[i]
-        for part in str(text).split(" | ") if isinstance(text, str) else ():
-            name, _, reason = part.partition(": ")
-            stored[name] = reason
-    tol = None
-    if data.campaign is not None:
-        tol = data.campaign.config.tolerances_for(str(data.table["config"].iloc[i]))
-    reasons = {}
-    for name in names:
-        if name in stored:
-            reasons[name] = stored[name]
-            continue
-        flag = _rebuilt_flag(data, i, name, tol)
-        reasons[name] = flag.reason if flag is not None else _FLAG_TEXT.get(name, "raised")
-    return reasons
-
-
-def _rebuilt_flag(data: _Inputs, i: int, name: str, tol):
-    """The Flag quality.py gives for a measure the results keep (None when it is not kept)."""
-    if tol is None:
-        from .config import Tolerances
-
-        tol = Tolerances()
-    value = {n: data.column(n)[i] for n in ("spin_scatter", "spin_drift", "speed_drift")}
-    checks = {
-        "spin_scatter": lambda: quality.spin_scatter(value["spin_scatter"], tol.spin_scatter),
-        "spin_drift": lambda: quality.spin_drift(value["spin_drift"], tol.spin_drift),
-        "speed_drift": lambda: quality.speed_drift(value["speed_drift"], tol.speed_drift),
-        "temperature_drift": lambda: quality.temperature_drift(
-            data.column("temperature_drift")[i], tol.temperature_drift
-        ),
-        "zero_shift": lambda: quality.zero_shift(data.column("zero_shift")[i], tol.zero_shift),
-        "few_revolutions": lambda: quality.few_revolutions(
-            data.column("revolutions")[i], tol.min_revolutions
-        ),
-    }
-    check = checks.get(name)
-    return check() if check is not None else None
-
-
-# What a flag means when the results do not keep the measure it judged.
-_FLAG_TEXT = {
-    "tare_extrapolated": "the spin tare was extrapolated beyond the tare runs' spin rates",
-    "overload": "a balance load came near its full scale",
-    "dead_tap": "taps excluded from the integration as dead or leaking",
-    "stream_overlap": "the logs overlap over too little of the run",
-    "cl_disagreement": "balance CL and pressure CL_p disagree beyond their combined uncertainty",
-    "repeat_disagreement": "a repeated run disagrees beyond the combined uncertainty",
-    "stagnation_cp": "the non-spinning run's largest Cp is not 1 within tolerance",
-}
+    """Why each raised flag was raised, as the results record it (``flag_reasons``)."""
+    stored = quality.parse_flag_reasons(data.table["flag_reasons"].iloc[i])
+    return {name: stored.get(name, "") for name in names}
 
 
 def _quality(b: _Builder, data: _Inputs) -> None:

@@ -96,6 +96,7 @@ _VARIABLES_BASE: dict[str, tuple[str, str]] = {
     "dead_taps": ("", "taps excluded from the integration, ';'-separated"),
     "corr_CL_alpha": ("1", "correlation coefficient of CL with alpha"),
     "flags": ("", "raised quality flags, ';'-separated"),
+    "flag_reasons": ("", "why each flag was raised, 'name: reason' separated by ' | '"),
     "Cp": ("1", "surface pressure coefficient, binned in azimuth"),
     "Cp_count": ("1", "samples in the azimuth bin"),
     "Cp_ideal": ("1", "potential-flow surface pressure coefficient 1 - (alpha + 2 sin theta)^2"),
@@ -306,7 +307,7 @@ def results_to_dataset(
     names: dict[str, None] = {}
     for r in results:
         names.update(dict.fromkeys(r.values))
-    for derived in ("run", "config", "flags", *(f"flag_{n}" for n in FLAG_NAMES)):
+    for derived in ("run", "config", "flags", "flag_reasons", *(f"flag_{n}" for n in FLAG_NAMES)):
         names.pop(derived, None)
     names = dict.fromkeys(sorted(names, key=_column_order))
     unknown = [n for n in names if not _known(n)]
@@ -327,10 +328,10 @@ def results_to_dataset(
             array = np.array([np.nan if v is None else v for v in column], dtype=float)
         data[name] = xr.DataArray(array, dims="run")
 
+    # The flags are rebuilt from the Flag objects: the campaign may have added some to a run.
     flag_rows = [flag_columns(r.flags) for r in results]
-    data["flags"] = xr.DataArray(
-        np.array([f["flags"] for f in flag_rows], dtype=object), dims="run"
-    )
+    for text in ("flags", "flag_reasons"):
+        data[text] = xr.DataArray(np.array([f[text] for f in flag_rows], dtype=object), dims="run")
     for flag in FLAG_NAMES:
         column = np.array([f[f"flag_{flag}"] for f in flag_rows], dtype=bool)
         data[f"flag_{flag}"] = xr.DataArray(column, dims="run")
