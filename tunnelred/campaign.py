@@ -107,7 +107,11 @@ class CampaignResults:
         )
         if self.outputs:
             folder = next(iter(self.outputs.values())).parent
-            lines.append(f"  outputs  {folder}: {', '.join(self.outputs)}")
+            files = [name for name in self.outputs if "/" not in name and name != "report"]
+            figures = sum(1 for name in self.outputs if name.startswith("figures/"))
+            if figures:
+                files.append(f"figures/ ({figures} PNG)")
+            lines.append(f"  outputs  {folder}: {', '.join(files)}")
         else:
             lines.append("  outputs  none written (no output folder given)")
         return "\n".join(lines)
@@ -555,6 +559,7 @@ def reduce_campaign(
     monte_carlo: int = 0,
     progress: bool = True,
     run_ids=None,
+    figures: bool = True,
 ) -> CampaignResults:
     """Reduce every data run of a campaign folder and write the results.
 
@@ -579,6 +584,9 @@ def reduce_campaign(
         Show a progress bar counting runs as they finish.
     run_ids : iterable of str, optional
         Reduce only these data runs.
+    figures : bool
+        Write the standard figures into OUT/figures
+        (:func:`tunnelred.plotting.save_standard_figures`).
 
     Returns
     -------
@@ -610,14 +618,16 @@ def reduce_campaign(
     pool = _PoolStart(str(path), workers - 1) if dask is None and workers > 1 else None
     try:
         return _reduce(
-            path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids
+            path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
         )
     finally:
         if pool is not None:
             pool.finish(wait=False)
 
 
-def _reduce(path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids):
+def _reduce(
+    path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
+):
     campaign = open_campaign(path, check_logs=False)
     selected = _select(campaign, run_ids)
 
@@ -683,6 +693,11 @@ def _reduce(path, out, pool, started, workers, dask, fresh, monte_carlo, progres
     if out is not None:
         outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
         (Path(out) / "figures").mkdir(exist_ok=True)
+        if figures and ds.sizes.get("run", 0):
+            from .plotting import save_standard_figures  # matplotlib only where figures are made
+
+            for path in save_standard_figures(ds, out):
+                outputs[f"figures/{path.name}"] = path
         if run_ids is None:
             _cache_prune(cache, set(keys.values()))
     return CampaignResults(

@@ -797,7 +797,7 @@ class _Watcher:
             from .campaign import reduce_campaign
 
             self.results = reduce_campaign(
-                self.snapshot, self.out, workers=self.workers, progress=False
+                self.snapshot, self.out, workers=self.workers, progress=False, figures=False
             )
         except InputError as exc:
             self.problems = tuple(str(p) for p in exc.problems)

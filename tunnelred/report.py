@@ -400,6 +400,9 @@ class _Inputs:
         self.ds = store.read_results(out_dir)
         self.budgets = _read_csv(out_dir / "budgets.csv")
         self.failures = _read_csv(out_dir / "failures.csv")
+        recorded = self.ds.attrs.get("campaign_path", "")
+        if campaign is None and recorded and (Path(recorded) / "campaign.toml").is_file():
+            campaign = recorded  # the folder reduce recorded, while it is still there
         self.campaign = _campaign(campaign)
         self.table = store.run_table(self.ds)
         self.methods = _json_attr(self.ds, "methods")
@@ -903,7 +906,8 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
     pdf_path : str or path-like, optional
         Where to write; default ``out_dir``/report.pdf. Written atomically.
     campaign : tunnelred.readers.Campaign or path-like, optional
-        The campaign folder (or the opened campaign): its campaign.toml goes into the appendix
+        The campaign folder (or the opened campaign); default: the folder the results record,
+        if it is still there. Its campaign.toml goes into the appendix
         and its tolerances into the flag reasons.
 
     Returns

@@ -369,6 +369,7 @@ def _provenance(results: list[RunResult], campaign, methods: dict) -> dict:
         info = campaign.config.campaign
         title, facility = info.title, info.facility
         config_sha256 = campaign.config.sha256
+        campaign_path = str(Path(campaign.root).resolve())
         inputs = {}
         for rel in campaign.file_hashes:
             try:
@@ -377,7 +378,7 @@ def _provenance(results: list[RunResult], campaign, methods: dict) -> dict:
                 # A missing or unreadable input is a failed run's problem, reported there.
                 inputs[rel] = ""
     else:
-        title = facility = config_sha256 = ""
+        title = facility = config_sha256 = campaign_path = ""
         inputs = {}
         for r in results:
             inputs.update(r.inputs)
@@ -387,6 +388,7 @@ def _provenance(results: list[RunResult], campaign, methods: dict) -> dict:
         "facility": facility,
         "tunnelred_version": __version__,
         "config_sha256": config_sha256,
+        "campaign_path": campaign_path,
         "input_sha256": json.dumps(dict(sorted(inputs.items()))),
         "methods": json.dumps(methods, sort_keys=True),
         "created": datetime.now(UTC).isoformat(timespec="seconds"),
