@@ -104,11 +104,13 @@ def _child(args: dict) -> dict:
     workers = args["workers"]
     out = work / f"out-{workers}"
     started = time.perf_counter()
-    first = reduce_campaign(campaign, out, workers=workers, fresh=True, progress=False)
+    first = reduce_campaign(
+        campaign, out, workers=workers, fresh=True, progress=False, figures=False
+    )
     wall = time.perf_counter() - started
     rss_self = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     started = time.perf_counter()
-    again = reduce_campaign(campaign, out, workers=workers, progress=False)
+    again = reduce_campaign(campaign, out, workers=workers, progress=False, figures=False)
     rerun = time.perf_counter() - started
     record = {
         "wall": wall,
@@ -121,7 +123,9 @@ def _child(args: dict) -> dict:
     }
     if args["trace"]:
         tracemalloc.start()
-        reduce_campaign(campaign, work / "out-traced", workers=1, fresh=True, progress=False)
+        reduce_campaign(
+            campaign, work / "out-traced", workers=1, fresh=True, progress=False, figures=False
+        )
         record["tracemalloc_peak_mib"] = tracemalloc.get_traced_memory()[1] / 1024**2
         tracemalloc.stop()
     record["floor"], record["samples"] = _parse_floor(campaign)
