@@ -108,7 +108,10 @@ def test_serial_reduces_every_data_run(campaign_dir, tmp_path):
     assert (res.reduced, res.from_cache, res.failed) == (5, 0, 0)
     assert OUTPUT_FILES <= {p.name for p in out.iterdir()}
     assert (out / "figures").is_dir()
-    assert set(res.outputs) == OUTPUT_FILES
+    assert {name for name in res.outputs if "/" not in name} == OUTPUT_FILES
+    figures = {name for name in res.outputs if name.startswith("figures/")}
+    assert "figures/CL_alpha.png" in figures
+    assert all((out / name).is_file() for name in figures)
     assert res.flagged == sum(1 for f in res.dataset["flags"].values if f)
     text = res.summary()
     assert "reduced  5 (5 now, 0 from cache)" in text and str(out) in text

@@ -414,3 +414,18 @@ def test_campaign_pickles_for_worker_processes(campaign_dir):
     campaign = pickle.loads(pickle.dumps(open_campaign(campaign_dir, check_logs=False)))
     assert campaign.load_run("d2").streams["tunnel"].sizes["time"] == 50
     assert len(campaign.file_hashes["logs/d2_all.csv"]) == 64
+
+
+def test_a_broken_runs_row_stops_only_its_own_run(campaign_dir):
+    # An unquoted comma in the notes gives the row one field too many (RFC 4180 §2: a field
+    # holding a comma must be quoted). That row's run cannot be read; the others still can.
+    runs = campaign_dir / "runs.csv"
+    text = runs.read_text(encoding="utf-8")
+    text += "d3,data,A,2026-11-16T09:30:00,logs/d1_bal.csv,,logs/d1_tun.csv,z1,,20,0,a, b\n"
+    runs.write_text(text, encoding="utf-8")
+    campaign = open_campaign(campaign_dir)
+    assert campaign.run_problems("d1") == []
+    assert "d3" in campaign.unreadable_runs
+    (problem,) = campaign.run_problems("d3")
+    assert (problem.file, problem.line) == ("runs.csv", 6)
+    assert problem.expected == "12 fields" and problem.found == "13"

@@ -1008,9 +1008,12 @@ def _build_runs(root, rows, units, config, problems):
     unreadable: list[str] = []
     for line, row, short_run in rows:
         if row is None:
-            if short_run:
-                by_run.setdefault(short_run, []).append(problems[-1])
-                unreadable.append(short_run)
+            # A row too short to name its run is still listed, under its line, so that
+            # a reduction reports it among the failures instead of dropping it unseen.
+            rid = short_run or f"runs.csv line {line}"
+            mine = [p for p in problems if p.file == file and p.line == line]
+            by_run.setdefault(rid, []).extend(mine)
+            unreadable.append(rid)
             continue
         mine: list[Problem] = []
 
@@ -1372,7 +1375,8 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
     rows, units, runs_fatal = _read_runs(root / "runs.csv", problems)
     if config is None or runs_fatal:
         raise InputError(problems)
-    global_problems = list(problems)
+    # A problem of one runs.csv row stops that run (and those using it), not the campaign.
+    global_problems = [p for p in problems if not (p.file == "runs.csv" and (p.line or 1) > 1)]
     runs, by_run, unreadable = _build_runs(root, rows, units, config, problems)
     global_problems = config_problems + [p for p in global_problems if p not in config_problems]
 
