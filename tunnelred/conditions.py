@@ -494,11 +494,15 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
         "Re": reynolds_number(rho, U, config.model.diameter, mu),
         "Mach": mach_number(U, a),
     }
-    out = xr.Dataset(coords={"time": tunnel["time"]}, attrs=dict(tunnel.attrs))
-    for name, da in values.items():
+    variables = {}
+    for name, v in values.items():
         units, long_name = _FREE_STREAM_ATTRS[name]
-        out[name] = ("time", np.asarray(da, dtype=float), {"units": units, "long_name": long_name})
-    return out
+        variables[name] = (
+            "time",
+            np.asarray(v, dtype=float),
+            {"units": units, "long_name": long_name},
+        )
+    return xr.Dataset(variables, coords={"time": tunnel["time"]}, attrs=dict(tunnel.attrs))
 
 
 @dataclass(frozen=True)
