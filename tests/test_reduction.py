@@ -134,3 +134,59 @@ def test_results_table_is_one_row_a_run(demo_results, demo_truth):
     csv = pd.read_csv(demo_results.outputs["results.csv"], keep_default_na=False)
     assert list(csv["run"]) == list(demo_results.dataset["run"].values)
     assert set(csv["run"]) == set(demo_truth.index)
+
+
+def test_indexed_runs_at_rest_merge_to_cover_the_circle(tmp_path):
+    # A model at rest with taps every 90° is indexed to 30° and 60° in two more runs; merged,
+    # the three runs give a tap every 30°, inside the default max_tap_gap. The surface pressure
+    # written is Cp = 1 - 4 sin²θ + a cos θ (potential flow at α = 0, Anderson §3.13, plus a
+    # first harmonic): ½∮Cp cos θ dθ = π a / 2 exactly, ½∮Cp sin θ dθ = 0, and the trapezoid
+    # rule on 12 equal steps integrates these harmonics exactly (Trefethen & Weideman 2014).
+    from conftest import write_campaign
+
+    from tunnelred import conditions
+
+    root = write_campaign(tmp_path / "campaign", rows=400)
+    a = 0.2
+    rows = 400
+    t = np.arange(rows) * 0.01
+    q = float(conditions.dynamic_pressure(240.0, 101325.0))  # the fixture's pitot and barometer
+    lines = (root / "runs.csv").read_text(encoding="utf-8").splitlines()
+    header = lines[0] + ",pressure_with"
+    body = [line + "," for line in lines[1:]]
+    for index in (0.0, 30.0, 60.0):
+        name = f"i{int(index):02d}"
+        taps = np.array([0.0, 90.0, 180.0, 270.0]) + index
+        cp = 1 - 4 * np.sin(np.radians(taps)) ** 2 + a * np.cos(np.radians(taps))
+        columns = [t, np.full(rows, index), *(np.full(rows, c * q) for c in cp)]
+        table = np.column_stack(columns)
+        text = "time [s],angle [deg],tap01 [Pa],tap02 [Pa],tap03 [Pa],tap04 [Pa]\n"
+        text += "\n".join(",".join(f"{v:.9g}" for v in row) for row in table) + "\n"
+        (root / f"logs/{name}_p.csv").write_text(text, encoding="utf-8")
+        merge = "i30;i60" if index == 0 else ""
+        body.append(
+            f"{name},data,A,2026-11-16T09:3{int(index) // 30}:00,,logs/{name}_p.csv,"
+            f"logs/d1_tun.csv,,,20,0,index {index:g} deg,{merge}"
+        )
+    (root / "runs.csv").write_text("\n".join([header, *body]) + "\n", encoding="utf-8")
+    campaign = open_campaign(root)
+    assert campaign.run_problems("i00") == []
+    assert campaign.dependencies("i00") == ["i00", "i30", "i60"]
+
+    alone = reduce_run(campaign, "i30")
+    assert np.isnan(alone.values["CL_p"])  # 90° between taps: too wide to integrate
+    merged = reduce_run(campaign, "i00")
+    assert merged.values["CD_p_uncorrected"] == pytest.approx(np.pi * a / 2, rel=1e-6)
+    assert merged.values["CL_p_uncorrected"] == pytest.approx(0.0, abs=1e-9)
+    assert np.count_nonzero(np.isfinite(merged.profiles["Cp"])) == 12
+    assert {f"logs/i{k}_p.csv" for k in ("00", "30", "60")} <= set(merged.inputs)
+
+
+def test_pressure_with_must_name_a_data_run_with_pressure(campaign_dir):
+    runs = campaign_dir / "runs.csv"
+    lines = runs.read_text(encoding="utf-8").splitlines()
+    lines[0] += ",pressure_with"
+    lines[1:] = [line + ("," + "z1" if line.startswith("d1,") else ",") for line in lines[1:]]
+    runs.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    problems = open_campaign(campaign_dir).run_problems("d1")
+    assert any(p.column == "pressure_with" and "'z1', a zero run" in p.found for p in problems)

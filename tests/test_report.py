@@ -132,6 +132,7 @@ def test_user_text_with_markup_characters(reduced, tmp_path):  # noqa: F811
     ds = store.read_results(out)
     title = 'Rotor <b>sail</b> & "plates" <unclosed'
     ds.attrs["title"] = title
+    ds.attrs["campaign_path"] = ""  # as if the campaign folder had been moved away
     failures = pd.DataFrame(
         [{"run": "R999", "file": "logs/<odd>&.csv", "line": 3, "reason": "expected <number>"}]
     )
@@ -144,3 +145,13 @@ def test_user_text_with_markup_characters(reduced, tmp_path):  # noqa: F811
     assert "expected <number>" in flat
     # Without the campaign folder the appendix says so instead of failing.
     assert "campaign folder was not given" in flat
+
+
+def test_appendix_finds_the_recorded_campaign_folder(built):
+    # reduce records the campaign folder (docs/results.md, campaign_path); the report, given
+    # only the results, puts that folder's campaign.toml into the appendix.
+    *_, out = built
+    ds = store.read_results(out)
+    assert ds.attrs["campaign_path"]
+    text, _ = _text(report.write_report(out, out / "again.pdf"))
+    assert "[instruments.balance]" in text

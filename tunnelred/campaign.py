@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import functools
 import hashlib
 import html
 import json
@@ -259,19 +260,6 @@ def _open_and_reduce(path: str, token: str, run_id: str, monte_carlo: int) -> _O
 # The cache
 
 
-def _dependencies(campaign, run_id: str) -> list[str]:
-    """The run and every zero and tare run its reduction reads (a tare's zeros too)."""
-    order, todo = [], [run_id]
-    while todo:
-        rid = todo.pop(0)
-        if rid in order or rid not in campaign.runs:
-            continue
-        order.append(rid)
-        spec = campaign.runs[rid]
-        todo += [*spec.zero, *spec.tare]
-    return order
-
-
 def _row_record(campaign, run_id: str) -> str:
     """A run's runs.csv row, with the hash of each log it names, as JSON text."""
     spec = campaign.runs[run_id]
@@ -294,22 +282,33 @@ def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
     Returns
     -------
     str
-        Hex digest over the tunnelred version, the campaign.toml hash, the run's runs.csv row and
-        the hashes of its logs, the same for each zero and tare run it uses, and ``monte_carlo``.
+        Hex digest over the tunnelred version and its code, the campaign.toml hash, the run's
+        runs.csv row and the hashes of its logs, the same for every run it uses (zeros, tares,
+        merged pressure runs), and ``monte_carlo``.
     """
     return _key(campaign, run_id, monte_carlo, {})
 
 
+@functools.lru_cache(maxsize=1)
+def _code_digest() -> str:
+    """SHA-256 over tunnelred's own modules, so that edited code never reuses stale results."""
+    digest = hashlib.sha256()
+    for module in sorted(Path(__file__).parent.glob("*.py")):
+        digest.update(module.name.encode() + b"\0" + module.read_bytes())
+    return digest.hexdigest()
+
+
 def _key(campaign, run_id: str, monte_carlo: int, rows: dict[str, str]) -> str:
     # ``rows`` holds the row records made so far: zero and tare rows serve many runs.
-    for rid in _dependencies(campaign, run_id):
+    for rid in campaign.dependencies(run_id):
         if rid not in rows:
             rows[rid] = _row_record(campaign, rid)
     record = {
         "tunnelred": __version__,
+        "code": _code_digest(),
         "config": campaign.config.sha256,
         "monte_carlo": int(monte_carlo),
-        "runs": [rows[rid] for rid in _dependencies(campaign, run_id)],
+        "runs": [rows[rid] for rid in campaign.dependencies(run_id)],
     }
     text = json.dumps(record, sort_keys=True)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()

@@ -558,7 +558,7 @@ def _rows(root: Path, text: str) -> tuple[list[str], list[_Row]]:
             logs = tuple(_inside(root, cells[f"{s}_log"]) for s in STREAMS if cells.get(f"{s}_log"))
             needs = tuple(
                 s.strip()
-                for column in ("zero", "tare")
+                for column in ("zero", "tare", "pressure_with")
                 for s in cells.get(column, "").split(";")
                 if s.strip()
             )

@@ -65,7 +65,15 @@ SHOWN_ROWS = 3
 
 _RUN_ID = re.compile(r"^[A-Za-z0-9_.-]+$")
 _RUNS_REQUIRED = ("run", "kind", "start", "config")
-_RUNS_OPTIONAL = ("balance_log", "pressure_log", "tunnel_log", "zero", "tare", "notes")
+_RUNS_OPTIONAL = (
+    "balance_log",
+    "pressure_log",
+    "tunnel_log",
+    "zero",
+    "tare",
+    "pressure_with",
+    "notes",
+)
 _RUNS_WITH_UNITS = {"speed_set": "speed", "spin_set": "rotation_rate"}
 _NUMBER = re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
 _NONFINITE = re.compile(r"^[+-]?(?:nan|inf|infinity)$", re.IGNORECASE)
@@ -96,6 +104,12 @@ class RunSpec:
     spin_set: float | None = None
     notes: str = ""
     line: int = 0
+    pressure_with: tuple[str, ...] = ()
+
+    @property
+    def uses(self) -> tuple[str, ...]:
+        """The runs this run's reduction reads besides its own: zeros, tares, merged pressure."""
+        return (*self.zero, *self.tare, *self.pressure_with)
 
 
 @dataclass
@@ -1116,6 +1130,13 @@ def _build_runs(root, rows, units, config, problems):
             bad("tare", "tare runs only on a data run", repr(row["tare"]))
         if tare and kind == "data" and not row.get("balance_log"):
             bad("tare", "tare runs only with a balance log", repr(row["tare"]))
+        pressure_with = _split_ids(row.get("pressure_with", ""))
+        if pressure_with and (kind != "data" or not row.get("pressure_log")):
+            bad(
+                "pressure_with",
+                "other runs' pressure only on a data run with a pressure log",
+                repr(row["pressure_with"]),
+            )
         problems.extend(mine)
         if kind not in KINDS or start is None:
             unreadable.append(run)
@@ -1133,11 +1154,12 @@ def _build_runs(root, rows, units, config, problems):
             spin_set=set_points["spin_set"],
             notes=row.get("notes", ""),
             line=line,
+            pressure_with=pressure_with,
         )
         by_run.setdefault(run, []).extend(mine)
     # references can point forward, so they are checked once every row is read
     for spec in runs.values():
-        for column, wanted in (("zero", "zero"), ("tare", "tare")):
+        for column, wanted in (("zero", "zero"), ("tare", "tare"), ("pressure_with", "data")):
             for ref in getattr(spec, column):
                 target = runs.get(ref)
                 if target is None:
@@ -1149,6 +1171,15 @@ def _build_runs(root, rows, units, config, problems):
                 elif column == "tare" and target.config != spec.config:
                     found = f"{ref!r}, of configuration {target.config!r}"
                     wanted = f"tare of configuration {spec.config!r}"
+                elif column == "pressure_with" and (
+                    "pressure" not in target.logs or target.config != spec.config
+                ):
+                    found = f"{ref!r}, " + (
+                        "without a pressure log"
+                        if "pressure" not in target.logs
+                        else f"of configuration {target.config!r}"
+                    )
+                    wanted = f"data run of configuration {spec.config!r} with a pressure log"
                 else:
                     continue
                 p = Problem(
@@ -1200,8 +1231,8 @@ class Campaign:
     def tare_runs(self) -> list[RunSpec]:
         return [r for r in self.runs.values() if r.kind == "tare"]
 
-    def _related(self, run_id: str) -> list[str]:
-        """The run and the zero and tare runs it depends on, depth first."""
+    def dependencies(self, run_id: str) -> list[str]:
+        """The run and every run its reduction reads (:attr:`RunSpec.uses`, transitively)."""
         order, todo = [], [run_id]
         while todo:
             rid = todo.pop(0)
@@ -1210,7 +1241,7 @@ class Campaign:
             order.append(rid)
             spec = self.runs.get(rid)
             if spec is not None:
-                todo += [*spec.zero, *spec.tare]
+                todo += list(spec.uses)
         return order
 
     def run_problems(self, run_id: str) -> list[Problem]:
@@ -1222,7 +1253,7 @@ class Campaign:
         if run_id not in self.runs and run_id not in self._by_run:
             raise KeyError(f"runs.csv has no run {run_id!r}")
         found = list(self._global)
-        for rid in self._related(run_id):
+        for rid in self.dependencies(run_id):
             found += self._by_run.get(rid, [])
             spec = self.runs.get(rid)
             for rel in spec.logs.values() if spec else ():

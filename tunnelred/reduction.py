@@ -161,16 +161,9 @@ def _second_order(cfg):
 
 
 def _files_used(campaign, spec) -> dict[str, str]:
-    ids = [spec.run, *spec.zero, *spec.tare]
-    for tare_id in spec.tare:
-        if tare_id in campaign.runs:
-            ids += list(campaign.runs[tare_id].zero)
     files = {}
-    for rid in dict.fromkeys(ids):
-        run = campaign.runs.get(rid)
-        if run is None:
-            continue
-        for path in run.logs.values():
+    for rid in campaign.dependencies(spec.run):
+        for path in campaign.runs[rid].logs.values():
             files[path] = campaign.file_hashes.get(path, "")
     return files
 
@@ -305,6 +298,39 @@ def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures:
     ]
     u_theta = float(np.hypot(np.sqrt(np.mean(np.square(u_offsets))), cfg.instruments.u_encoder))
     return points, u_theta, sorted(dead)
+
+
+def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dead: list[str]):
+    """This run's pressure points with those of the runs named in ``pressure_with``.
+
+    A model at rest sees only its taps' azimuths; runs at other index angles fill the circle.
+    Their readings are brought to this run's q (Cp is what is shared), bin counts are added, and
+    a tap dead in any of the runs is reported.
+    """
+    thetas, readings, u = [points.theta], [points.reading], [points.u_reading]
+    index, count = [points.grid_index], points.count.copy()
+    for other in spec.pressure_with:
+        data = _load(campaign, other)
+        flow = conditions.free_stream(data.streams["tunnel"], campaign.config)
+        q_other = float(np.mean(flow["q"].to_numpy()))
+        _, omega, _ = conditions.spin_rate(data.streams)
+        extra, _, dead_other = _pressure_inputs(campaign, data, q_other, float(np.mean(omega)), {})
+        scale = q_mean / q_other
+        thetas.append(extra.theta)
+        readings.append(extra.reading * scale)
+        u.append(extra.u_reading * scale)
+        index.append(extra.grid_index)
+        count += extra.count
+        dead += [f"{tap} ({other})" for tap in dead_other]
+    merged = _PressurePoints(
+        np.concatenate(thetas),
+        np.concatenate(readings),
+        np.concatenate(u),
+        points.grid,
+        np.concatenate(index),
+        count,
+    )
+    return merged, dead
 
 
 def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
@@ -553,6 +579,8 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     dead_taps: list[str] = []
     if "pressure" in data.streams and cfg.taps:
         points, u_theta, dead_taps = _pressure_inputs(campaign, data, q_mean, omega_mean, measures)
+        if spec.pressure_with:
+            points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
         n = points.theta.size
         inputs["p_bin"] = Input(points.reading, points.u_reading, "A", "tap pressure per bin")
         inputs["p_scanner"] = Input(
@@ -597,14 +625,19 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     if points is not None:
         theta = points.grid
 
-        def on_grid(v):
-            full = np.full(theta.shape, np.nan)
-            full[points.grid_index] = np.asarray(v).reshape(-1)
-            return full
+        # Points sharing a bin (merged index runs) are averaged there, their u as for a mean
+        # of independent values.
+        n = np.bincount(points.grid_index, minlength=theta.size)
+
+        def on_grid(v, power=1):
+            total = np.bincount(points.grid_index, np.asarray(v).reshape(-1) ** power, theta.size)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                mean = np.where(n > 0, total / n, np.nan)
+            return mean if power == 1 else np.sqrt(mean / n)
 
         profiles = {
             "Cp": on_grid(linear.values["Cp"]),
-            "u_Cp": on_grid(linear.u["Cp"]),
+            "u_Cp": on_grid(linear.u["Cp"], power=2),
             "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
             "Cp_count": points.count,
             "Cp_ideal": theory.cp_surface(theta, alpha),
