@@ -1,0 +1,706 @@
+"""One CSV log → an xarray.Dataset in SI units, or every problem with its line and column.
+
+Logs are parsed with pyarrow's CSV reader, every column as float64, with no per-row Python work.
+Only when that parse fails does a line-by-line scan run, to say exactly where and why.
+Column names carry their units in brackets (``dp_pitot [Pa]``); pint converts them to SI
+(angles to degrees, rotation rates to rad/s, relative humidity to a fraction). The schema is
+docs/input-format.md; :mod:`tunnelred.readers` applies it to a whole campaign.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pacsv
+import xarray as xr
+
+from .config import Q_SOURCES, CampaignConfig
+from .errors import InputError, Problem
+from .units import DIMENSIONS, conversion, parse_header
+
+__all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns"]
+
+#: Dimension of every log column with a fixed name (see units.DIMENSIONS).
+FIXED_COLUMNS = {
+    "time": "time",
+    "dp_pitot": "pressure",
+    "dp_contraction": "pressure",
+    "T": "temperature",
+    "p_baro": "pressure",
+    "RH": "fraction",
+    "speed": "rotation_rate",
+    "angle": "angle",
+}
+
+#: How many offending rows a problem lists before saying "and N more".
+SHOWN_ROWS = 3
+
+_NUMBER = re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
+_NONFINITE = re.compile(r"^[+-]?(?:nan|inf|infinity)$", re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class LogInfo:
+    """What a full parse of a log found: row count, time span [s], median sample interval [s]."""
+
+    rows: int
+    start: float
+    end: float
+    median_dt: float
+    columns: tuple[str, ...]
+
+    @property
+    def duration(self) -> float:
+        return self.end - self.start
+
+
+# ---------------------------------------------------------------------------------------------
+# One CSV log
+
+
+@dataclass
+class _Header:
+    names: list[str]  # base names in file order
+    conversions: list  # Conversion or None (a column whose unit is unusable)
+    end: int  # byte offset where the data rows begin
+    problems: list[Problem]
+
+
+def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: dict) -> _Header:
+    """Parse and check the header row. ``expected``/``optional``: base name → dimension."""
+    problems: list[Problem] = []
+    start = 3 if data.startswith(b"\xef\xbb\xbf") else 0
+    newline = re.compile(rb"\r\n|\r|\n").search(data, start)
+    end = newline.end() if newline else len(data)
+    raw = data[start : newline.start() if newline else len(data)]
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        problems.append(_encoding_problem(file, 1, start + exc.start, data))
+        # Latin-1 decodes any byte; reading the header on shows its other problems, if any.
+        text = raw.decode("latin-1")
+    cells = next(csv.reader([text]), [])
+    names: list[str] = []
+    conversions: list = []
+    seen: dict[str, int] = {}
+    known = expected | optional
+    for position, cell in enumerate(cells, start=1):
+        try:
+            base, unit = parse_header(cell)
+        except ValueError as exc:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    cell.strip() or f"#{position}",
+                    "a header 'name [unit]', e.g. 'dp_pitot [Pa]'",
+                    str(exc),
+                    "Add the unit in brackets; [1] for a plain number.",
+                )
+            )
+            names.append(cell.strip())
+            conversions.append(None)
+            seen.setdefault(cell.strip(), position)
+            continue
+        names.append(base)
+        if base in seen:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    "each column once",
+                    f"{base!r} in columns {seen[base]} and {position}",
+                    "Delete or rename one of them.",
+                )
+            )
+        seen.setdefault(base, position)
+        if base not in known:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    f"only the columns {', '.join(known)}",
+                    f"an extra column {base!r}",
+                    hints.get("extra", "Remove it or check its spelling."),
+                )
+            )
+            conversions.append(None)
+            continue
+        dimension = known[base]
+        try:
+            conversions.append(conversion(unit, dimension))
+        except ValueError as exc:
+            what = DIMENSIONS[dimension][2] if dimension else "a unit pint understands"
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    what,
+                    str(exc),
+                    f"Write the unit of {base} in its header, e.g. "
+                    f"'{base} [{_example_unit(dimension)}]'.",
+                )
+            )
+            conversions.append(None)
+    for base in expected:
+        if base not in seen:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    f"a column {base!r}",
+                    "none",
+                    hints.get(
+                        base, hints.get("missing", "Add the column or check the header's spelling.")
+                    ),
+                )
+            )
+    return _Header(names, conversions, end, problems)
+
+
+def _example_unit(dimension: str | None) -> str:
+    return {None: "V", "fraction": "1", "rotation_rate": "rpm", "temperature": "degC"}.get(
+        dimension, DIMENSIONS.get(dimension, ("",))[0]
+    )
+
+
+def _encoding_problem(file: str, line: int, offset: int, data: bytes) -> Problem:
+    return Problem(
+        file,
+        line,
+        None,
+        "UTF-8 text",
+        f"byte 0x{data[offset]:02x} at byte offset {offset}, not UTF-8",
+        "Save the file as UTF-8 (Latin-1 or a Windows code page was likely used).",
+    )
+
+
+def _rows_text(lines: np.ndarray) -> str:
+    shown = ", ".join(str(int(n)) for n in lines[:SHOWN_ROWS])
+    more = len(lines) - SHOWN_ROWS
+    return f"line{'s' if len(lines) > 1 else ''} {shown}" + (
+        f" and {more} more" if more > 0 else ""
+    )
+
+
+def _check_values(
+    file: str,
+    columns: dict[str, np.ndarray],
+    lines: np.ndarray,
+    skip: dict[str, np.ndarray] | None = None,
+) -> list[Problem]:
+    """Vectorised checks of parsed columns (SI values); ``lines`` are the rows' line numbers.
+
+    ``skip`` masks cells already reported (the line scan's non-numeric cells).
+    """
+    problems = []
+    for name, values in columns.items():
+        bad = ~np.isfinite(values)
+        if skip is not None and name in skip:
+            bad &= ~skip[name]
+        if bad.any():
+            kinds = sorted({"NaN" if np.isnan(v) else "inf" for v in values[bad][:50]})
+            problems.append(
+                Problem(
+                    file,
+                    int(lines[bad][0]),
+                    name,
+                    "a finite number in every cell",
+                    f"{' and '.join(kinds)} on {_rows_text(lines[bad])}",
+                    "Repair or remove those rows (a logger writes NaN or inf when a sensor fails).",
+                )
+            )
+    time = columns.get("time")
+    if time is not None and len(time) > 1:
+        good = np.isfinite(time)
+        t, n = time[good], lines[good]
+        step = np.diff(t)
+        checks = (
+            (step == 0, "repeated", "Remove the repeated rows."),
+            (step < 0, "decreasing", "Check the logger's clock and the order of the rows."),
+        )
+        for mask, what, hint in checks:
+            if mask.any():
+                problems.append(
+                    Problem(
+                        file,
+                        int(n[1:][mask][0]),
+                        "time",
+                        "time stamps that increase strictly",
+                        f"{what} time on {_rows_text(n[1:][mask])}",
+                        hint,
+                    )
+                )
+    ranges = {
+        "T": (lambda v: v <= 0, "a temperature above 0 K"),
+        "RH": (lambda v: (v < 0) | (v > 1), "a relative humidity from 0 to 1 (0–100 %)"),
+        "p_baro": (lambda v: v <= 0, "a positive barometric pressure"),
+    }
+    for name, (test, expected) in ranges.items():
+        if name in columns:
+            with np.errstate(invalid="ignore"):
+                bad = test(columns[name]) & np.isfinite(columns[name])
+            if bad.any():
+                problems.append(
+                    Problem(
+                        file,
+                        int(lines[bad][0]),
+                        name,
+                        expected,
+                        f"{columns[name][bad][0]:g} (SI) on {_rows_text(lines[bad])}",
+                        "Check the unit in the header.",
+                    )
+                )
+    return problems
+
+
+def _fast_parse(body: pa.Buffer, ncols: int) -> list[np.ndarray] | None:
+    """All columns as float64 with pyarrow, or None when anything is not plain numbers."""
+    names = [f"c{i}" for i in range(ncols)]
+    try:
+        table = pacsv.read_csv(
+            pa.BufferReader(body),
+            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
+            parse_options=pacsv.ParseOptions(ignore_empty_lines=False),
+            convert_options=pacsv.ConvertOptions(
+                column_types={n: pa.float64() for n in names},
+                null_values=[],
+                strings_can_be_null=False,
+                quoted_strings_can_be_null=False,
+            ),
+        )
+    except (pa.ArrowException, ValueError, OverflowError):
+        return None
+    if table.num_columns != ncols:
+        return None
+    return [table.column(i).to_numpy() for i in range(ncols)]
+
+
+def _string_parse(body: pa.Buffer, ncols: int):
+    """Every column as text with pyarrow (checks UTF-8), or None when the rows are malformed."""
+    names = [f"c{i}" for i in range(ncols)]
+    try:
+        table = pacsv.read_csv(
+            pa.BufferReader(body),
+            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
+            parse_options=pacsv.ParseOptions(ignore_empty_lines=False),
+            convert_options=pacsv.ConvertOptions(
+                column_types={n: pa.string() for n in names},
+                null_values=[],
+                strings_can_be_null=False,
+                quoted_strings_can_be_null=False,
+            ),
+        )
+    except (pa.ArrowException, ValueError, OverflowError):
+        return None
+    return table if table.num_columns == ncols else None
+
+
+def _cells_to_numbers(file: str, table: pa.Table, names: list[str], first_line: int):
+    """Vectorised: the number in each text cell (NaN where it is not one) and the problems."""
+    number = r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$"
+    nonfinite = r"(?i)^[+-]?(?:nan|inf|infinity)$"
+    problems, values, reported = [], [], []
+    lines = np.arange(first_line, first_line + table.num_rows)
+    for i in range(table.num_columns):
+        text = pc.utf8_trim_whitespace(table.column(i))
+        ok = pc.or_(
+            pc.match_substring_regex(text, number), pc.match_substring_regex(text, nonfinite)
+        )
+        ok = ok.to_numpy(zero_copy_only=False)
+        values.append(pc.cast(pc.if_else(ok, text, "nan"), pa.float64()).to_numpy())
+        reported.append(~ok)
+        if not ok.all():
+            bad = np.flatnonzero(~ok)
+            examples = ", ".join(repr(text[int(j)].as_py()) for j in bad[:SHOWN_ROWS])
+            problems.append(
+                Problem(
+                    file,
+                    int(lines[bad[0]]),
+                    names[i],
+                    "a number in every cell",
+                    f"{examples} on {_rows_text(lines[bad])}",
+                    "Write plain decimal numbers (a point as decimal separator).",
+                )
+            )
+    return problems, np.column_stack(values), lines, np.column_stack(reported)
+
+
+def _truncated_tail(data: bytes, start: int, end: int, ncols: int):
+    """(problem, new end) when the last line is cut short, else (None, end)."""
+    cut = max(data.rfind(b"\n", start, end), data.rfind(b"\r", start, end))
+    if cut < start:
+        return None, end
+    last = data[cut + 1 : end].decode("utf-8", errors="replace")
+    cells = next(csv.reader([last]), [])
+    if len(cells) >= ncols:
+        return None, end
+    newlines = data.count(b"\n", 0, end) or data.count(b"\r", 0, end)
+    problem = Problem(
+        "", newlines + 1, None, f"{ncols} fields", f"{len(cells)}",
+        "The last line is cut off (the logger stopped while writing); delete it.",
+    )  # fmt: skip
+    return problem, cut
+
+
+def _locate(data: bytes, start: int, end: int, file: str, names: list[str]):
+    """Find what the fast parse refused, as vectorised as the damage allows.
+
+    A cut-off last line is set aside; then, if the rows are well formed UTF-8, pyarrow reads
+    them as text and the bad cells are found column by column. Only rows that pyarrow cannot
+    split (wrong field counts, blank lines, bad encoding) need the line-by-line scan.
+    """
+    ncols = len(names)
+    tail, body_end = _truncated_tail(data, start, end, ncols)
+    problems = [] if tail is None else [replace(tail, file=file)]
+    body = pa.py_buffer(data)[start:body_end]
+    columns = _fast_parse(body, ncols) if tail is not None else None
+    if columns is not None:
+        lines = np.arange(2, len(columns[0]) + 2)
+        return problems, np.column_stack(columns), lines, np.zeros((len(lines), ncols), bool)
+    # pyarrow reads a blank line as a row of empty cells; the scan names it for what it is
+    blank = any(gap in data[start:body_end] for gap in (b"\n\n", b"\r\r", b"\n\r\n"))
+    table = None if blank else _string_parse(body, ncols)
+    if table is not None:
+        found, values, lines, reported = _cells_to_numbers(file, table, names, 2)
+        return problems + found, values, lines, reported
+    return _scan(data, start, end, file, names)
+
+
+_LINE = re.compile(rb"([^\r\n]*)(\r\n|\r|\n|$)")
+
+
+def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
+    """Line-by-line scan for the error messages (only when the fast parse failed).
+
+    Returns the problems, the parsed values (NaN where a cell was unusable), the line numbers
+    of the rows kept, and the mask of cells already reported.
+    """
+    ncols = len(names)
+    problems: list[Problem] = []
+    rows: list[list[float]] = []
+    row_lines: list[int] = []
+    reported: list[list[bool]] = []
+    bad_cells: dict[int, list[tuple[int, str]]] = {}
+    short: list[int] = []
+    blank: list[int] = []
+    line = 1
+    pos = start
+    while pos < end:
+        m = _LINE.match(data, pos, end)
+        line += 1
+        content = m.group(1)
+        pos = m.end()
+        if not m.group(0):
+            break
+        try:
+            text = content.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            problems.append(_encoding_problem(file, line, m.start() + exc.start, data))
+            continue
+        if not text.strip():
+            blank.append(line)
+            continue
+        cells = next(csv.reader([text]), [])
+        if len(cells) != ncols:
+            if pos >= end and len(cells) < ncols:
+                problems.append(
+                    Problem(
+                        file,
+                        line,
+                        None,
+                        f"{ncols} fields",
+                        f"{len(cells)}",
+                        "The last line is cut off (the logger stopped while writing); delete it.",
+                    )
+                )
+            else:
+                short.append(line)
+                problems.append(
+                    Problem(
+                        file,
+                        line,
+                        None,
+                        f"{ncols} fields",
+                        f"{len(cells)}: {text[:60]!r}",
+                        "Each row needs one value per header column.",
+                    )
+                )
+            continue
+        values, flags = [], []
+        for i, cell in enumerate(cells):
+            cell = cell.strip()
+            if _NUMBER.match(cell) or _NONFINITE.match(cell):
+                values.append(float(cell))
+                flags.append(False)
+            else:
+                values.append(np.nan)
+                flags.append(True)
+                bad_cells.setdefault(i, []).append((line, cell))
+        rows.append(values)
+        row_lines.append(line)
+        reported.append(flags)
+    if blank:
+        problems.append(
+            Problem(
+                file,
+                blank[0],
+                None,
+                "no blank lines between rows",
+                f"a blank {_rows_text(np.array(blank))}",
+                "Delete the blank lines.",
+            )
+        )
+    for i, cells in sorted(bad_cells.items()):
+        lines = np.array([n for n, _ in cells])
+        examples = ", ".join(repr(c) for _, c in cells[:SHOWN_ROWS])
+        problems.append(
+            Problem(
+                file,
+                cells[0][0],
+                names[i] if i < ncols else None,
+                "a number in every cell",
+                f"{examples} on {_rows_text(lines)}",
+                "Write plain decimal numbers (a point as decimal separator).",
+            )
+        )
+    values = np.array(rows, dtype=float).reshape(-1, ncols)
+    return (
+        problems,
+        values,
+        np.array(row_lines, dtype=np.int64),
+        np.array(reported, bool).reshape(-1, ncols),
+    )
+
+
+def _parse_log(path: Path, rel: str, expected: dict, optional: dict, hints: dict, stream: str):
+    """Parse one log. Returns (Dataset or None, problems, LogInfo or None, sha256)."""
+    try:
+        with open(path, "rb") as f:
+            data = f.read()
+    except OSError as exc:
+        return (
+            None,
+            [
+                Problem(
+                    rel,
+                    None,
+                    None,
+                    "a readable file",
+                    exc.strerror or str(exc),
+                    "Check the path in runs.csv.",
+                )
+            ],
+            None,
+            "",
+        )
+    sha = hashlib.sha256(data).hexdigest()
+    if not data.strip():
+        return (
+            None,
+            [
+                Problem(
+                    rel,
+                    None,
+                    None,
+                    "a header row and data rows",
+                    "an empty file",
+                    "The logger wrote nothing; repeat the run or remove it.",
+                )
+            ],
+            None,
+            sha,
+        )
+    header = _read_header(data, rel, expected, optional, hints)
+    problems = list(header.problems)
+    end = len(data)
+    while end > header.end and data[end - 1] in b"\r\n":
+        end -= 1
+    ncols = len(header.names)
+    if ncols == 0:
+        problems.insert(
+            0,
+            Problem(
+                rel,
+                1,
+                None,
+                "a header row of column names",
+                "an empty first line",
+                "Remove the blank first line.",
+            ),
+        )
+        return None, problems, None, sha
+    if end <= header.end:
+        problems.append(
+            Problem(
+                rel,
+                2,
+                None,
+                "data rows after the header",
+                "the header only",
+                "The logger stopped before the first sample.",
+            )
+        )
+        return None, problems, None, sha
+    columns = _fast_parse(pa.py_buffer(data)[header.end : end], ncols)
+    if columns is not None:
+        lines = np.arange(2, len(columns[0]) + 2)
+        skip = None
+    else:
+        scan_problems, values, lines, reported = _locate(data, header.end, end, rel, header.names)
+        problems += scan_problems
+        columns = [values[:, i] for i in range(ncols)]
+        skip = reported
+        if not scan_problems and not problems:
+            problems.append(
+                Problem(
+                    rel,
+                    None,
+                    None,
+                    "a CSV file of numbers",
+                    "a file the CSV reader could not parse",
+                    "Check quoting and separators (commas only).",
+                )
+            )
+    usable = {
+        name: conv(col)
+        for name, conv, col in zip(header.names, header.conversions, columns, strict=True)
+        if conv is not None
+    }
+    skipmask = {}
+    if skip is not None:
+        skipmask = {n: skip[:, i] for i, n in enumerate(header.names) if n in usable}
+    problems += _check_values(rel, usable, lines, skipmask)
+    if problems:
+        return None, problems, None, sha
+    time = usable["time"]
+    info = LogInfo(
+        rows=len(time),
+        start=float(time[0]),
+        end=float(time[-1]),
+        median_dt=float(np.median(np.diff(time))) if len(time) > 1 else float("nan"),
+        columns=tuple(header.names),
+    )
+    variables = {
+        name: xr.Variable("time", usable[name], {"units": conv.units})
+        for name, conv in zip(header.names, header.conversions, strict=True)
+        if name != "time"
+    }
+    ds = xr.Dataset(
+        variables,
+        coords={"time": xr.Variable("time", time, {"units": "s", "long_name": "time from start"})},
+        attrs={"file": rel, "sha256": sha, "stream": stream},
+    )
+    return ds, [], info, sha
+
+
+def read_log(path, *, root, stream, expected_columns, optional_columns=()) -> xr.Dataset:
+    """Parse one CSV log into a Dataset in SI units.
+
+    Parameters
+    ----------
+    path : str or Path
+        The log, absolute or relative to ``root``.
+    root : str or Path
+        The campaign folder; the Dataset's ``file`` attribute is relative to it.
+    stream : str
+        Which stream the log is (one of :data:`STREAMS`, or several joined by ``+`` for a file
+        serving several); written to the ``stream`` attribute.
+    expected_columns : iterable of str, or mapping of str to dimension
+        Base names of the required columns (``time`` is always required). A mapping gives
+        each column's dimension (a key of units.DIMENSIONS, or None for any unit); with a
+        plain list, fixed names (``T``, ``speed``, …) have their own dimension, other names are
+        pressures in a pressure log and of any unit otherwise (balance channels).
+    optional_columns : iterable of str, or mapping of str to dimension
+        Columns that may be present.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dim ``time`` [s]; one variable per column by base name, in SI (pressures in Pa,
+        temperature in K, RH a fraction, ``speed`` in rad/s, ``angle`` in deg, balance channels
+        in the SI unit of their header); attrs ``file``, ``sha256``, ``stream``.
+
+    Raises
+    ------
+    InputError
+        Listing every problem found in the file.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> root = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (root / "t.csv").write_text("time [s],T [degC]\\n0,20\\n0.5,20.5\\n")
+    >>> ds = read_log("t.csv", root=root, stream="tunnel", expected_columns=["T"])
+    >>> float(ds["T"][0]), ds["T"].attrs["units"]
+    (293.15, 'K')
+    """
+    root = Path(root)
+    full = Path(path) if Path(path).is_absolute() else root / path
+    try:
+        rel = full.relative_to(root).as_posix()
+    except ValueError:
+        rel = str(path)
+    expected = _with_dimensions(expected_columns, stream)
+    expected = {"time": "time"} | expected
+    optional = _with_dimensions(optional_columns, stream)
+    ds, problems, _, _ = _parse_log(full, rel, expected, optional, {}, stream)
+    if problems:
+        raise InputError(problems)
+    return ds
+
+
+def _with_dimensions(columns, stream: str) -> dict:
+    if isinstance(columns, Mapping):
+        return dict(columns)
+    default = "pressure" if stream == "pressure" else None
+    return {name: FIXED_COLUMNS.get(name, default) for name in columns}
+
+
+def log_columns(config: CampaignConfig, stream: str, *, spinning: bool) -> tuple[dict, dict]:
+    """The required and optional columns of a stream's log: base name → dimension.
+
+    ``spinning``: the run spins (makes ``angle`` required in a pressure log).
+    """
+    fixed = FIXED_COLUMNS
+    if stream == "tunnel":
+        q = Q_SOURCES[config.tunnel.q_source]
+        other = next(c for c in Q_SOURCES.values() if c != q)
+        required = {c: fixed[c] for c in ("time", q, "T", "p_baro", "RH")}
+        optional = {c: fixed[c] for c in (other, "speed", "angle")}
+    elif stream == "balance":
+        channels = config.instruments.balance.channels if config.instruments.balance else ()
+        required = {"time": "time"} | {c: None for c in channels}
+        optional = {"speed": fixed["speed"], "angle": fixed["angle"]}
+    elif stream == "pressure":
+        required = {"time": "time"} | {t.name: "pressure" for t in config.taps}
+        optional = {"speed": fixed["speed"]}
+        (required if spinning else optional)["angle"] = fixed["angle"]
+    else:
+        raise ValueError(f"unknown stream {stream!r}")
+    return required, optional
+
+
+def _stream_hints(stream: str) -> dict:
+    if stream == "pressure":
+        return {
+            "extra": "A tap column must be declared in campaign.toml [[taps]]; declare it "
+            "or remove the column.",
+            "missing": "Every [[taps]] entry needs its column in the pressure log.",
+            "angle": "A spinning run's pressure log needs the encoder angle to place its taps.",
+        }
+    if stream == "balance":
+        return {"missing": "Every [instruments.balance] channel needs its column."}
+    return {}
