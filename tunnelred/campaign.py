@@ -369,9 +369,9 @@ class _PoolStart:
 
     The first submission to a forkserver pool blocks until the server has imported tunnelred
     (a second or more); a helper thread makes it (a warm-up task that opens the campaign) while
-    this process gets on with its own work. Whichever of the two finishes last shuts the pool
-    down. The pool lives for one reduction, so its processes' opened campaign is current: the
-    token is only this pool's.
+    this process gets on with its own work. :meth:`finish` with ``wait`` joins both, so no
+    half-started process outlives the reduction. The pool lives for one reduction, so its
+    processes' opened campaign is current: the token is only this pool's.
     """
 
     def __init__(self, path: str, helpers: int):
@@ -402,6 +402,9 @@ class _PoolStart:
             return self._submitted
 
     def finish(self, wait: bool) -> None:
+        if wait:
+            # A process still starting when the command exits dies with a traceback of its own.
+            self._thread.join()
         with self._lock:
             self._finished = True
             if self._submitted:
@@ -444,7 +447,7 @@ def _run_pool(campaign, pool: _PoolStart, run_ids, monte_carlo):
     finally:
         for future in pending:
             future.cancel()
-        pool.finish(wait=not pending)
+        pool.finish(wait=True)
 
 
 def _distributed():
@@ -612,21 +615,12 @@ def reduce_campaign(
         _distributed()
     path = Path(path).resolve()
     workers = max(1, int(workers or os.cpu_count() or 1))
-    # The pool starts first, so that its start-up overlaps opening the campaign and reading
-    # the cache; it is shut down unused if every run comes from the cache.
-    pool = _PoolStart(str(path), workers - 1) if dask is None and workers > 1 else None
-    try:
-        return _reduce(
-            path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
-        )
-    finally:
-        if pool is not None:
-            pool.finish(wait=False)
+    return _reduce(
+        path, out, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
+    )
 
 
-def _reduce(
-    path, out, pool, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
-):
+def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures):
     campaign = open_campaign(path, check_logs=False)
     selected = _select(campaign, run_ids)
 
@@ -660,10 +654,13 @@ def _reduce(
     try:
         if dask is not None:
             stream = _run_dask(str(path), _token(campaign, keys), todo, monte_carlo, workers, dask)
-        elif pool is None or len(todo) <= 1:
+        elif workers == 1 or len(todo) <= 1:
             stream = _run_serial(campaign, todo, monte_carlo)
         else:
-            stream = _run_pool(campaign, pool, todo, monte_carlo)
+            # Started only when there is work for it: this process reduces from the front of
+            # the list while the pool's processes start, and the pool is joined when done,
+            # so that no half-started process outlives the command.
+            stream = _run_pool(campaign, _PoolStart(str(path), workers - 1), todo, monte_carlo)
         with contextlib.closing(stream), _blas_one_thread():
             for outcome in stream:
                 outcomes[outcome.run] = outcome
