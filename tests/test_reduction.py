@@ -103,6 +103,23 @@ def test_every_result_has_its_uncertainty(demo_results):
         assert f"flag_{name}" in ds
 
 
+def test_theory_comparison_carries_its_uncertainty(table, demo_truth, clean):
+    # CL_ideal = -2 pi alpha (Kutta-Joukowski, DESIGN.md §4): its u is 2 pi u(alpha) exactly, a
+    # linear function of one input (JCGM 100:2008 eq. 10).
+    spinning = [r for r in clean if abs(table.loc[r, "alpha"]) > 0.1]
+    assert np.allclose(table.loc[spinning, "CL_ideal"], -2 * np.pi * table.loc[spinning, "alpha"])
+    assert np.allclose(
+        table.loc[spinning, "u_CL_ideal"], 2 * np.pi * table.loc[spinning, "u_alpha"]
+    )
+    # The measured stagnation point and suction peak of a pressure run have a finite,
+    # non-zero uncertainty (the tap azimuth uncertainty alone moves them).
+    with_pressure = [r for r in spinning if np.isfinite(table.loc[r, "theta_stag"])]
+    assert with_pressure
+    for name in ("theta_stag", "Cp_max", "Cp_min", "theta_Cp_min", "Cp_base"):
+        u = table.loc[with_pressure, f"u_{name}"]
+        assert np.all(np.isfinite(u) & (u > 0)), name
+
+
 def test_budgets_account_for_the_variance(demo_results):
     budgets = demo_results.budgets
     assert set(budgets["output"]) == set(BUDGET_OUTPUTS)

@@ -36,6 +36,8 @@ RUN_OUTPUTS = (
     "q_uncorrected", "U_uncorrected", "Re_uncorrected", "alpha_uncorrected",
     "CL_uncorrected", "CD_uncorrected", "CM_uncorrected", "C_power_uncorrected",
     "L_D_uncorrected", "CL_p_uncorrected", "CD_p_uncorrected",
+    "CL_ideal", "lift_efficiency", "theta_stag_ideal",
+    "theta_stag", "Cp_max", "Cp_min", "theta_Cp_min", "Cp_base",
 )  # fmt: skip
 
 #: Headline outputs whose uncertainty budgets are kept.
@@ -483,9 +485,23 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integra
         out["eps_wake"] = np.broadcast_to(wc.eps_wake, q_u.shape)
         out["delta_CD_buoyancy"] = np.broadcast_to(wc.delta_CD_buoyancy, q_u.shape)
         out["delta_alpha_lift"] = np.broadcast_to(wc.delta_alpha_lift, q_u.shape)
+        # The potential-flow comparison is part of the model, so that it carries an uncertainty.
+        out["CL_ideal"] = theory.lift_coefficient(out["alpha"])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out["lift_efficiency"] = np.where(
+                out["alpha"] != 0, out["CL"] / out["CL_ideal"], np.nan
+            )
+        out["theta_stag_ideal"] = theory.stagnation_angles(out["alpha"])[0]
+        for name in ("theta_stag", "Cp_max", "Cp_min", "theta_Cp_min", "Cp_base"):
+            out[name] = nan
         if cp_u is not None:
             out["Cp"] = corrected["Cp"]
             out["Cp_uncorrected"] = cp_u
+            features = theory.surface_features(theta_bins, out["Cp"], base_arc=red.base_arc)
+            for name, value in features.items():
+                # An azimuth error moves the measured features along θ with the whole curve.
+                shift = x["theta_offset"] if name.startswith("theta") else 0.0
+                out[name] = np.broadcast_to(value + shift, q_u.shape)
         return out
 
     model.method = method
@@ -612,9 +628,6 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     values["corr_CL_alpha"] = _safe_correlation(linear, "CL", "alpha")
 
     alpha = values["alpha"]
-    values["CL_ideal"] = float(theory.lift_coefficient(alpha))
-    values["lift_efficiency"] = values["CL"] / values["CL_ideal"] if alpha else np.nan
-    values["theta_stag_ideal"] = float(theory.stagnation_angles(alpha)[0])
     for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
         values[name] = float(measures.get(name, np.nan))
     values["revolutions"] = float(measures.get("revolutions", np.nan))
@@ -642,12 +655,6 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
             "Cp_count": points.count,
             "Cp_ideal": theory.cp_surface(theta, alpha),
         }
-        features = theory.surface_features(
-            points.theta,
-            np.asarray(linear.values["Cp"]).reshape(-1),
-            base_arc=cfg.reduction.base_arc,
-        )
-        values.update({k: float(v) for k, v in features.items()})
         measures["Cp_max"] = values["Cp_max"]
 
     if has_balance and integrate:
