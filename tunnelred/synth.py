@@ -35,6 +35,10 @@ The forward model, in the order it runs for a data run:
    one tubing delay earlier, minus the centrifugal head of the air column between tap and
    transducer, plus noise.
 
+A :class:`Fault` changes this forward model for one run (an unsteady drive, a drifting tunnel, a
+leaking tap, a knock on the model, a wrong pitot or scanner reference, …), each kind built to
+raise one quality flag; every faulty run is followed by a clean retake.
+
 Conventions are those of DESIGN.md §4. In particular ``Mz`` is the aerodynamic torque on the model
 about +z: it opposes the spin, so ``CM`` has the sign opposite to ``alpha`` and
 ``C_power = CM alpha`` is negative (power taken from the drive).
@@ -70,8 +74,32 @@ __all__ = [
     "write_demo_campaign",
 ]
 
-#: Faults that :class:`SynthSpec` can plant, as named in truth.csv ``planted_fault``.
-FAULT_KINDS = ("spin_scatter", "speed_drift", "dead_tap", "zero_shift")
+#: Faults that :class:`SynthSpec` can plant, as named in truth.csv ``planted_fault``. Each is
+#: named for the quality flag (:data:`tunnelred.quality.FLAG_NAMES`) it is built to raise; what
+#: each one changes in the forward model, and the unit of its ``size``, is in :class:`Fault`.
+FAULT_KINDS = (
+    "spin_scatter",
+    "speed_drift",
+    "dead_tap",
+    "zero_shift",
+    "spin_drift",
+    "temperature_drift",
+    "stream_overlap",
+    "tare_extrapolated",
+    "overload",
+    "few_revolutions",
+    "cl_disagreement",
+    "repeat_disagreement",
+    "stagnation_cp",
+)
+
+#: Faults whose run carries a pressure log whatever the spec's pressure set points say.
+_PRESSURE_FAULTS = ("dead_tap", "few_revolutions", "cl_disagreement", "stagnation_cp")
+
+#: The knock of the ``overload`` fault: the model rings on the balance at this (invented)
+#: natural frequency [Hz] under a Gaussian envelope of this standard deviation [s].
+_KNOCK_FREQUENCY = 25.0
+_KNOCK_WIDTH = 0.04
 
 _RPM = 2.0 * math.pi / 60.0  # rad/s per rpm
 _REFERENCE_RE = 1.0e5
@@ -408,10 +436,43 @@ def true_surface_cp(theta, alpha, reynolds, *, end_plates):
 class Fault:
     """A flaw planted on purpose in one data run.
 
+    Each kind changes the forward model of the test, never its outputs: the logs are what the
+    instruments would have recorded with that flaw. truth.csv keeps the true free-air values, so a
+    faulty run's results depart from them where the flaw biases a measurement.
+
     Parameters
     ----------
-    kind : {"spin_scatter", "speed_drift", "dead_tap", "zero_shift"}
-        What goes wrong.
+    kind : str
+        What goes wrong, one of :data:`FAULT_KINDS` (named for the flag it raises):
+
+        - ``spin_scatter``: the drive holds the rpm badly (AR(1) scatter with the spec's
+          ``spin_jitter_time``).
+        - ``speed_drift``: the tunnel speed changes linearly over the record, rpm held.
+        - ``dead_tap``: one tap flat-lines at the revolution-average pressure (its tubing leaks
+          into the model's cavity).
+        - ``zero_shift``: every balance zero steps just after the run, before its post-zero.
+        - ``spin_drift``: the drive's rpm changes linearly over the record (its controller sags).
+        - ``temperature_drift``: the air warms linearly over the record; density, viscosity and
+          q follow it.
+        - ``stream_overlap``: the tunnel log stops before the end of the record (the balance and
+          pressure logs run on).
+        - ``tare_extrapolated``: the run names only the spin-tare runs spun at most ``size``
+          times its own rpm, as when the tare sweep stopped short of the data rpm; the spin
+          must not be zero.
+        - ``overload``: a knock on the model: the balance rings at 25 Hz under a Gaussian
+          envelope (40 ms standard deviation) along the balance y axis, centred on a sample in
+          mid-record; the ringing is odd about that sample, so it adds nothing to the mean load.
+        - ``few_revolutions``: the acquisition stops early on every stream (the record is cut
+          short); the run carries a pressure log.
+        - ``cl_disagreement``: the pressure scanner's span is wrong (a wrong range setting):
+          every tap reading, centrifugal head included, is ``1 + size`` times what it should be;
+          the run carries a pressure log.
+        - ``repeat_disagreement``: the pitot-static transducer reads ``size`` above the impact
+          pressure (a zero offset): q, U, alpha and every coefficient of the run are biased
+          alike, which only a repeat of the set point reveals.
+        - ``stagnation_cp``: the scanner's reference port sees ``size`` above the tunnel static
+          pressure (a leaking or misplaced reference tube), so every tap reads that much low;
+          the run is at rest (``spin_ratio`` 0) and carries a pressure log.
     config : str
         Configuration label of the run.
     speed : float
@@ -419,12 +480,34 @@ class Fault:
     spin_ratio : float
         Nominal spin ratio of the run (the first run of the up sweep at this point). [-]
     size : float
-        ``spin_scatter``: relative standard deviation of the rpm [-]; ``speed_drift``: relative
-        change of U from start to end of the record [-]; ``zero_shift``: step of every
-        channel's zero, as a fraction of that load's full scale, taken between the run and its
-        post-zero [-]; ``dead_tap``: the index (0-based) of the tap that flat-lines.
+        How large the flaw is, by kind: ``spin_scatter`` the relative standard deviation of the
+        rpm [-]; ``speed_drift``, ``spin_drift`` the relative change of U, or of the rpm, from
+        start to end of the record [-]; ``zero_shift`` the step of every channel's zero, as a
+        fraction of that load's full scale [-]; ``dead_tap`` the index (0-based) of the tap;
+        ``temperature_drift`` the change of T from start to end of the record [K];
+        ``stream_overlap`` the fraction of the record the tunnel log covers (0 to 1) [-];
+        ``tare_extrapolated`` the largest tare rpm named, as a fraction of the run's set rpm
+        (0 to 1) [-]; ``overload`` the peak of the knock as a fraction of the Fy full scale [-];
+        ``few_revolutions`` the record length [s]; ``cl_disagreement`` the scanner's relative
+        span error [-]; ``repeat_disagreement`` the pitot zero offset [Pa]; ``stagnation_cp``
+        the reference-pressure offset [Pa].
 
-    Every faulty run is followed by a clean retake at the same set point.
+    Raises
+    ------
+    ValueError
+        For an unknown kind, or a size or spin ratio the kind cannot take.
+
+    Notes
+    -----
+    Every faulty run is followed by a clean retake at the same set point. A fault that biases
+    the coefficients (``zero_shift``, ``repeat_disagreement``) makes the faulty run disagree with
+    that retake; give the set point a third run (a down-sweep point or a repeat) so that the
+    repeat check can tell which one is wrong.
+
+    Examples
+    --------
+    >>> Fault("stagnation_cp", "plates", 9.0, 0.0, 5.0).kind
+    'stagnation_cp'
     """
 
     kind: str
@@ -432,6 +515,19 @@ class Fault:
     speed: float
     spin_ratio: float
     size: float
+
+    def __post_init__(self):
+        if self.kind not in FAULT_KINDS:
+            raise ValueError(f"unknown fault kind {self.kind!r}; known: {', '.join(FAULT_KINDS)}")
+        fractions = ("stream_overlap", "tare_extrapolated")
+        if self.kind in fractions and not 0.0 < self.size < 1.0:
+            raise ValueError(f"a {self.kind} fault takes a size between 0 and 1; got {self.size}")
+        if self.kind == "few_revolutions" and not self.size > 0.0:
+            raise ValueError(f"a few_revolutions fault takes a positive length; got {self.size}")
+        if self.kind == "stagnation_cp" and self.spin_ratio != 0.0:
+            raise ValueError("a stagnation_cp fault needs a run at rest (spin_ratio 0)")
+        if self.kind == "tare_extrapolated" and self.spin_ratio == 0.0:
+            raise ValueError("a tare_extrapolated fault needs a spinning run")
 
 
 def _default_configurations():
@@ -736,13 +832,17 @@ def _schedule(spec: SynthSpec) -> list[_Run]:
                     config=cfg.label,
                     speed_set=speed,
                     spin_set=_set_rpm(spec, speed, alpha),
-                    pressure=pressure or (fault is not None and fault.kind == "dead_tap"),
+                    pressure=pressure or (fault is not None and fault.kind in _PRESSURE_FAULTS),
                 )
                 text = {"up": "up sweep", "down": "down sweep", "repeat": "repeat"}[leg]
                 text += f", nominal alpha {alpha:g}"
                 if fault is not None and fault.kind == "zero_shift":
                     zero()
                 first = add("data", fault=fault, notes=text, **common)
+                if fault is not None and fault.kind == "few_revolutions":
+                    if fault.size >= first.duration:
+                        raise ValueError(f"a few_revolutions fault shortens the record: {fault}")
+                    first.duration = fault.size
                 if fault is not None:
                     if fault.kind == "zero_shift":
                         zero()
@@ -763,7 +863,13 @@ def _schedule(spec: SynthSpec) -> list[_Run]:
         after = [z for j, z in zeros if j > i]
         r.zero = tuple(x for x in (before[-1:] + after[:1]))
         if r.kind == "data" and r.spin_set != 0.0:
-            r.tare = tuple(t.run for t in tares.get(r.config, []))
+            named = tares.get(r.config, [])
+            if r.fault is not None and r.fault.kind == "tare_extrapolated":
+                top = r.fault.size * abs(r.spin_set)
+                named = [t for t in named if abs(t.spin_set) <= top]
+                if not named:
+                    raise ValueError(f"no tare run at or below {top:g} rpm for {r.fault}")
+            r.tare = tuple(t.run for t in named)
     return runs
 
 
@@ -942,6 +1048,17 @@ def _imbalance_loads(spec: SynthSpec, omega, angle) -> np.ndarray:
     return np.stack([force * np.cos(angle), force * np.sin(angle), np.zeros_like(w)], axis=-1)
 
 
+def _knock(t, peak: float) -> np.ndarray:
+    """Load of a knock on the model at sample times ``t`` [s], its largest sample ``peak`` [N].
+
+    The model rings on the balance at its natural frequency under a Gaussian envelope, odd about
+    the middle sample, so the samples sum to zero (to rounding) and the mean load is untouched.
+    """
+    x = np.asarray(t, dtype=float) - t[np.size(t) // 2]
+    ring = np.sin(2.0 * np.pi * _KNOCK_FREQUENCY * x) * np.exp(-0.5 * (x / _KNOCK_WIDTH) ** 2)
+    return peak * ring / np.max(np.abs(ring))
+
+
 class _Writer:
     """Simulates each run and writes its logs; collects runs.csv rows and the truth table."""
 
@@ -1028,7 +1145,11 @@ class _Writer:
         U = U_mean * (1.0 + drift * (tb / r.duration - 0.5) + s.turbulence * turbulence)
         scatter = r.fault.size if fault == "spin_scatter" else s.spin_jitter
         omega = self._spin(n, dt, r.spin_set * _RPM, scatter)
+        if fault == "spin_drift":
+            omega = omega * (1.0 + r.fault.size * (tb / r.duration - 0.5))
         T, p, RH = self.ambient(r.start + tb, rng, dt)
+        if fault == "temperature_drift":
+            T = T + r.fault.size * (tb / r.duration - 0.5)
         rho = air.density(T, p, RH)
         mu = air.viscosity(T)
         q = 0.5 * rho * U**2
@@ -1049,6 +1170,8 @@ class _Writer:
         tt = _stream_times(rng, s.tunnel_rate, r.duration)
         q_t, p_t = np.interp(tt, tb, q), np.interp(tt, tb, p)
         dp = conditions.impact_pressure(q_t, p_t) + s.pitot_noise * rng.standard_normal(tt.size)
+        if fault == "repeat_disagreement":
+            dp = dp + r.fault.size
         tunnel_cols = {
             "time [s]": (tt, 4),
             "dp_pitot [Pa]": (dp, 3),
@@ -1056,6 +1179,9 @@ class _Writer:
             "p_baro [hPa]": (p_t / 100.0, 2),
             "RH [%]": (100.0 * np.interp(tt, tb, RH), 1),
         }
+        if fault == "stream_overlap":
+            kept = tt <= r.fault.size * r.duration
+            tunnel_cols = {name: (v[kept], dec) for name, (v, dec) in tunnel_cols.items()}
         tunnel_log = self._write_csv(f"logs/{r.run}_tunnel.csv", tunnel_cols)
 
         # Balance log: quasi-steady loads sample by sample, shedding, tare, imbalance.
@@ -1076,6 +1202,8 @@ class _Writer:
         fx, fy = balance.balance_to_wind(drag, lift, -(s.alignment_angle - s.flow_angle))
         loads = np.stack([fx, fy, torque], axis=-1)
         loads = loads + _tare_loads(s, w_b) + _imbalance_loads(s, w_b, np.interp(t_b, tb, angle))
+        if fault == "overload":
+            loads[:, 1] += _knock(t_b, r.fault.size * s.full_scale[1])
         balance_log = self._balance_log(r, t_b, loads, w_b)
 
         pressure_log = ""
@@ -1124,6 +1252,10 @@ class _Writer:
             cp[:, k] = np.mean(_tunnel_cp(_GRID, state))
         noise = np.hypot(s.tap_noise * q_p, s.tap_noise_floor)[:, None]
         taps = cp * q_p[:, None] - head[:, None] + noise * rng.standard_normal(cp.shape)
+        if fault == "cl_disagreement":
+            taps = taps * (1.0 + r.fault.size)
+        elif fault == "stagnation_cp":
+            taps = taps - r.fault.size
         counts = np.floor(
             np.mod(np.rad2deg(np.interp(tp, tb, angle)), 360.0) / 360.0 * s.encoder_counts
         )
