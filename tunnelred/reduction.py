@@ -188,10 +188,11 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     # The zero's own scatter enters through the linearised calibration.
     u_zero_loads = np.abs(matrix) @ u_zero
     full_scale = np.array(cfg.full_scale)
-    measures["overload"] = float(np.max(balance.overload_fraction(loads_t, full_scale)))
+    # Per component, so that a flag's reason can name the load (Fx, Fy, Mz).
+    measures["overload"] = np.asarray(balance.overload_fraction(loads_t, full_scale))
     if len(spec.zero) > 1:
         shift_loads = balance.loads_from_signals(shift, matrix, None)
-        measures["zero_shift"] = float(np.max(np.abs(shift_loads) / full_scale))
+        measures["zero_shift"] = np.abs(np.asarray(shift_loads)) / full_scale
 
     tare = np.zeros(3)
     u_tare = np.zeros(3)
@@ -629,7 +630,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     alpha = values["alpha"]
     for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
-        values[name] = float(measures.get(name, np.nan))
+        values[name] = float(np.max(measures.get(name, np.nan)))
     values["revolutions"] = float(measures.get("revolutions", np.nan))
     values["dead_taps"] = ";".join(dead_taps)
 
