@@ -436,10 +436,11 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
             ax.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
             ax.set_ylabel(r"pressure coefficient $C_p$")
             ax.set_title(f"Surface pressure, run {run}")
-            # At high spin the potential-flow suction peak lies far below any real one; the
-            # axis keeps to the data (with room for a third again), the theory line runs off it.
+            # At high spin the potential-flow suction peak (1 - (α + 2)²) lies far below any
+            # real one; the axis then keeps to the data and the theory line runs off it. At low
+            # spin (peak above -5, e.g. -3 at α = 0) the whole theory curve stays in view.
             low = float(np.nanmin(cp - k * u))
-            if ideal.min() < low - 0.5 * (1.5 - low):
+            if ideal.min() < min(-5.0, 1.0 + 1.5 * (low - 1.0)):
                 ax.set_ylim(low - 0.3 * (1.5 - low), 1.5)
                 ax.annotate("potential-flow minimum "
                             f"{ideal.min():.1f} off scale", xy=(0.02, 0.03),
