@@ -632,6 +632,8 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
         values[name] = float(np.max(measures.get(name, np.nan)))
     values["revolutions"] = float(measures.get("revolutions", np.nan))
+    values["overload"] = float(np.max(measures.get("overload", np.nan)))
+    values["stream_overlap"] = float(measures["stream_overlap"])
     values["dead_taps"] = ";".join(dead_taps)
 
     theta = None

@@ -93,6 +93,8 @@ _VARIABLES_BASE: dict[str, tuple[str, str]] = {
     "temperature_drift": ("K", "change of the air temperature over the run"),
     "zero_shift": ("1", "pre- to post-run zero difference as a fraction of full scale"),
     "revolutions": ("1", "revolutions during the pressure record"),
+    "overload": ("1", "largest balance load as a fraction of its full scale"),
+    "stream_overlap": ("1", "fraction of the run that every stream covers"),
     "dead_taps": ("", "taps excluded from the integration, ';'-separated"),
     "corr_CL_alpha": ("1", "correlation coefficient of CL with alpha"),
     "flags": ("", "raised quality flags, ';'-separated"),
