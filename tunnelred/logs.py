@@ -266,8 +266,8 @@ def _check_values(
     return problems
 
 
-def _fast_parse(body: pa.Buffer, ncols: int) -> list[np.ndarray] | None:
-    """All columns as float64 with pyarrow, or None when anything is not plain numbers."""
+def _arrow_table(body: pa.Buffer, ncols: int, kind: pa.DataType) -> pa.Table | None:
+    """The rows as a pyarrow table of ``ncols`` columns of one type, or None if they are not."""
     names = [f"c{i}" for i in range(ncols)]
     try:
         table = pacsv.read_csv(
@@ -275,29 +275,7 @@ def _fast_parse(body: pa.Buffer, ncols: int) -> list[np.ndarray] | None:
             read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
             parse_options=pacsv.ParseOptions(ignore_empty_lines=False),
             convert_options=pacsv.ConvertOptions(
-                column_types={n: pa.float64() for n in names},
-                null_values=[],
-                strings_can_be_null=False,
-                quoted_strings_can_be_null=False,
-            ),
-        )
-    except (pa.ArrowException, ValueError, OverflowError):
-        return None
-    if table.num_columns != ncols:
-        return None
-    return [table.column(i).to_numpy() for i in range(ncols)]
-
-
-def _string_parse(body: pa.Buffer, ncols: int):
-    """Every column as text with pyarrow (checks UTF-8), or None when the rows are malformed."""
-    names = [f"c{i}" for i in range(ncols)]
-    try:
-        table = pacsv.read_csv(
-            pa.BufferReader(body),
-            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
-            parse_options=pacsv.ParseOptions(ignore_empty_lines=False),
-            convert_options=pacsv.ConvertOptions(
-                column_types={n: pa.string() for n in names},
+                column_types={n: kind for n in names},
                 null_values=[],
                 strings_can_be_null=False,
                 quoted_strings_can_be_null=False,
@@ -306,6 +284,17 @@ def _string_parse(body: pa.Buffer, ncols: int):
     except (pa.ArrowException, ValueError, OverflowError):
         return None
     return table if table.num_columns == ncols else None
+
+
+def _fast_parse(body: pa.Buffer, ncols: int) -> list[np.ndarray] | None:
+    """All columns as float64 with pyarrow, or None when anything is not plain numbers."""
+    table = _arrow_table(body, ncols, pa.float64())
+    return None if table is None else [table.column(i).to_numpy() for i in range(ncols)]
+
+
+def _string_parse(body: pa.Buffer, ncols: int):
+    """Every column as text with pyarrow (checks UTF-8), or None when the rows are malformed."""
+    return _arrow_table(body, ncols, pa.string())
 
 
 def _cells_to_numbers(file: str, table: pa.Table, names: list[str], first_line: int):
