@@ -95,6 +95,23 @@ def test_density_against_oiml_approximation(t_c, p_hpa, h_percent):
     assert cipm == pytest.approx(oiml, rel=2.4e-4)
 
 
+@pytest.mark.parametrize(
+    ("t_c", "p_mmhg", "rh", "rho"),
+    [
+        (10.0, 730.0, 0.40, 1.19569),
+        (40.0, 760.0, 0.40, 1.11497),
+    ],
+)
+def test_density_against_published_cipm_2007_values(t_c, p_mmhg, rh, rho):
+    # CIPM-2007 moist-air densities tabulated in S. V. Gupta, "Mass Metrology", Springer 2012,
+    # Appendix, p. 205 (xCO2 0.0004), as quoted with that citation in the test suite of the
+    # open-source R package masscor; the book itself was not consulted. The table gives 6
+    # digits (±5e-6 kg/m3); at 40 °C the humid-air terms dominate and the table's rounding of
+    # its inputs is unknown, so rtol 1e-4 (the equation itself: u_rel 2.2e-5, Picard 2008).
+    mmhg = 133.322387415  # Pa, conventional millimetre of mercury (NIST SP 811, Appendix B)
+    assert air.density(t_c + 273.15, p_mmhg * mmhg, rh) == pytest.approx(rho, rel=1e-4)
+
+
 def test_density_dry_sea_level_is_icao_over_compressibility():
     # CIPM-2007 dry air differs from the ICAO ideal gas (Doc 7488/3: 1.2250 kg/m3) by the molar
     # mass (ICAO M0 = 28.964420 g/mol, CIPM-2007 28.96546 g/mol) and by the compressibility
