@@ -252,6 +252,23 @@ def _theory_lines(ax: Axes, ds: xr.Dataset, name: str) -> None:
         )
 
 
+def _error_points(ax: Axes, x, y, ux, uy, idx, style: SeriesStyle, label: str):
+    """The runs ``idx`` as markers with expanded-uncertainty bars (k = 2) in both directions."""
+    k = COVERAGE_FACTOR
+    return ax.errorbar(
+        x[idx],
+        y[idx],
+        xerr=k * ux[idx],
+        yerr=k * uy[idx],
+        color=style.color,
+        marker=style.marker,
+        linestyle="none",
+        elinewidth=0.8,
+        label=label,
+        zorder=3,
+    )
+
+
 def plot_coefficient(
     results,
     name: str = "CL",
@@ -309,23 +326,11 @@ def plot_coefficient(
         ax = _new_axes(ax)
         if theory:
             _theory_lines(ax, ds, name)
-        k = COVERAGE_FACTOR
         x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
         y, uy = _values(ds, name), _values(ds, f"u_{name}")
         for i, (label, idx) in enumerate(group_runs(ds, by)):
             style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
-            ax.errorbar(
-                x[idx],
-                y[idx],
-                xerr=k * ux[idx],
-                yerr=k * uy[idx],
-                color=style.color,
-                marker=style.marker,
-                linestyle="none",
-                elinewidth=0.8,
-                label=label or "all runs",
-                zorder=3,
-            )
+            _error_points(ax, x, y, ux, uy, idx, style, label or "all runs")
             if uncorrected and f"{name}_uncorrected" in ds:
                 ax.plot(
                     _values(ds, "alpha_uncorrected")[idx],
@@ -628,7 +633,6 @@ def plot_comparison(
     """
     ds = results_dataset(results)
     _check_name(ds, name)
-    k = COVERAGE_FACTOR
     x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
     y, uy = _values(ds, name), _values(ds, f"u_{name}")
     inner = dict(group_runs(ds, _other_split(by)))
@@ -648,18 +652,7 @@ def plot_comparison(
                     label=label,
                 )
             )
-            ax.errorbar(
-                x[idx],
-                y[idx],
-                xerr=k * ux[idx],
-                yerr=k * uy[idx],
-                color=style.color,
-                marker=style.marker,
-                linestyle="none",
-                elinewidth=0.8,
-                label=label,
-                zorder=3,
-            )
+            _error_points(ax, x, y, ux, uy, idx, style, label)
             for members in inner.values():
                 part = np.intersect1d(idx, members)
                 part = part[np.argsort(x[part])]
