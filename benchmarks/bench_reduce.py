@@ -46,7 +46,7 @@ def _spec(runs: int, seconds: float, rate: float, taps: int):
     """
     import numpy as np
 
-    from tunnelred import synth
+    from tunnelred.demo import synth
 
     demo = synth.demo_spec()
     per_speed = 10 if runs >= 50 else 5
@@ -97,7 +97,7 @@ def _child(args: dict) -> dict:
     import resource
     import tracemalloc
 
-    from tunnelred.campaign import reduce_campaign
+    from tunnelred.pipeline.campaign import reduce_campaign
 
     campaign = Path(args["campaign"])
     work = Path(args["work"])
@@ -197,7 +197,8 @@ def main(argv=None) -> int:
         print(json.dumps(_child(json.loads(options.child))))
         return 0
 
-    from tunnelred import __version__, synth
+    from tunnelred import __version__
+    from tunnelred.demo import synth
 
     load_before = os.getloadavg()
     rows = []

@@ -140,7 +140,7 @@ def demo_campaign_dir(tmp_path_factory) -> Path:
     """The committed demo campaign (sample_runs/), or a fresh copy from synth if absent."""
     if (SAMPLE_RUNS / "campaign.toml").is_file():
         return SAMPLE_RUNS
-    from tunnelred.synth import write_demo_campaign
+    from tunnelred.demo.synth import write_demo_campaign
 
     dest = tmp_path_factory.mktemp("demo") / "campaign"
     write_demo_campaign(dest)
@@ -150,7 +150,7 @@ def demo_campaign_dir(tmp_path_factory) -> Path:
 @pytest.fixture(scope="session")
 def demo_results(demo_campaign_dir, tmp_path_factory):
     """The demo campaign reduced once for the whole session (two worker processes)."""
-    from tunnelred.campaign import reduce_campaign
+    from tunnelred.pipeline.campaign import reduce_campaign
 
     out = tmp_path_factory.mktemp("demo_out") / "out"
     return reduce_campaign(demo_campaign_dir, out, workers=2, progress=False)
@@ -167,8 +167,8 @@ def demo_truth(demo_campaign_dir):
 @pytest.fixture(scope="session")
 def reduced(tmp_path_factory):
     """(campaign folder, output folder) of a small synthetic campaign, reduced once a session."""
-    from tunnelred import synth
-    from tunnelred.campaign import reduce_campaign
+    from tunnelred.demo import synth
+    from tunnelred.pipeline.campaign import reduce_campaign
 
     root = tmp_path_factory.mktemp("small")
     demo = synth.demo_spec()

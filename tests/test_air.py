@@ -1,4 +1,4 @@
-"""tunnelred.air against published standards and formulas."""
+"""tunnelred.physics.air against published standards and formulas."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from tunnelred import air
+from tunnelred.physics import air
 
 KINDS = ("scalar", "ndarray", "Series", "DataArray")
 

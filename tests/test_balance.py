@@ -1,4 +1,4 @@
-"""Tests of tunnelred.balance against numpy.linalg, closed forms worked by hand, and
+"""Tests of tunnelred.physics.balance against numpy.linalg, closed forms worked by hand, and
 Kutta–Joukowski potential flow (J. D. Anderson, Fundamentals of Aerodynamics, 6th ed., §3.16)."""
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from tunnelred import balance
-from tunnelred.balance import (
+from tunnelred.physics import balance
+from tunnelred.physics.balance import (
     TareRangeError,
     balance_to_wind,
     force_coefficients,

@@ -1,6 +1,6 @@
-"""tunnelred.campaign: failure isolation, parallel executors, the per-run cache, interruption.
+"""tunnelred.pipeline.campaign: failure isolation, parallel executors, the per-run cache, interruption.
 
-The campaign is a small synthetic one (tunnelred.synth): three zeros, three spin tares and five
+The campaign is a small synthetic one (tunnelred.demo.synth): three zeros, three spin tares and five
 data runs at one speed, one of them with a pressure log, the last three repeats of one set point.
 Which runs a change must re-reduce is worked out here from runs.csv with pandas, independently of
 the engine. Executors are compared with xarray.testing.assert_identical.
@@ -17,9 +17,10 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from tunnelred import campaign as engine
-from tunnelred import reduction, synth
-from tunnelred.reduction import RunResult
+from tunnelred.demo import synth
+from tunnelred.pipeline import campaign as engine
+from tunnelred.engine import reduction
+from tunnelred.engine.reduction import RunResult
 
 OUTPUT_FILES = {
     "results.nc",
@@ -214,7 +215,7 @@ def test_corrupt_cache_entry_is_a_miss(campaign_dir, tmp_path, calls):
 
 
 def test_monte_carlo_setting_is_part_of_the_key(campaign_dir):
-    from tunnelred.readers import open_campaign
+    from tunnelred.inputs.readers import open_campaign
 
     camp = open_campaign(campaign_dir, check_logs=False)
     assert engine.cache_key(camp, "R002") != engine.cache_key(camp, "R002", monte_carlo=200)

@@ -94,9 +94,9 @@ def test_demo_refuses_non_empty_dest(tmp_path, capsys):
 
 
 def test_demo_writes_a_campaign_that_passes_check(tmp_path, capsys):
-    synth = pytest.importorskip("tunnelred.synth")
+    synth = pytest.importorskip("tunnelred.demo.synth")
     if not hasattr(synth, "write_demo_campaign"):
-        pytest.skip("tunnelred.synth.write_demo_campaign is not written yet")
+        pytest.skip("tunnelred.demo.synth.write_demo_campaign is not written yet")
     dest = tmp_path / "demo"
     assert main(["demo", str(dest), "--seed", "1"]) == 0
     assert main(["check", str(dest)]) == 0, capsys.readouterr().out
@@ -109,8 +109,9 @@ def test_sample_campaign_passes_check(capsys):
 
 
 def test_watch_help_states_the_live_defaults(capsys):
-    # The help text is written without importing tunnelred.live; it must say what live uses.
-    from tunnelred import cli, live
+    # The help text is written without importing tunnelred.live.watcher; it must say what live uses.
+    from tunnelred import cli
+    from tunnelred.live import watcher as live
 
     assert float(cli._SETTLE_HELP) == live.DEFAULT_SETTLE
     assert float(cli._POLL_HELP) == live.DEFAULT_POLL

@@ -1,4 +1,4 @@
-"""Tests of tunnelred.compare against hand-worked cases, numpy, statistics, scipy and uncertainties.
+"""Tests of tunnelred.products.compare against hand-worked cases, numpy, statistics, scipy and uncertainties.
 
 Synthetic results are DataFrames built here with the names of docs/results.md; their "truth" is a
 stated formula (potential flow CL = −2πα, or a chosen curve plus a known increment) and their
@@ -18,8 +18,8 @@ import uncertainties
 import xarray as xr
 from scipy import stats
 
-from tunnelred import compare
-from tunnelred.errors import InputError
+from tunnelred.common.errors import InputError
+from tunnelred.products import compare
 
 RPM_TO_ALPHA = 0.5 / 600.0  # synthetic spin ratio per rpm (a fixed speed and radius)
 

@@ -1,4 +1,4 @@
-"""tunnelred.conditions against published relations, hand-worked numbers and scipy."""
+"""tunnelred.physics.conditions against published relations, hand-worked numbers and scipy."""
 
 from __future__ import annotations
 
@@ -11,8 +11,8 @@ from scipy.optimize import brentq
 from scipy.signal import lfilter
 from test_air import KINDS, as_kind, check_kind
 
-from tunnelred import air, conditions
-from tunnelred.config import (
+from tunnelred.common.errors import ReductionError
+from tunnelred.inputs.config import (
     CampaignConfig,
     CampaignInfo,
     InstrumentsConfig,
@@ -20,7 +20,7 @@ from tunnelred.config import (
     ReductionConfig,
     TunnelConfig,
 )
-from tunnelred.errors import ReductionError
+from tunnelred.physics import air, conditions
 
 P0 = 101325.0
 GAMMA = 1.4

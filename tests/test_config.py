@@ -1,9 +1,9 @@
-"""campaign.toml parsing and validation (tunnelred.config.load_config)."""
+"""campaign.toml parsing and validation (tunnelred.inputs.config.load_config)."""
 
 import pytest
 from conftest import CAMPAIGN_TOML
 
-from tunnelred.config import BLOCKAGE_METHODS, load_config
+from tunnelred.inputs.config import BLOCKAGE_METHODS, load_config
 
 
 def load(tmp_path, text):

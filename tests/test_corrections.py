@@ -8,7 +8,7 @@ import pytest
 import xarray as xr
 from scipy.special import zeta
 
-from tunnelred import corrections as c
+from tunnelred.physics import corrections as c
 
 # Shared geometry for the hand-worked cases: d/h = 0.1.
 D, H = 0.1, 1.0
@@ -96,7 +96,7 @@ def test_infinite_height_changes_nothing():
     "kind", [float, np.asarray, pd.Series, lambda v: xr.DataArray(v, dims="run")]
 )
 def test_solid_blockage_accepts_array_kinds(kind):
-    # tunnelred._arraylike promise; values by the published form pi^2/12 (d/h)^2 (Allen &
+    # tunnelred.common._arraylike promise; values by the published form pi^2/12 (d/h)^2 (Allen &
     # Vincenti): d/h = 0.1 and 0.2 give pi^2/1200 and pi^2/300.
     d = kind([0.1, 0.2]) if kind is not float else 0.1
     expected = [np.pi**2 / 1200, np.pi**2 / 300] if kind is not float else np.pi**2 / 1200

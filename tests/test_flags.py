@@ -1,10 +1,10 @@
 """Every quality flag, raised end to end by a synthetic run built to trip it, and by no clean run.
 
-One small synthetic campaign (tunnelred.synth; one configuration, three speeds, spin ratios 0 to
+One small synthetic campaign (tunnelred.demo.synth; one configuration, three speeds, spin ratios 0 to
 4, short wind-off records) plants each fault kind of synth.FAULT_KINDS in its own up-sweep run;
 every faulty run is followed by a clean retake at its set point, and the rest of the sweep, a
 down-sweep point per speed and one repeat are clean as well. The campaign is written and reduced
-once for the module (tunnelred.campaign.reduce_campaign, two worker processes). Each planted run
+once for the module (tunnelred.pipeline.campaign.reduce_campaign, two worker processes). Each planted run
 must raise its own flag and, besides it, only the flags its fault makes inevitable; its reason
 must quote the value the fault produced; and no clean run may raise anything.
 
@@ -23,10 +23,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred import synth
-from tunnelred.campaign import reduce_campaign
-from tunnelred.config import Tolerances, load_config
-from tunnelred.quality import FLAG_NAMES, parse_flag_reasons
+from tunnelred.demo import synth
+from tunnelred.pipeline.campaign import reduce_campaign
+from tunnelred.engine.quality import FLAG_NAMES, parse_flag_reasons
+from tunnelred.inputs.config import Tolerances, load_config
 
 TOL = Tolerances()  # docs/input-format.md [reduction.tolerances] defaults
 CONFIG = "plates"  # end plates: mid-span CL_p equals the balance CL (synth's model), no allowance

@@ -1,6 +1,6 @@
-"""Tests for tunnelred.live: the watch reduces a run once it is complete and never before.
+"""Tests for tunnelred.live.watcher: the watch reduces a run once it is complete and never before.
 
-A synthetic campaign (tunnelred.synth) is copied into a fresh folder run by run by a thread that
+A synthetic campaign (tunnelred.demo.synth) is copied into a fresh folder run by run by a thread that
 plays the data acquisition: each runs.csv row and each log is written in pieces that end in the
 middle of a line, with pauses, so every intermediate state of a file is one that the rule of
 docs/live.md must not take as complete. Nothing here rests on timing: the assertions compare
@@ -23,13 +23,15 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred import live, store, synth
+from tunnelred.demo import synth
+from tunnelred.live import watcher as live
+from tunnelred.products import store
 
 SETTLE = 0.3  # [s] shortened from the 2 s default to keep the file fast
 POLL = 0.05  # [s]
 LIMIT = 60.0  # [s] generous bound on every wait; a passing run needs a few seconds
 DATA_RUNS = ["R001", "R002", "R003", "R004", "R005", "R006", "R007"]
-FAULTY = "R003"  # the planted spin_scatter fault (tunnelred.synth truth.csv planted_fault)
+FAULTY = "R003"  # the planted spin_scatter fault (tunnelred.demo.synth truth.csv planted_fault)
 
 
 def _spec():

@@ -1,6 +1,6 @@
 """Plotting: what each figure holds (artists, labels, data), checked on reduced synthetic results.
 
-The results come from a small synthetic campaign (tunnelred.synth) reduced end to end: two
+The results come from a small synthetic campaign (tunnelred.demo.synth) reduced end to end: two
 configurations, two speeds, an up and a down sweep, pressure logs on three runs and one planted
 spin-scatter fault. Figures are drawn on the Agg backend and never shown.
 """
@@ -17,9 +17,9 @@ import pytest  # noqa: E402
 from matplotlib.colors import to_rgb  # noqa: E402
 from matplotlib.container import ErrorbarContainer  # noqa: E402
 
-from tunnelred import plotting  # noqa: E402
-from tunnelred.readers import open_campaign  # noqa: E402
-from tunnelred.store import read_results  # noqa: E402
+from tunnelred.products import plotting  # noqa: E402
+from tunnelred.inputs.readers import open_campaign  # noqa: E402
+from tunnelred.products.store import read_results  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -94,7 +94,7 @@ def test_cl_theory_line_and_prandtl_bound(results):
     theory = next(line for line in ax.lines if "potential flow" in line.get_label())
     alpha = np.asarray(theory.get_xdata())
     # Kutta-Joukowski with Gamma = 2 pi omega R^2: CL = -2 pi alpha (Anderson, Fundamentals of
-    # Aerodynamics, 6th ed., §3.16); computed here from the formula, not from tunnelred.theory.
+    # Aerodynamics, 6th ed., §3.16); computed here from the formula, not from tunnelred.physics.theory.
     np.testing.assert_allclose(theory.get_ydata(), -2 * np.pi * alpha, rtol=1e-12)
     # The line stops where the stagnation points leave the surface, |alpha| = 2 (Anderson §3.15).
     assert alpha.max() == pytest.approx(2.0)
@@ -144,7 +144,7 @@ def test_cp_band_and_theory(results, polar):
     x_deg = np.degrees(x) if polar else x
     alpha = float(row["alpha"])
     # Potential flow about a spinning cylinder, Cp = 1 - (alpha + 2 sin theta)^2 (Anderson §3.15,
-    # in the azimuth of DESIGN.md §4), written out here independently of tunnelred.theory.
+    # in the azimuth of DESIGN.md §4), written out here independently of tunnelred.physics.theory.
     expected = 1 - (alpha + 2 * np.sin(np.radians(x_deg))) ** 2
     np.testing.assert_allclose(ideal.get_ydata(), expected, rtol=1e-12, atol=1e-12)
     band = ax.collections[0]

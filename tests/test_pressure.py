@@ -1,4 +1,4 @@
-"""Tests of tunnelred.pressure: tap azimuth, centrifugal head, binning, ∮Cp, dead taps.
+"""Tests of tunnelred.physics.pressure: tap azimuth, centrifugal head, binning, ∮Cp, dead taps.
 
 Sources: Bessel-function integrals (M. Abramowitz and I. A. Stegun, Handbook of Mathematical
 Functions, 1964, eq. 9.6.19 (number from memory): I_n(z) = (1/π)∫₀^π e^{z cos θ} cos nθ dθ) with
@@ -18,7 +18,7 @@ from scipy.integrate import quad
 from scipy.signal import lfilter
 from scipy.special import i0, i1
 
-from tunnelred.pressure import (
+from tunnelred.physics.pressure import (
     BinnedCp,
     CpGapError,
     bin_cp,
@@ -29,7 +29,7 @@ from tunnelred.pressure import (
     pressure_coefficient,
     tap_azimuth,
 )
-from tunnelred.theory import cp_surface
+from tunnelred.physics.theory import cp_surface
 
 
 def _smooth_cp(theta):
@@ -74,7 +74,7 @@ def test_tap_azimuth_stationary_and_cumulative_encoder():
     ids=["ndarray", "Series", "DataArray"],
 )
 def test_tap_azimuth_input_kinds(kind):
-    # The array adapter returns the kind it was given (tunnelred._arraylike).
+    # The array adapter returns the kind it was given (tunnelred.common._arraylike).
     theta = tap_azimuth(kind(np.array([0.0, 90.0, 400.0])), 10.0, 0.0, 0.0)
     assert np.asarray(theta) == pytest.approx([10.0, 100.0, 50.0], abs=1e-12)
     assert type(theta) is type(kind(np.array([0.0])))

@@ -1,6 +1,6 @@
-"""Tests of tunnelred.quality: every check trips on a value built to trip it, never on a clean one.
+"""Tests of tunnelred.engine.quality: every check trips on a value built to trip it, never on a clean one.
 
-The tolerances are the defaults of tunnelred.config.Tolerances (docs/input-format.md); their
+The tolerances are the defaults of tunnelred.inputs.config.Tolerances (docs/input-format.md); their
 values are the project's choice (common practice), so the tests build measures on either side
 of them rather than asserting the defaults themselves.
 """
@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred import quality as q
-from tunnelred.config import Tolerances
-from tunnelred.quality import FLAG_NAMES, Flag
+from tunnelred.engine import quality as q
+from tunnelred.engine.quality import FLAG_NAMES, Flag
+from tunnelred.inputs.config import Tolerances
 
 T = Tolerances()
 RPM = 2 * math.pi / 60  # rad/s per rpm (exact)

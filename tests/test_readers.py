@@ -9,8 +9,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tunnelred.errors import InputError
-from tunnelred.readers import STREAMS, open_campaign, read_log
+from tunnelred.common.errors import InputError
+from tunnelred.inputs.readers import STREAMS, open_campaign, read_log
 
 TUNNEL = ["dp_pitot", "T", "p_baro", "RH"]
 HEADER = "time [s],dp_pitot [Pa],T [degC],p_baro [hPa],RH [%]\n"

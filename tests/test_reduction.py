@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred.quality import FLAG_NAMES
-from tunnelred.readers import open_campaign
-from tunnelred.reduction import BUDGET_OUTPUTS, RUN_OUTPUTS, reduce_run
+from tunnelred.engine.quality import FLAG_NAMES
+from tunnelred.engine.reduction import BUDGET_OUTPUTS, RUN_OUTPUTS, reduce_run
+from tunnelred.inputs.readers import open_campaign
 
 K = 2.0  # coverage factor of the comparisons (JCGM 100:2008 §6.3)
 
@@ -161,7 +161,7 @@ def test_indexed_runs_at_rest_merge_to_cover_the_circle(tmp_path):
     # rule on 12 equal steps integrates these harmonics exactly (Trefethen & Weideman 2014).
     from conftest import write_campaign
 
-    from tunnelred import conditions
+    from tunnelred.physics import conditions
 
     root = write_campaign(tmp_path / "campaign", rows=400)
     a = 0.2

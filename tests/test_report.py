@@ -12,7 +12,8 @@ import pandas as pd  # noqa: E402
 import pytest  # noqa: E402
 from pypdf import PdfReader  # noqa: E402
 
-from tunnelred import report, store  # noqa: E402
+from tunnelred.products import store  # noqa: E402
+from tunnelred.products import report
 
 # The headings docs/report.md promises, written out here rather than taken from report.SECTIONS.
 HEADINGS = (
@@ -107,7 +108,7 @@ def test_flag_table_names_the_planted_fault(built):
 
 def test_configuration_comparison_when_two_configurations(built):
     _, text, _, _ = built
-    pytest.importorskip("tunnelred.compare")
+    pytest.importorskip("tunnelred.products.compare")
     assert "Configuration comparison" in text
 
 

@@ -1,4 +1,4 @@
-"""tunnelred.store: the results Dataset, NetCDF/CSV files, atomic writes, provenance.
+"""tunnelred.products.store: the results Dataset, NetCDF/CSV files, atomic writes, provenance.
 
 References checked against: xarray and netCDF4 (reading the files back), pandas.read_csv,
 the OWASP "CSV Injection" page (owasp.org/www-community/attacks/CSV_Injection: cells starting
@@ -20,10 +20,10 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from tunnelred import store
-from tunnelred.quality import FLAG_NAMES, Flag
-from tunnelred.readers import open_campaign
-from tunnelred.reduction import RunResult
+from tunnelred.engine.quality import FLAG_NAMES, Flag
+from tunnelred.engine.reduction import RunResult
+from tunnelred.inputs.readers import open_campaign
+from tunnelred.products import store
 
 DOCS = Path(__file__).resolve().parents[1] / "docs" / "results.md"
 THETA = np.arange(2.5, 360.0, 5.0)

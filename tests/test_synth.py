@@ -1,4 +1,4 @@
-"""Tests of tunnelred.synth: determinism, the coefficient model's sanity, and that the written logs
+"""Tests of tunnelred.demo.synth: determinism, the coefficient model's sanity, and that the written logs
 carry the truth through the project's own inverse steps (calibration, azimuth, integration, wall
 corrections).
 
@@ -18,9 +18,10 @@ import pandas as pd
 import pytest
 from scipy.integrate import trapezoid
 
-from tunnelred import balance, corrections, pressure, synth
-from tunnelred.config import load_config
-from tunnelred.readers import open_campaign
+from tunnelred.demo import synth
+from tunnelred.inputs.config import load_config
+from tunnelred.inputs.readers import open_campaign
+from tunnelred.physics import balance, corrections, pressure
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -130,7 +131,7 @@ def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
     cl_p, cd_p = synth.true_pressure_coefficients(alpha, 1e5, end_plates=end_plates)
     theta = np.arange(72) * 5.0 + 2.5
     cp = synth.true_surface_cp(theta, alpha, 1e5, end_plates=end_plates)
-    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (DESIGN.md §4); tunnelred.pressure.integrate_cp on
+    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (DESIGN.md §4); tunnelred.physics.pressure.integrate_cp on
     # 72 bins: its periodic trapezoid is spectrally accurate on this smooth profile → abs 2e-3.
     cl, cd = pressure.integrate_cp(theta, cp)
     assert cl == pytest.approx(cl_p, abs=2e-3)

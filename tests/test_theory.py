@@ -1,4 +1,4 @@
-"""Tests of tunnelred.theory: potential flow about a spinning cylinder and Cp(θ) features.
+"""Tests of tunnelred.physics.theory: potential flow about a spinning cylinder and Cp(θ) features.
 
 Main source: J. D. Anderson, Fundamentals of Aerodynamics, 6th ed. (2017), §3.15 (lifting flow
 over a cylinder: surface speed 2U sin θ + Γ/(2πR), Cp = 1 − (V/U)², stagnation points where the
@@ -12,8 +12,8 @@ import pytest
 import xarray as xr
 from scipy.integrate import quad
 
-from tunnelred.pressure import integrate_cp
-from tunnelred.theory import (
+from tunnelred.physics.pressure import integrate_cp
+from tunnelred.physics.theory import (
     PRANDTL_LIMIT,
     cp_surface,
     lift_coefficient,
@@ -134,7 +134,7 @@ def test_broadcasting():
     ids=["list", "ndarray", "Series", "DataArray"],
 )
 def test_input_kinds(kind):
-    # The array adapter keeps the input's kind (tunnelred._arraylike); values as the α = 0 case.
+    # The array adapter keeps the input's kind (tunnelred.common._arraylike); values as the α = 0 case.
     cp = cp_surface(kind([0.0, 90.0]), 0.0)
     assert np.asarray(cp) == pytest.approx([1.0, -3.0], abs=1e-14)
     if isinstance(kind([0.0]), pd.Series | xr.DataArray):

@@ -1,4 +1,4 @@
-"""Tests of tunnelred.uncertainty against published examples and the `uncertainties` package."""
+"""Tests of tunnelred.physics.uncertainty against published examples and the `uncertainties` package."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import pytest
 import uncertainties
 from uncertainties import umath
 
-from tunnelred.uncertainty import (
+from tunnelred.physics.uncertainty import (
     CORRELATION_ROW,
     Input,
     _numerical_tolerance,

@@ -4,8 +4,8 @@ import math
 
 import pytest
 
-from tunnelred.errors import InputError
-from tunnelred.units import conversion, parse_header, parse_quantity
+from tunnelred.common.errors import InputError
+from tunnelred.inputs.units import conversion, parse_header, parse_quantity
 
 
 def si(text: str, dimension: str) -> float:

@@ -17,13 +17,13 @@ import importlib
 __version__ = "0.1.0.dev0"
 
 _PUBLIC = {
-    "open_campaign": "readers",
-    "reduce_run": "reduction",
-    "reduce_campaign": "campaign",
-    "read_results": "store",
-    "write_report": "report",
-    "InputError": "errors",
-    "ReductionError": "errors",
+    "open_campaign": "inputs.readers",
+    "reduce_run": "engine.reduction",
+    "reduce_campaign": "engine.campaign",
+    "read_results": "products.store",
+    "write_report": "products.report",
+    "InputError": "common.errors",
+    "ReductionError": "common.errors",
 }
 
 __all__ = ["__version__", *_PUBLIC]

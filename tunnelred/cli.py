@@ -17,8 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .errors import InputError, TunnelredError
+from tunnelred import __version__
+from tunnelred.common.errors import InputError, TunnelredError
 
 __all__ = ["main"]
 
@@ -70,7 +70,7 @@ def _range(values, fmt: str) -> str:
 
 
 def _run_check(args) -> int:
-    from .readers import KINDS, STREAMS, open_campaign
+    from tunnelred.inputs.readers import KINDS, STREAMS, open_campaign
 
     if not args.campaign.is_dir():
         return _fail_usage(f"{args.campaign}: no such folder")
@@ -158,7 +158,9 @@ def _run_demo(args) -> int:
         return _fail_usage(f"{dest} exists and is not a folder")
     if dest.is_dir() and any(dest.iterdir()) and not args.force:
         return _fail_usage(f"{dest} is not empty; choose another folder or add --force")
-    from .synth import write_demo_campaign  # imported here: only this command needs it
+    from tunnelred.demo.synth import (
+        write_demo_campaign,  # imported here: only this command needs it
+    )
 
     if args.seed is None:
         write_demo_campaign(dest)
@@ -222,7 +224,7 @@ def _add_reduce(subparsers) -> None:
 
 
 def _run_reduce(args) -> int:
-    from .campaign import reduce_campaign
+    from tunnelred.pipeline.campaign import reduce_campaign
 
     if not args.campaign.is_dir():
         return _fail_usage(f"{args.campaign}: no such folder")
@@ -238,7 +240,7 @@ def _run_reduce(args) -> int:
         progress=not args.quiet,
     )
     if args.report:
-        from .report import write_report
+        from tunnelred.products.report import write_report
 
         pdf = write_report(args.out, campaign=args.campaign)
         results.outputs["report"] = pdf
@@ -276,7 +278,7 @@ def _add_report(subparsers) -> None:
 
 
 def _run_report(args) -> int:
-    from .report import write_report
+    from tunnelred.products.report import write_report
 
     if not args.results.is_dir():
         return _fail_usage(f"{args.results}: no such folder")
@@ -322,7 +324,7 @@ def _add_compare(subparsers) -> None:
 
 
 def _run_compare(args) -> int:
-    from .compare import run_compare
+    from tunnelred.products.compare import run_compare
 
     for folder in args.results:
         if not folder.is_dir():
@@ -341,7 +343,7 @@ def _run_compare(args) -> int:
 # watch
 
 
-# The defaults themselves live in tunnelred.live (a test keeps these texts in step); importing
+# The defaults themselves live in tunnelred.live.watcher (a test keeps these texts in step); importing
 # it here would make every `tunnelred --help` load the whole pipeline.
 _SETTLE_HELP = "2"
 _POLL_HELP = "0.5"
@@ -379,7 +381,7 @@ def _add_watch(subparsers) -> None:
 
 
 def _run_watch(args) -> int:
-    from .live import main_watch
+    from tunnelred.live.watcher import main_watch
 
     return main_watch(args)
 

@@ -1,9 +1,9 @@
 """The whole campaign: every data run reduced independently, in parallel, cached, failures isolated.
 
 :func:`reduce_campaign` opens the campaign, reduces each data run with
-:func:`tunnelred.reduction.reduce_run` (in this process, in a pool of processes, or on a
+:func:`tunnelred.engine.reduction.reduce_run` (in this process, in a pool of processes, or on a
 dask.distributed cluster), runs the campaign-level checks, and writes the results with
-:func:`tunnelred.store.write_results`.
+:func:`tunnelred.products.store.write_results`.
 
 A run that cannot be reduced becomes a row of failures.csv (run, file, line, reason) and never
 stops the others. Results are cached per run in ``OUT/.cache``, keyed on everything the run's
@@ -36,9 +36,11 @@ import pandas as pd
 import xarray as xr
 from threadpoolctl import threadpool_limits
 
-from . import __version__, quality, reduction, store
-from .errors import InputError, Problem, ReductionError
-from .readers import open_campaign
+from tunnelred import __version__
+from tunnelred.common.errors import InputError, Problem, ReductionError
+from tunnelred.engine import quality, reduction
+from tunnelred.inputs.readers import open_campaign
+from tunnelred.products import store
 
 __all__ = ["CampaignResults", "reduce_campaign", "cache_key"]
 
@@ -273,7 +275,7 @@ def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
 
     Parameters
     ----------
-    campaign : tunnelred.readers.Campaign
+    campaign : tunnelred.inputs.readers.Campaign
     run_id : str
         A run of ``campaign``.
     monte_carlo : int
@@ -293,8 +295,9 @@ def cache_key(campaign, run_id: str, *, monte_carlo: int = 0) -> str:
 def _code_digest() -> str:
     """SHA-256 over tunnelred's own modules, so that edited code never reuses stale results."""
     digest = hashlib.sha256()
-    for module in sorted(Path(__file__).parent.glob("*.py")):
-        digest.update(module.name.encode() + b"\0" + module.read_bytes())
+    package = Path(__file__).resolve().parents[1]
+    for module in sorted(package.rglob("*.py")):
+        digest.update(module.relative_to(package).as_posix().encode() + b"\0" + module.read_bytes())
     return digest.hexdigest()
 
 
@@ -352,7 +355,7 @@ def _pool_context():
     # quick to start, safe with threads in the parent, and the user's script is not re-run.
     if "forkserver" in multiprocessing.get_all_start_methods():
         context = multiprocessing.get_context("forkserver")
-        context.set_forkserver_preload(["tunnelred.campaign"])
+        context.set_forkserver_preload(["tunnelred.pipeline.campaign"])
         return context
     return multiprocessing.get_context("spawn")
 
@@ -588,7 +591,7 @@ def reduce_campaign(
         Reduce only these data runs.
     figures : bool
         Write the standard figures into OUT/figures
-        (:func:`tunnelred.plotting.save_standard_figures`).
+        (:func:`tunnelred.products.plotting.save_standard_figures`).
 
     Returns
     -------
@@ -690,7 +693,9 @@ def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run
         outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
         (Path(out) / "figures").mkdir(exist_ok=True)
         if figures and ds.sizes.get("run", 0):
-            from .plotting import save_standard_figures  # matplotlib only where figures are made
+            from tunnelred.products.plotting import (
+                save_standard_figures,  # matplotlib only where figures are made
+            )
 
             for path in save_standard_figures(ds, out):
                 outputs[f"figures/{path.name}"] = path

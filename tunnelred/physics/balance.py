@@ -12,14 +12,14 @@ The order of the corrections matters and is fixed:
 4. **Axes** (:func:`balance_to_wind`): balance-axis forces → drag and lift along and across the
    free stream; then :func:`force_coefficients`.
 
-Loads are ordered as :data:`tunnelred.config.LOAD_NAMES`: Fx [N], Fy [N], Mz [N m].
+Loads are ordered as :data:`tunnelred.inputs.config.LOAD_NAMES`: Fx [N], Fy [N], Mz [N m].
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from ._arraylike import arraylike
+from tunnelred.common._arraylike import arraylike
 
 __all__ = [
     "TareRangeError",

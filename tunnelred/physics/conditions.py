@@ -1,6 +1,6 @@
 """Free stream and spin: q, U, Re, Mach; spin rate, spin ratio, circulation; time-series statistics.
 
-The formulas take scalars, ndarrays, Series or DataArrays (tunnelred._arraylike) and broadcast,
+The formulas take scalars, ndarrays, Series or DataArrays (tunnelred.common._arraylike) and broadcast,
 so a run-level model can be evaluated over a batch of Monte Carlo draws in one call. The stream
 functions (:func:`free_stream`, :func:`spin_rate`) work on the per-stream xarray Datasets of
 docs/input-format.md: dimension ``time`` in seconds from the run's start, variables in SI.
@@ -14,10 +14,10 @@ import numpy as np
 import xarray as xr
 from scipy.fft import next_fast_len
 
-from tunnelred import air
-from tunnelred._arraylike import arraylike, as_array
-from tunnelred.config import CampaignConfig
-from tunnelred.errors import ReductionError
+from tunnelred.common._arraylike import arraylike, as_array
+from tunnelred.common.errors import ReductionError
+from tunnelred.inputs.config import CampaignConfig
+from tunnelred.physics import air
 
 __all__ = [
     "dynamic_pressure",
@@ -450,7 +450,7 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
     -----
     qc = dp_pitot, or contraction_factor × dp_contraction (the contraction calibrated against a
     pitot-static probe, so it stands for what that probe reads). The barometric pressure stands
-    for the static pressure in :func:`dynamic_pressure` and :func:`tunnelred.air.density`; the
+    for the static pressure in :func:`dynamic_pressure` and :func:`tunnelred.physics.air.density`; the
     test-section static pressure sits below it by a fraction of q, which shifts rho by about
     q/p (0.5 % at 30 m/s): a tunnel that measures the test-section static pressure can supply it
     as ``p_baro``. T is taken as the static temperature (the recovery difference is U²/(2 cp),

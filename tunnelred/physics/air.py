@@ -1,7 +1,7 @@
 """Properties of the test-section air: moist-air density, viscosity, speed of sound.
 
 Every function takes Python scalars, numpy arrays (broadcasting), pandas Series or xarray
-DataArrays and returns the same kind (see tunnelred._arraylike). Temperatures are absolute [K],
+DataArrays and returns the same kind (see tunnelred.common._arraylike). Temperatures are absolute [K],
 pressures [Pa], relative humidity a fraction 0–1.
 """
 
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from tunnelred._arraylike import arraylike
+from tunnelred.common._arraylike import arraylike
 
 __all__ = [
     "density",

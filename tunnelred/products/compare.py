@@ -12,7 +12,7 @@ coefficients), so a difference of two curves that share runs — a sweep with it
 legs of a sweep at their common turning point — lets the shared errors cancel exactly instead of
 adding them as if independent.
 
-The functions take the results as an ``xarray.Dataset`` (:func:`tunnelred.store.read_results`)
+The functions take the results as an ``xarray.Dataset`` (:func:`tunnelred.products.store.read_results`)
 or a ``pandas.DataFrame`` with the names of docs/results.md.
 """
 
@@ -31,9 +31,14 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from scipy import stats
 
-from .errors import InputError
-from .plotting import COEFFICIENT_LABELS, COVERAGE_FACTOR, HOUSE_STYLE, house_style
-from .store import atomic_path, read_results, run_table, write_csv
+from tunnelred.common.errors import InputError
+from tunnelred.products.plotting import (
+    COEFFICIENT_LABELS,
+    COVERAGE_FACTOR,
+    HOUSE_STYLE,
+    house_style,
+)
+from tunnelred.products.store import atomic_path, read_results, run_table, write_csv
 
 __all__ = [
     "COVERAGE_FACTOR",
@@ -260,7 +265,7 @@ def _re_bands(reynolds: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.nd
     """Band number of every run (−1 without Re) and each band's median Re.
 
     A band holds the runs within ``tolerance`` of its lowest Re, taken in increasing Re, the same
-    rule as tunnelred.plotting.group_runs.
+    rule as tunnelred.products.plotting.group_runs.
     """
     band = np.full(reynolds.size, -1)
     finite = np.flatnonzero(np.isfinite(reynolds))
@@ -340,7 +345,7 @@ def find_sweeps(
 
     A run without a set speed uses its measured speed U, one without a set spin rate its
     measured ω (in rpm), both rounded as the set points; runs with neither are left out. The
-    rounding steps are those of :func:`tunnelred.quality.repeat_disagreement`.
+    rounding steps are those of :func:`tunnelred.engine.quality.repeat_disagreement`.
 
     Examples
     --------
@@ -1417,7 +1422,7 @@ def run_compare(
     With several folders (several campaigns or tunnel entries), run ids and configuration labels
     are prefixed with the folder's name (``entry1:bare``), so that the same configuration in two
     entries is compared like two configurations; the column ``campaign`` keeps the folder name.
-    A folder without results raises :class:`tunnelred.errors.InputError`.
+    A folder without results raises :class:`tunnelred.common.errors.InputError`.
     """
     if isinstance(out_dirs, str | Path):
         out_dirs = [out_dirs]

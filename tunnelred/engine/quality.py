@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .config import LOAD_NAMES, Tolerances
+from tunnelred.inputs.config import LOAD_NAMES, Tolerances
 
 __all__ = [
     "Flag",

@@ -31,7 +31,8 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from . import conditions, store, theory
+from tunnelred.physics import conditions, theory
+from tunnelred.products import store
 
 __all__ = [
     "HOUSE_STYLE",
@@ -463,8 +464,8 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
 
     Parameters
     ----------
-    campaign : tunnelred.readers.Campaign or path-like
-        The opened campaign (:func:`tunnelred.readers.open_campaign`) or its folder.
+    campaign : tunnelred.inputs.readers.Campaign or path-like
+        The opened campaign (:func:`tunnelred.inputs.readers.open_campaign`) or its folder.
     run : str
         A data run of the campaign.
     fig : matplotlib.figure.Figure, optional
@@ -476,14 +477,14 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
 
     Notes
     -----
-    α(t) = ω(t) R / U(t) on the common time base of :func:`tunnelred.conditions.spin_steadiness`,
+    α(t) = ω(t) R / U(t) on the common time base of :func:`tunnelred.physics.conditions.spin_steadiness`,
     with its mean and the band mean·(1 ± spin_scatter tolerance); U(t) from
-    :func:`tunnelred.conditions.free_stream` (uncorrected), with mean·(1 ± speed_drift tolerance).
+    :func:`tunnelred.physics.conditions.free_stream` (uncorrected), with mean·(1 ± speed_drift tolerance).
     The zero panel shows each wind-off zero run's mean channel signals against clock time (the
     zeros nearest the run), those the run uses filled, the run's start marked: a step or trend
     there is what the zero_shift flag judges.
     """
-    from .readers import open_campaign
+    from tunnelred.inputs.readers import open_campaign
 
     if not hasattr(campaign, "load_run"):
         campaign = open_campaign(campaign, check_logs=False)
@@ -711,7 +712,7 @@ def plot_steadiness(
     run id, so the run to repeat stands out at a glance; a configuration's own tolerance (set in
     ``[configurations.LABEL.tolerances]``) decides the flag even where it differs from the line.
     """
-    from .config import Tolerances  # only the documented defaults are needed here
+    from tunnelred.inputs.config import Tolerances  # only the documented defaults are needed here
 
     if name not in _STEADINESS:
         raise ValueError(f"no steadiness measure {name!r}; choose one of {sorted(_STEADINESS)}")

@@ -2,7 +2,7 @@
 
 :data:`VARIABLES` is the one home of every result name's units and long name (docs/results.md);
 ``u_<X>``, ``u_<X>_mc`` and ``<X>_uncorrected`` are derived from ``X`` by rule, and the
-``flag_<name>`` booleans from :data:`tunnelred.quality.FLAG_NAMES`.
+``flag_<name>`` booleans from :data:`tunnelred.engine.quality.FLAG_NAMES`.
 
 Every file tunnelred writes goes through :func:`atomic_path`: the content is written to a
 temporary file in the destination folder, flushed to disk, then renamed over the destination, so a
@@ -25,11 +25,11 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from . import __version__
-from .quality import FLAG_NAMES, flag_columns
+from tunnelred import __version__
+from tunnelred.engine.quality import FLAG_NAMES, flag_columns
 
 if TYPE_CHECKING:
-    from .reduction import RunResult
+    from tunnelred.engine.reduction import RunResult
 
 __all__ = [
     "VARIABLES",
@@ -280,7 +280,7 @@ def results_to_dataset(
     ----------
     results : list of RunResult
         The reduced data runs, in the order the rows should take.
-    campaign : tunnelred.readers.Campaign, optional
+    campaign : tunnelred.inputs.readers.Campaign, optional
         Gives the provenance: title, facility, configuration hash, every input file's hash, and
         the correction methods when ``methods`` is not given.
     methods : dict, optional

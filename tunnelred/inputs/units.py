@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import pint
 
-from .errors import InputError, Problem
+from tunnelred.common.errors import InputError, Problem
 
 __all__ = [
     "ureg",

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from tunnelred._arraylike import arraylike
+from tunnelred.common._arraylike import arraylike
 
 __all__ = [
     "PRANDTL_LIMIT",

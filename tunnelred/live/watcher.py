@@ -5,7 +5,7 @@
 its zero and tare runs exists, ends with a line break, and none of them (nor campaign.toml and
 runs.csv) has changed size or modification time for ``settle`` seconds. Complete inputs are
 copied into a snapshot folder, ``OUT/.live/campaign``, which holds only complete runs; the
-snapshot is reduced by :func:`tunnelred.campaign.reduce_campaign`, whose per-run cache (keyed on
+snapshot is reduced by :func:`tunnelred.pipeline.campaign.reduce_campaign`, whose per-run cache (keyed on
 each run's inputs and those of its zero and tare runs) reduces only the runs that are new or
 whose inputs changed, and which writes OUT atomically. The engine never reads a file the
 acquisition is still writing: it reads the snapshot, and a file is copied into it only when it
@@ -38,10 +38,11 @@ from pathlib import Path
 
 import numpy as np
 
-from . import quality, store
-from .config import load_config
-from .errors import InputError, Problem
-from .readers import STREAMS
+from tunnelred.common.errors import InputError, Problem
+from tunnelred.engine import quality
+from tunnelred.inputs.config import load_config
+from tunnelred.inputs.readers import STREAMS
+from tunnelred.products import store
 
 __all__ = [
     "DEFAULT_SETTLE",
@@ -431,13 +432,13 @@ def live_figure(results):
     Parameters
     ----------
     results : xarray.Dataset, CampaignResults or path-like
-        Campaign results (see :func:`tunnelred.plotting.results_dataset`).
+        Campaign results (see :func:`tunnelred.products.plotting.results_dataset`).
 
     Returns
     -------
     matplotlib.figure.Figure
         Two Axes: CL with the potential-flow line −2πα, and CD; wall-corrected values with
-        expanded-uncertainty bars (k = 2), drawn by :func:`tunnelred.plotting.plot_coefficient`.
+        expanded-uncertainty bars (k = 2), drawn by :func:`tunnelred.products.plotting.plot_coefficient`.
 
     Notes
     -----
@@ -459,7 +460,7 @@ def live_figure(results):
     """
     from matplotlib.figure import Figure  # deferred: `tunnelred --help` need not load matplotlib
 
-    from . import plotting
+    from tunnelred.products import plotting
 
     ds = plotting.results_dataset(results)
     fig = Figure(figsize=(11.0, 4.4), layout="constrained")
@@ -794,7 +795,7 @@ class _Watcher:
 
     def _reduce(self) -> None:
         try:
-            from .campaign import reduce_campaign
+            from tunnelred.pipeline.campaign import reduce_campaign
 
             self.results = reduce_campaign(
                 self.snapshot, self.out, workers=self.workers, progress=False, figures=False
@@ -945,7 +946,7 @@ def watch(
     A log that has settled without a line break at its end is *truncated* (the logger stopped
     mid-line): it is shown as such and waited for, never read as data. Complete inputs are
     copied into ``OUT/.live/campaign`` and that snapshot is reduced by
-    :func:`tunnelred.campaign.reduce_campaign`: its cache re-reduces exactly the runs whose row,
+    :func:`tunnelred.pipeline.campaign.reduce_campaign`: its cache re-reduces exactly the runs whose row,
     logs or zero and tare runs changed (all of them when campaign.toml changes). Every output
     is written atomically, so stopping at any moment leaves OUT whole.
 

@@ -21,10 +21,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from . import air, balance, conditions, corrections, pressure, quality, theory
-from .errors import InputError, ReductionError
-from .quality import Flag
-from .uncertainty import Input, propagate_linear, propagate_monte_carlo
+from tunnelred.common.errors import InputError, ReductionError
+from tunnelred.engine import quality
+from tunnelred.engine.quality import Flag
+from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
+from tunnelred.physics.uncertainty import Input, propagate_linear, propagate_monte_carlo
 
 __all__ = ["RunResult", "reduce_run", "RUN_OUTPUTS"]
 
@@ -535,7 +536,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     Parameters
     ----------
-    campaign : tunnelred.readers.Campaign
+    campaign : tunnelred.inputs.readers.Campaign
         From :func:`tunnelred.open_campaign`.
     run_id : str
         A data run's id from runs.csv.

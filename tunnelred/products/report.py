@@ -1,9 +1,9 @@
 """The PDF test report of a reduced campaign (docs/report.md lists what it holds).
 
 The report is built with reportlab's platypus from an output folder of
-:func:`tunnelred.campaign.reduce_campaign`: results.nc, budgets.csv and failures.csv, plus the
+:func:`tunnelred.pipeline.campaign.reduce_campaign`: results.nc, budgets.csv and failures.csv, plus the
 campaign folder when it is known (for campaign.toml and the flag tolerances). Figures are drawn by
-:mod:`tunnelred.plotting` and embedded as 200 dpi PNG. Every piece of text that users wrote (titles,
+:mod:`tunnelred.products.plotting` and embedded as 200 dpi PNG. Every piece of text that users wrote (titles,
 notes, labels, run ids, file names) is escaped before it enters reportlab's paragraph markup, and
 the file is written atomically.
 """
@@ -48,13 +48,16 @@ from reportlab.platypus import (
 )
 from reportlab.platypus.tableofcontents import TableOfContents
 
-from . import __version__, corrections, plotting, quality, store
-from .quality import FLAG_NAMES
+from tunnelred import __version__
+from tunnelred.engine import quality
+from tunnelred.engine.quality import FLAG_NAMES
+from tunnelred.physics import corrections
+from tunnelred.products import plotting, store
 
 __all__ = ["SECTIONS", "CAUTIONS", "write_report", "format_uncertain"]
 
 #: The numbered sections, in order (a configuration comparison follows the results when the
-#: campaign has more than one configuration and tunnelred.compare is installed).
+#: campaign has more than one configuration and tunnelred.products.compare is installed).
 SECTIONS = (
     "Summary",
     "Test conditions",
@@ -440,7 +443,7 @@ def _json_attr(ds: xr.Dataset, key: str) -> dict:
 def _campaign(campaign):
     if campaign is None or hasattr(campaign, "config"):
         return campaign
-    from .readers import open_campaign
+    from tunnelred.inputs.readers import open_campaign
 
     return open_campaign(campaign, check_logs=False)
 
@@ -700,12 +703,12 @@ def _results(b: _Builder, data: _Inputs) -> None:
 
 
 def _comparison(b: _Builder, data: _Inputs) -> None:
-    """The configuration comparison of tunnelred.compare, when that module is installed."""
+    """The configuration comparison of tunnelred.products.compare, when that module is installed."""
     if len({str(c) for c in data.table.get("config", [])}) < 2:
         return
-    if importlib.util.find_spec("tunnelred.compare") is None:
+    if importlib.util.find_spec("tunnelred.products.compare") is None:
         return
-    compare = importlib.import_module("tunnelred.compare")
+    compare = importlib.import_module("tunnelred.products.compare")
     table = compare.comparison_section_data(data.ds)
     if table is None or len(table) == 0:
         return
@@ -713,7 +716,7 @@ def _comparison(b: _Builder, data: _Inputs) -> None:
     b.add(
         b.p(
             "Differences between configurations on a common spin-ratio grid, sweep leg by sweep "
-            "leg at each tunnel speed (tunnelred.compare): ΔX = X(configuration) − "
+            "leg at each tunnel speed (tunnelred.products.compare): ΔX = X(configuration) − "
             "X(reference), with its expanded uncertainty (k = 2). A difference marked * exceeds "
             "its expanded uncertainty.",
             "intro",
@@ -901,11 +904,11 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
     Parameters
     ----------
     out_dir : str or path-like
-        An output folder of :func:`tunnelred.campaign.reduce_campaign` (results.nc, budgets.csv,
+        An output folder of :func:`tunnelred.pipeline.campaign.reduce_campaign` (results.nc, budgets.csv,
         failures.csv).
     pdf_path : str or path-like, optional
         Where to write; default ``out_dir``/report.pdf. Written atomically.
-    campaign : tunnelred.readers.Campaign or path-like, optional
+    campaign : tunnelred.inputs.readers.Campaign or path-like, optional
         The campaign folder (or the opened campaign); default: the folder the results record,
         if it is still there. Its campaign.toml goes into the appendix
         and its tolerances into the flag reasons.
@@ -919,7 +922,7 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
     -----
     Sections: title page (cautions, provenance), contents, then those of :data:`SECTIONS`; a
     configuration comparison follows the results when the campaign has more than one
-    configuration and :mod:`tunnelred.compare` is installed. Tabulated uncertainties are
+    configuration and :mod:`tunnelred.products.compare` is installed. Tabulated uncertainties are
     expanded, k = 2, rounded per GUM §7.2.6.
 
     References

@@ -4,7 +4,7 @@ Logs are parsed with pyarrow's CSV reader, every column as float64, with no per-
 Only when that parse fails does a line-by-line scan run, to say exactly where and why.
 Column names carry their units in brackets (``dp_pitot [Pa]``); pint converts them to SI
 (angles to degrees, rotation rates to rad/s, relative humidity to a fraction). The schema is
-docs/input-format.md; :mod:`tunnelred.readers` applies it to a whole campaign.
+docs/input-format.md; :mod:`tunnelred.inputs.readers` applies it to a whole campaign.
 """
 
 from __future__ import annotations
@@ -22,9 +22,9 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import xarray as xr
 
-from .config import Q_SOURCES, CampaignConfig
-from .errors import InputError, Problem
-from .units import DIMENSIONS, conversion, parse_header
+from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.config import Q_SOURCES, CampaignConfig
+from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
 __all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns"]
 

@@ -1,9 +1,9 @@
 """The campaign folder → validated runs and their logs as xarray Datasets in SI units.
 
 :func:`open_campaign` reads campaign.toml and runs.csv and checks every reference between them
-and the logs; :meth:`Campaign.load_run` parses one run's logs with :mod:`tunnelred.logs`. The
+and the logs; :meth:`Campaign.load_run` parses one run's logs with :mod:`tunnelred.inputs.logs`. The
 schema enforced here is docs/input-format.md. Every problem is collected (never only the first)
-as a :class:`~tunnelred.errors.Problem`.
+as a :class:`~tunnelred.common.errors.Problem`.
 """
 
 from __future__ import annotations
@@ -20,9 +20,9 @@ from pathlib import Path, PurePosixPath
 import numpy as np
 import xarray as xr
 
-from .config import CampaignConfig, load_config
-from .errors import InputError, Problem
-from .logs import (
+from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.config import CampaignConfig, load_config
+from tunnelred.inputs.logs import (
     _NUMBER,
     LogInfo,
     _encoding_problem,
@@ -33,7 +33,7 @@ from .logs import (
     log_columns,
     read_log,
 )
-from .units import DIMENSIONS, conversion, parse_header
+from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
 __all__ = [
     "STREAMS",
@@ -713,7 +713,7 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
 
     Examples
     --------
-    >>> from tunnelred.readers import open_campaign
+    >>> from tunnelred.inputs.readers import open_campaign
     >>> campaign = open_campaign("sample_runs/broken")  # doctest: +SKIP
     >>> len(campaign.problems) > 0  # doctest: +SKIP
     True

@@ -14,22 +14,22 @@ rising with the spin ratio; a weak Reynolds-number dependence throughout.
 
 The forward model, in the order it runs for a data run:
 
-1. Air from T, p, RH (:func:`tunnelred.air.density`, :func:`tunnelred.air.viscosity`); the free
+1. Air from T, p, RH (:func:`tunnelred.physics.air.density`, :func:`tunnelred.physics.air.viscosity`); the free
    stream ``U(t)`` from the set speed with a set-point error, a slow drift and AR(1)
    turbulence-like fluctuations (correlated, so the effective number of samples is far below the
    sample count); the pitot reads the impact pressure of the *uncorrected* ``q_u``
-   (:func:`tunnelred.conditions.impact_pressure`).
+   (:func:`tunnelred.physics.conditions.impact_pressure`).
 2. The spin ``omega(t)`` from the set rpm with AR(1) jitter; the tachometer and the encoder.
 3. Wall interference applied forward: the model sees ``U_c = U_u (1 + eps)``; the free-air
    coefficients are evaluated at ``alpha_c``, ``Re_c``; the in-tunnel coefficients are those
-   that :func:`tunnelred.corrections.apply_wall_correction` (with the campaign's configured
+   that :func:`tunnelred.physics.corrections.apply_wall_correction` (with the campaign's configured
    method) turns into the free-air ones, found by a fixed-point iteration because ``eps`` depends
    on the uncorrected drag. The iteration runs sample by sample, so the loads follow the
    instantaneous speed and spin.
 4. Balance: aerodynamic loads plus vortex-shedding fluctuations, plus the spin tare (bearing
    friction torque, small spin-induced forces) and a rotor-imbalance vibration, rotated from
    wind to balance axes through the alignment and flow angles, turned into channel signals by
-   :func:`tunnelred.balance.signals_from_loads`, plus channel zeros that drift linearly in time,
+   :func:`tunnelred.physics.balance.signals_from_loads`, plus channel zeros that drift linearly in time,
    plus noise.
 5. Surface pressure at mid-span: rotating taps read ``Cp_u(theta) q_u`` at the azimuth they held
    one tubing delay earlier, minus the centrifugal head of the air column between tap and
@@ -56,9 +56,9 @@ import numpy as np
 import pandas as pd
 from scipy.signal import lfilter
 
-from . import air, balance, conditions, corrections, pressure
-from ._arraylike import arraylike
-from .config import Configuration
+from tunnelred.common._arraylike import arraylike
+from tunnelred.inputs.config import Configuration
+from tunnelred.physics import air, balance, conditions, corrections, pressure
 
 __all__ = [
     "FAULT_KINDS",
@@ -75,7 +75,7 @@ __all__ = [
 ]
 
 #: Faults that :class:`SynthSpec` can plant, as named in truth.csv ``planted_fault``. Each is
-#: named for the quality flag (:data:`tunnelred.quality.FLAG_NAMES`) it is built to raise; what
+#: named for the quality flag (:data:`tunnelred.engine.quality.FLAG_NAMES`) it is built to raise; what
 #: each one changes in the forward model, and the unit of its ``size``, is in :class:`Fault`.
 FAULT_KINDS = (
     "spin_scatter",
@@ -667,7 +667,7 @@ class SynthSpec:
         "SDT-1, an invented 1.0 m x 0.75 m closed-section low-speed tunnel (synthetic data)"
     )
     date: str = "2026-03-10"
-    notes: str = "Synthetic demonstration campaign written by tunnelred.synth; see truth.csv."
+    notes: str = "Synthetic demonstration campaign written by tunnelred.demo.synth; see truth.csv."
     start: str = "2026-03-10T08:30:00"
     diameter: float = 0.125
     span: float = 0.74
@@ -1310,7 +1310,10 @@ def _toml_value(v) -> str:
 
 def _campaign_toml(w: _Writer) -> str:
     s = w.spec
-    lines = ["# Synthetic campaign written by tunnelred.synth (invented scenario, not data).", ""]
+    lines = [
+        "# Synthetic campaign written by tunnelred.demo.synth (invented scenario, not data).",
+        "",
+    ]
 
     def table(name, items):
         lines.append(f"[{name}]")

@@ -14,8 +14,8 @@ import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
-from .errors import InputError, Problem
-from .units import parse_quantity
+from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.units import parse_quantity
 
 __all__ = [
     "CampaignInfo",
@@ -443,7 +443,7 @@ class _Reader:
 
 
 def _describe(kind: str) -> str:
-    from .units import DIMENSIONS
+    from tunnelred.inputs.units import DIMENSIONS
 
     return _PLAIN_KINDS.get(kind) or DIMENSIONS[kind][2]
 

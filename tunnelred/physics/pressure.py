@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import CubicSpline
 
-from tunnelred._arraylike import arraylike
+from tunnelred.common._arraylike import arraylike
 
 __all__ = [
     "CpGapError",

@@ -25,8 +25,8 @@ from typing import Any
 
 import numpy as np
 
-from ._arraylike import arraylike
-from .config import BLOCKAGE_METHODS
+from tunnelred.common._arraylike import arraylike
+from tunnelred.inputs.config import BLOCKAGE_METHODS
 
 __all__ = [
     "MASKELL_FACTOR_2D",
@@ -71,7 +71,7 @@ METHOD_FORMULAS: dict[str, str] = {
     "lift-interference": (
         "sigma = (pi^2/48)(d/h)^2; the wall images of the bound vortex strain the stream at the "
         "model and raise the lift at fixed circulation by (1 + 2 sigma): CL_c = CL_u (q/q_c)/(1 + "
-        "2 sigma); alpha unchanged (derived in tunnelred.corrections.lift_interference_2d)"
+        "2 sigma); alpha unchanged (derived in tunnelred.physics.corrections.lift_interference_2d)"
     ),
     "buoyancy": (
         "Delta CD_B = -(pi d/(2 q)) dp/dx (volume plus added mass of a circular cylinder, "

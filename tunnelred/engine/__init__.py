@@ -1,0 +1,1 @@
+"""Stage 3, engine: one run end to end and its quality flags."""
