@@ -179,3 +179,15 @@ def test_configuration_tolerance_unknown_key_is_reported(tmp_path):
     path.write_text(text, encoding="utf-8")
     _, problems = load_config(path)
     assert any(p.column == "configurations.A.tolerances.wobble" for p in problems), problems
+
+
+def test_model_spin_rate_limit_is_optional_and_in_si(tmp_path):
+    config, problems = load(tmp_path, CAMPAIGN_TOML)
+    assert config.model.max_spin_rate is None
+    text = CAMPAIGN_TOML.replace("span = 0.8\n", 'span = 0.8\nmax_spin_rate = "6000 rpm"\n')
+    config, problems = load(tmp_path, text)
+    assert problems == []
+    # 1 rpm = 2 pi / 60 rad/s (SI Brochure, 9th ed., the revolution per minute) (from memory)
+    assert config.model.max_spin_rate == pytest.approx(6000 * 2 * 3.141592653589793 / 60)
+    config, problems = load(tmp_path, text.replace('"6000 rpm"', '"100 Hz"'))
+    assert any(p.column == "model.max_spin_rate" for p in problems)

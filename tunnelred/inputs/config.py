@@ -88,6 +88,8 @@ class ModelConfig:
     u_span: float = 0.0
     spans_section: bool = True  # True: wall to wall (2-D); False: 3-D corrections apply
     transducer_radius: float = 0.0  # radius of the pressure transducer on the spinning model
+    # the highest spin rate the model and its drive are rated for [rad/s]; None: not stated
+    max_spin_rate: float | None = None
 
     @property
     def radius(self) -> float:
@@ -252,6 +254,7 @@ _KEYS = {
         "u_span",
         "spans_section",
         "transducer_radius",
+        "max_spin_rate",
     ),
     "configuration": ("description", "end_plates", "end_plate_diameter", "tolerances"),
     "balance": (
@@ -643,6 +646,7 @@ def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None) -> ModelConfig |
         u_span=r.get(t, p, "u_span", "length", 0.0, _NON_NEGATIVE),
         spans_section=r.get(t, p, "spans_section", "bool", True),
         transducer_radius=r.get(t, p, "transducer_radius", "length", 0.0, within),
+        max_spin_rate=r.get(t, p, "max_spin_rate", "rotation_rate", None, _POSITIVE),
     )
 
 
