@@ -1,0 +1,127 @@
+"""Figures of sweeps and differences, in the house style (each takes ``ax=``, returns it)."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+
+from tunnelred.products.compare.grid import Difference, on_grid
+from tunnelred.products.compare.sweeps import Sweep, has_coefficient
+from tunnelred.products.plotting import (
+    COEFFICIENT_LABELS,
+    COVERAGE_FACTOR,
+    HOUSE_STYLE,
+    house_style,
+)
+
+__all__ = ["plot_difference", "plot_sweeps"]
+
+
+def _axes(ax: Axes | None) -> Axes:
+    if ax is not None:
+        return ax
+    return Figure(figsize=(6.4, 4.4), layout="constrained").add_subplot()
+
+
+def plot_sweeps(sweeps: Sequence[Sweep], name: str, *, ax: Axes | None = None) -> Axes:
+    """Sweeps of one coefficient overlaid: the runs, and each curve with its k = 2 band.
+
+    Parameters
+    ----------
+    sweeps : sequence of Sweep
+    name : str
+        The coefficient.
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; a new one when None.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        One line (labelled with the sweep key) and one band per sweep that has ``name``.
+    """
+    k = COVERAGE_FACTOR
+    with house_style():
+        ax = _axes(ax)
+        for i, sweep in enumerate(s for s in sweeps if has_coefficient(s, name)):
+            style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
+            alpha = np.asarray(sweep.arrays["alpha"], dtype=float)
+            lo, hi = np.nanmin(alpha), np.nanmax(alpha)
+            curve = on_grid(sweep, name, np.linspace(lo, hi, 101))
+            ax.fill_between(
+                curve.alpha,
+                curve.value - k * curve.u,
+                curve.value + k * curve.u,
+                color=style.color,
+                alpha=0.2,
+                linewidth=0,
+            )
+            ax.plot(
+                curve.alpha,
+                curve.value,
+                color=style.color,
+                linestyle=style.linestyle,
+                label=sweep.key,
+            )
+            ax.plot(
+                alpha,
+                np.asarray(sweep.arrays[name], dtype=float),
+                color=style.color,
+                marker=style.marker,
+                linestyle="none",
+            )
+        ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
+        ax.set_ylabel(COEFFICIENT_LABELS.get(name, name))
+        ax.set_title(f"{name}: sweeps, bands k = 2")
+        if ax.get_legend_handles_labels()[0]:
+            ax.legend(loc="best")
+    return ax
+
+
+def plot_difference(d: Difference, *, ax: Axes | None = None) -> Axes:
+    """A difference against α with its k = 2 band; significant points filled, others open.
+
+    Parameters
+    ----------
+    d : Difference
+    ax : matplotlib.axes.Axes, optional
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        Artists labelled ``"significant (k = 2)"`` and ``"not significant"``.
+    """
+    style = HOUSE_STYLE[0]
+    k = d.k
+    with house_style():
+        ax = _axes(ax)
+        ax.axhline(0.0, color="#777777", linewidth=0.8)
+        ax.fill_between(
+            d.alpha, d.delta - k * d.u, d.delta + k * d.u, color=style.color, alpha=0.2, linewidth=0
+        )
+        ax.plot(d.alpha, d.delta, color=style.color, linestyle=style.linestyle)
+        sig, plain = d.significant, d.covered & ~d.significant
+        ax.plot(
+            d.alpha[sig],
+            d.delta[sig],
+            linestyle="none",
+            marker=style.marker,
+            color=style.color,
+            label=f"significant (k = {k:g})",
+        )
+        ax.plot(
+            d.alpha[plain],
+            d.delta[plain],
+            linestyle="none",
+            marker=style.marker,
+            markerfacecolor="white",
+            color=style.color,
+            label="not significant",
+        )
+        ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
+        ax.set_ylabel(f"Δ{d.name}")
+        ax.set_title(f"Δ{d.name} = [{d.a}] − [{d.b}]", fontsize=8)
+        ax.legend(loc="best")
+    return ax
