@@ -46,9 +46,9 @@ def _spec(runs: int, seconds: float, rate: float, taps: int):
     """
     import numpy as np
 
-    from tunnelred.demo import synth
+    from tunnelred.demo.spec import demo_spec
 
-    demo = synth.demo_spec()
+    demo = demo_spec()
     per_speed = 10 if runs >= 50 else 5
     n_speeds = -(-runs // per_speed)
     speeds = tuple(float(s) for s in np.round(np.linspace(6.0, 15.0, n_speeds), 2))
@@ -198,7 +198,7 @@ def main(argv=None) -> int:
         return 0
 
     from tunnelred import __version__
-    from tunnelred.demo import synth
+    from tunnelred.demo.writer import make_campaign
 
     load_before = os.getloadavg()
     rows = []
@@ -210,7 +210,7 @@ def main(argv=None) -> int:
             label = f"{runs} runs x {seconds:g} s x {rate / 1000:g} kHz x {taps} taps"
             work = Path(tmp) / label.replace(" ", "")
             campaign = work / "campaign"
-            synth.make_campaign(campaign, _spec(runs, seconds, rate, taps))
+            make_campaign(campaign, _spec(runs, seconds, rate, taps))
             print(f"measuring {label} ...", file=sys.stderr, flush=True)
             one = _measure(campaign, work, workers=1, trace=True)
             row = {

@@ -140,7 +140,7 @@ def demo_campaign_dir(tmp_path_factory) -> Path:
     """The committed demo campaign (sample_runs/), or a fresh copy from synth if absent."""
     if (SAMPLE_RUNS / "campaign.toml").is_file():
         return SAMPLE_RUNS
-    from tunnelred.demo.synth import write_demo_campaign
+    from tunnelred.demo.writer import write_demo_campaign
 
     dest = tmp_path_factory.mktemp("demo") / "campaign"
     write_demo_campaign(dest)
@@ -167,11 +167,12 @@ def demo_truth(demo_campaign_dir):
 @pytest.fixture(scope="session")
 def reduced(tmp_path_factory):
     """(campaign folder, output folder) of a small synthetic campaign, reduced once a session."""
-    from tunnelred.demo import synth
+    from tunnelred.demo.spec import Fault, demo_spec
+    from tunnelred.demo.writer import make_campaign
     from tunnelred.pipeline.campaign import reduce_campaign
 
     root = tmp_path_factory.mktemp("small")
-    demo = synth.demo_spec()
+    demo = demo_spec()
     plates = demo.configurations[0].label
     spec = replace(
         demo,
@@ -183,10 +184,10 @@ def reduced(tmp_path_factory):
         tare_rpms=(500.0, 2000.0, 4000.0, 6000.0),
         repeat_point=None,
         repeat_count=0,
-        faults=(synth.Fault("spin_scatter", plates, 12.0, 3.0, 0.05),),
+        faults=(Fault("spin_scatter", plates, 12.0, 3.0, 0.05),),
         data_duration=3.0,
         wind_off_duration=1.0,
     )
-    synth.make_campaign(root / "campaign", spec)
+    make_campaign(root / "campaign", spec)
     reduce_campaign(root / "campaign", root / "out", workers=2, progress=False)
     return root / "campaign", root / "out"

@@ -1,6 +1,6 @@
 """tunnelred.pipeline.campaign: failure isolation, parallel executors, the per-run cache, interruption.
 
-The campaign is a small synthetic one (tunnelred.demo.synth): three zeros, three spin tares and five
+The campaign is a small synthetic one (tunnelred.demo): three zeros, three spin tares and five
 data runs at one speed, one of them with a pressure log, the last three repeats of one set point.
 Which runs a change must re-reduce is worked out here from runs.csv with pandas, independently of
 the engine. Executors are compared with xarray.testing.assert_identical.
@@ -17,10 +17,11 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from tunnelred.demo import synth
-from tunnelred.pipeline import campaign as engine
+from tunnelred.demo.spec import demo_spec
+from tunnelred.demo.writer import make_campaign
 from tunnelred.engine import reduction
 from tunnelred.engine.reduction import RunResult
+from tunnelred.pipeline import campaign as engine
 
 OUTPUT_FILES = {
     "results.nc",
@@ -36,7 +37,7 @@ DATA_RUNS = ["R001", "R002", "R003", "R004", "R005"]
 
 @pytest.fixture
 def campaign_dir(tmp_path):
-    demo = synth.demo_spec()
+    demo = demo_spec()
     spec = replace(
         demo,
         configurations=demo.configurations[:1],
@@ -52,7 +53,7 @@ def campaign_dir(tmp_path):
         data_duration=2.0,
         wind_off_duration=1.0,
     )
-    synth.make_campaign(tmp_path / "campaign", spec)
+    make_campaign(tmp_path / "campaign", spec)
     return tmp_path / "campaign"
 
 

@@ -94,9 +94,9 @@ def test_demo_refuses_non_empty_dest(tmp_path, capsys):
 
 
 def test_demo_writes_a_campaign_that_passes_check(tmp_path, capsys):
-    synth = pytest.importorskip("tunnelred.demo.synth")
+    synth = pytest.importorskip("tunnelred.demo.writer")
     if not hasattr(synth, "write_demo_campaign"):
-        pytest.skip("tunnelred.demo.synth.write_demo_campaign is not written yet")
+        pytest.skip("tunnelred.demo.writer.write_demo_campaign is not written yet")
     dest = tmp_path / "demo"
     assert main(["demo", str(dest), "--seed", "1"]) == 0
     assert main(["check", str(dest)]) == 0, capsys.readouterr().out

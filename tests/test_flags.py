@@ -1,7 +1,7 @@
 """Every quality flag, raised end to end by a synthetic run built to trip it, and by no clean run.
 
-One small synthetic campaign (tunnelred.demo.synth; one configuration, three speeds, spin ratios 0 to
-4, short wind-off records) plants each fault kind of synth.FAULT_KINDS in its own up-sweep run;
+One small synthetic campaign (tunnelred.demo; one configuration, three speeds, spin ratios 0 to
+4, short wind-off records) plants each fault kind of FAULT_KINDS in its own up-sweep run;
 every faulty run is followed by a clean retake at its set point, and the rest of the sweep, a
 down-sweep point per speed and one repeat are clean as well. The campaign is written and reduced
 once for the module (tunnelred.pipeline.campaign.reduce_campaign, two worker processes). Each planted run
@@ -23,15 +23,16 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred.demo import synth
-from tunnelred.pipeline.campaign import reduce_campaign
+from tunnelred.demo.spec import FAULT_KINDS, Fault, SynthSpec, demo_spec
+from tunnelred.demo.writer import make_campaign
 from tunnelred.engine.quality import FLAG_NAMES, parse_flag_reasons
 from tunnelred.inputs.config import Tolerances, load_config
+from tunnelred.pipeline.campaign import reduce_campaign
 
 TOL = Tolerances()  # docs/input-format.md [reduction.tolerances] defaults
 CONFIG = "plates"  # end plates: mid-span CL_p equals the balance CL (synth's model), no allowance
 RPM = 60.0 / (2.0 * math.pi)  # rpm per rad/s (exact)
-F = synth.Fault
+F = Fault
 
 #: The fault planted for each flag, at its own set point (config, speed [m/s], spin ratio).
 FAULTS = {
@@ -69,8 +70,8 @@ RELATED = {
 }
 
 
-def flag_spec(seed: int = 11) -> synth.SynthSpec:
-    demo = synth.demo_spec(seed)
+def flag_spec(seed: int = 11) -> SynthSpec:
+    demo = demo_spec(seed)
     return replace(
         demo,
         configurations=demo.configurations[:1],
@@ -92,7 +93,7 @@ def flag_spec(seed: int = 11) -> synth.SynthSpec:
 def campaign(tmp_path_factory):
     """(campaign folder, results table indexed by run, truth indexed by run, runs.csv)."""
     root = tmp_path_factory.mktemp("flags") / "campaign"
-    truth = synth.make_campaign(root, flag_spec())
+    truth = make_campaign(root, flag_spec())
     results = reduce_campaign(root, None, workers=2, progress=False, figures=False)
     assert results.failures.empty, results.failures
     table = results.dataset.to_dataframe().reset_index().drop_duplicates("run").set_index("run")
@@ -239,7 +240,7 @@ def _cl_disagreement(c, run, reason):
     assert CL == pytest.approx(table.loc[run, "CL"], abs=5e-4)
     assert CL_p == pytest.approx(table.loc[run, "CL_p"], abs=5e-4)
     # Planted: a 15 % scanner span error on a model with end plates, whose mid-span CL_p equals
-    # its balance CL (synth.true_pressure_coefficients); the span error multiplies ∮Cp sin θ dθ
+    # its balance CL (true_pressure_coefficients); the span error multiplies ∮Cp sin θ dθ
     # (CL = ½∮Cp sin θ dθ, DESIGN.md §4) and its uniform part (the centrifugal head) integrates
     # to nothing. The two lifts' own uncertainties are under 1 % → abs 0.03 on the ratio.
     assert CL_p / CL == pytest.approx(1 + FAULTS["cl_disagreement"].size, abs=0.03)
@@ -301,7 +302,7 @@ QUOTED = {
 
 
 def test_every_flag_kind_has_a_fault_kind():
-    assert set(FAULTS) == set(FLAG_NAMES) == set(synth.FAULT_KINDS)
+    assert set(FAULTS) == set(FLAG_NAMES) == set(FAULT_KINDS)
     assert all(FAULTS[name].kind == name for name in FAULTS)
 
 

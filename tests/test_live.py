@@ -1,6 +1,6 @@
 """Tests for tunnelred.live.watcher: the watch reduces a run once it is complete and never before.
 
-A synthetic campaign (tunnelred.demo.synth) is copied into a fresh folder run by run by a thread that
+A synthetic campaign (tunnelred.demo) is copied into a fresh folder run by run by a thread that
 plays the data acquisition: each runs.csv row and each log is written in pieces that end in the
 middle of a line, with pauses, so every intermediate state of a file is one that the rule of
 docs/live.md must not take as complete. Nothing here rests on timing: the assertions compare
@@ -23,7 +23,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tunnelred.demo import synth
+from tunnelred.demo.spec import Fault, demo_spec
+from tunnelred.demo.writer import make_campaign
 from tunnelred.live import watcher as live
 from tunnelred.products import store
 
@@ -31,11 +32,11 @@ SETTLE = 0.3  # [s] shortened from the 2 s default to keep the file fast
 POLL = 0.05  # [s]
 LIMIT = 60.0  # [s] generous bound on every wait; a passing run needs a few seconds
 DATA_RUNS = ["R001", "R002", "R003", "R004", "R005", "R006", "R007"]
-FAULTY = "R003"  # the planted spin_scatter fault (tunnelred.demo.synth truth.csv planted_fault)
+FAULTY = "R003"  # the planted spin_scatter fault (tunnelred.demo truth.csv planted_fault)
 
 
 def _spec():
-    base = synth.demo_spec()
+    base = demo_spec()
     return replace(
         base,
         speeds=(9.0,),
@@ -45,7 +46,7 @@ def _spec():
         repeat_point=None,
         pressure_speeds=(9.0,),
         pressure_spin_ratios=(1.0,),
-        faults=(synth.Fault("spin_scatter", "plates", 9.0, 2.0, 0.05),),
+        faults=(Fault("spin_scatter", "plates", 9.0, 2.0, 0.05),),
         data_duration=2.0,
         wind_off_duration=1.0,
     )
@@ -55,7 +56,7 @@ def _spec():
 def source(tmp_path_factory) -> Path:
     """The finished campaign the acquisition thread copies from (written once for the file)."""
     root = tmp_path_factory.mktemp("source")
-    truth = synth.make_campaign(root, _spec())
+    truth = make_campaign(root, _spec())
     assert truth["run"].tolist() == DATA_RUNS
     assert truth.set_index("run").loc[FAULTY, "planted_fault"] == "spin_scatter"
     return root

@@ -26,7 +26,7 @@ pytestmark = [
     pytest.mark.slow,
     pytest.mark.skipif(
         not (ROOT / "sample_runs" / "campaign.toml").is_file(),
-        reason="sample_runs/ holds no demo campaign (write it with tunnelred.demo.synth)",
+        reason="sample_runs/ holds no demo campaign (write it with tunnelred.demo)",
     ),
 ]
 

@@ -1,6 +1,6 @@
 """Plotting: what each figure holds (artists, labels, data), checked on reduced synthetic results.
 
-The results come from a small synthetic campaign (tunnelred.demo.synth) reduced end to end: two
+The results come from a small synthetic campaign (tunnelred.demo) reduced end to end: two
 configurations, two speeds, an up and a down sweep, pressure logs on three runs and one planted
 spin-scatter fault. Figures are drawn on the Agg backend and never shown.
 """

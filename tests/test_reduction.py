@@ -1,6 +1,6 @@
 """End to end: the demo campaign, reduced, recovers the truth synth built it from.
 
-synth.py runs a forward model of the test (free stream, spin, balance channels through the inverse
+tunnelred.demo runs a forward model of the test (free stream, spin, balance channels through the inverse
 calibration, zero drift, spin tares, rotating taps with tubing delay and centrifugal head, and the
 wall interference of the configured method applied forward). The reduction must undo all of it.
 The tolerance of every comparison is the result's own expanded uncertainty, U = 2u (JCGM 100:2008

@@ -1,4 +1,4 @@
-"""Tests of tunnelred.demo.synth: determinism, the coefficient model's sanity, and that the written logs
+"""Tests of tunnelred.demo: determinism, the coefficient model's sanity, and that the written logs
 carry the truth through the project's own inverse steps (calibration, azimuth, integration, wall
 corrections).
 
@@ -18,7 +18,15 @@ import pandas as pd
 import pytest
 from scipy.integrate import trapezoid
 
-from tunnelred.demo import synth
+from tunnelred.demo.spec import Fault, SynthSpec, demo_spec
+from tunnelred.demo.truth import (
+    true_drag_coefficient,
+    true_lift_coefficient,
+    true_pressure_coefficients,
+    true_surface_cp,
+    true_torque_coefficient,
+)
+from tunnelred.demo.writer import make_campaign, write_demo_campaign
 from tunnelred.inputs.config import load_config
 from tunnelred.inputs.readers import open_campaign
 from tunnelred.physics import balance, corrections, pressure
@@ -26,8 +34,8 @@ from tunnelred.physics import balance, corrections, pressure
 REPO = Path(__file__).resolve().parents[1]
 
 
-def small_spec(seed: int = 7) -> synth.SynthSpec:
-    demo = synth.demo_spec(seed)
+def small_spec(seed: int = 7) -> SynthSpec:
+    demo = demo_spec(seed)
     return replace(
         demo,
         configurations=demo.configurations[:1],
@@ -40,14 +48,14 @@ def small_spec(seed: int = 7) -> synth.SynthSpec:
         tare_rpms=(2500.0, 3000.0),
         data_duration=2.0,
         wind_off_duration=1.0,
-        faults=(synth.Fault("zero_shift", "plates", 9.0, 0.0, 0.01),),
+        faults=(Fault("zero_shift", "plates", 9.0, 0.0, 0.01),),
     )
 
 
 @pytest.fixture(scope="module")
 def small(tmp_path_factory):
     dest = tmp_path_factory.mktemp("small")
-    truth = synth.make_campaign(dest, small_spec())
+    truth = make_campaign(dest, small_spec())
     return dest, truth.set_index("run")
 
 
@@ -60,7 +68,7 @@ def _files(folder: Path) -> list[str]:
 
 def test_same_seed_writes_identical_bytes(small, tmp_path):
     first, _ = small
-    synth.make_campaign(tmp_path, small_spec())
+    make_campaign(tmp_path, small_spec())
     assert _files(first) == _files(tmp_path)
     match, mismatch, errors = filecmp.cmpfiles(first, tmp_path, _files(first), shallow=False)
     assert mismatch == [] and errors == []
@@ -68,7 +76,7 @@ def test_same_seed_writes_identical_bytes(small, tmp_path):
 
 def test_other_seed_differs(small, tmp_path):
     first, _ = small
-    synth.make_campaign(tmp_path, small_spec(seed=8))
+    make_campaign(tmp_path, small_spec(seed=8))
     names = ["truth.csv", "logs/R003_balance.csv", "logs/R003_pressure.csv"]
     _, mismatch, _ = filecmp.cmpfiles(first, tmp_path, names, shallow=False)
     assert mismatch == names
@@ -82,7 +90,7 @@ ALPHA = np.linspace(0.01, 5.0, 500)
 @pytest.mark.parametrize("end_plates", [True, False])
 @pytest.mark.parametrize("reynolds", [2e4, 1e5, 5e5])
 def test_lift_below_potential_flow_and_saturating(end_plates, reynolds):
-    cl = synth.true_lift_coefficient(ALPHA, reynolds, end_plates=end_plates)
+    cl = true_lift_coefficient(ALPHA, reynolds, end_plates=end_plates)
     # Kutta-Joukowski for the spinning cylinder, CL = -2 pi alpha (J. D. Anderson, Fundamentals
     # of Aerodynamics, 6th ed., §3.16): a real cylinder's lift falls well short of it.
     assert np.all(cl < 0.0)
@@ -92,15 +100,15 @@ def test_lift_below_potential_flow_and_saturating(end_plates, reynolds):
     slope = np.gradient(-cl, ALPHA)
     assert slope[ALPHA > 4.0].max() < 0.25 * slope.max()
     # Sign convention, DESIGN.md §4: lift is odd in the spin.
-    assert synth.true_lift_coefficient(-ALPHA, reynolds, end_plates=end_plates) == (
+    assert true_lift_coefficient(-ALPHA, reynolds, end_plates=end_plates) == (
         pytest.approx(-cl, abs=1e-15)
     )
 
 
 def test_end_plates_give_more_lift():
     # End discs raise the lift of a rotating cylinder (Thom, ARC R&M 1623, 1934; from memory).
-    with_plates = synth.true_lift_coefficient(ALPHA, 1e5, end_plates=True)
-    bare = synth.true_lift_coefficient(ALPHA, 1e5, end_plates=False)
+    with_plates = true_lift_coefficient(ALPHA, 1e5, end_plates=True)
+    bare = true_lift_coefficient(ALPHA, 1e5, end_plates=False)
     assert np.all(np.abs(with_plates) > np.abs(bare))
 
 
@@ -109,15 +117,15 @@ def test_end_plates_give_more_lift():
 def test_drag_at_rest_and_its_minimum(end_plates, reynolds):
     # Subcritical circular cylinder, CD ~ 1.1-1.2 for Re 1e4-2e5 (S. F. Hoerner, Fluid-Dynamic
     # Drag, 1965, ch. 3; from memory); held to that band up to 1e6 by this model's design.
-    cd0 = synth.true_drag_coefficient(0.0, reynolds, end_plates=end_plates)
+    cd0 = true_drag_coefficient(0.0, reynolds, end_plates=end_plates)
     assert 1.1 <= cd0 <= 1.2
-    cd = synth.true_drag_coefficient(ALPHA, reynolds, end_plates=end_plates)
+    cd = true_drag_coefficient(ALPHA, reynolds, end_plates=end_plates)
     # Drag minimum of a rotating cylinder near alpha 1.5-2 (Badalamenti & Prince 2008; from memory).
     assert 1.4 <= ALPHA[np.argmin(cd)] <= 2.0
 
 
 def test_torque_opposes_spin_and_grows():
-    cm = synth.true_torque_coefficient(ALPHA, 1e5, end_plates=False)
+    cm = true_torque_coefficient(ALPHA, 1e5, end_plates=False)
     assert np.all(cm < 0.0)
     assert np.all(np.diff(cm) < 0.0)
 
@@ -128,9 +136,9 @@ def test_torque_opposes_spin_and_grows():
 @pytest.mark.parametrize("alpha", [0.0, 0.7, 2.0, -3.0, 4.0])
 @pytest.mark.parametrize("end_plates", [True, False])
 def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
-    cl_p, cd_p = synth.true_pressure_coefficients(alpha, 1e5, end_plates=end_plates)
+    cl_p, cd_p = true_pressure_coefficients(alpha, 1e5, end_plates=end_plates)
     theta = np.arange(72) * 5.0 + 2.5
-    cp = synth.true_surface_cp(theta, alpha, 1e5, end_plates=end_plates)
+    cp = true_surface_cp(theta, alpha, 1e5, end_plates=end_plates)
     # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (DESIGN.md §4); tunnelred.physics.pressure.integrate_cp on
     # 72 bins: its periodic trapezoid is spectrally accurate on this smooth profile → abs 2e-3.
     cl, cd = pressure.integrate_cp(theta, cp)
@@ -138,7 +146,7 @@ def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
     assert cd == pytest.approx(cd_p, abs=2e-3)
     # And a fine-grid trapezoid from scipy closes the integrals to rounding.
     fine = np.linspace(0.0, 360.0, 7201)
-    cpf = synth.true_surface_cp(fine, alpha, 1e5, end_plates=end_plates)
+    cpf = true_surface_cp(fine, alpha, 1e5, end_plates=end_plates)
     rad = np.deg2rad(fine)
     assert 0.5 * trapezoid(cpf * np.sin(rad), rad) == pytest.approx(cl_p, abs=1e-5)
     assert 0.5 * trapezoid(cpf * np.cos(rad), rad) == pytest.approx(cd_p, abs=1e-5)
@@ -146,20 +154,20 @@ def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
 
 def test_stagnation_cp_is_one_at_rest():
     # Bernoulli at the windward stagnation point: Cp = 1 (Anderson, §3.13).
-    assert synth.true_surface_cp(0.0, 0.0, 1e5, end_plates=True) == pytest.approx(1.0, abs=1e-5)
+    assert true_surface_cp(0.0, 0.0, 1e5, end_plates=True) == pytest.approx(1.0, abs=1e-5)
     # Cp(θ, −α) = Cp(−θ, α): the flow mirrors with the spin.
     theta = np.linspace(0.0, 360.0, 37)
-    assert synth.true_surface_cp(theta, -1.5, 1e5, end_plates=False) == pytest.approx(
-        synth.true_surface_cp(-theta, 1.5, 1e5, end_plates=False), abs=1e-12
+    assert true_surface_cp(theta, -1.5, 1e5, end_plates=False) == pytest.approx(
+        true_surface_cp(-theta, 1.5, 1e5, end_plates=False), abs=1e-12
     )
 
 
 def test_midspan_lift_end_effect():
     # Without end plates mid-span carries more lift than the span average; with them the same.
-    cl = synth.true_lift_coefficient(2.0, 1e5, end_plates=False)
-    assert synth.true_pressure_coefficients(2.0, 1e5, end_plates=False)[0] < cl
-    cl = synth.true_lift_coefficient(2.0, 1e5, end_plates=True)
-    assert synth.true_pressure_coefficients(2.0, 1e5, end_plates=True)[0] == pytest.approx(cl)
+    cl = true_lift_coefficient(2.0, 1e5, end_plates=False)
+    assert true_pressure_coefficients(2.0, 1e5, end_plates=False)[0] < cl
+    cl = true_lift_coefficient(2.0, 1e5, end_plates=True)
+    assert true_pressure_coefficients(2.0, 1e5, end_plates=True)[0] == pytest.approx(cl)
 
 
 def test_written_pressure_log_integrates_to_the_truth(small):
@@ -289,7 +297,7 @@ def test_forward_wall_interference_inverts(small):
             # truth.csv holds 10 significant digits → rel 1e-8.
             assert out[k] == pytest.approx(t[k], rel=1e-8, abs=1e-12), k
         # The free-air truth is the model evaluated at the corrected alpha and Re.
-        cl = synth.true_lift_coefficient(t["alpha"], t["Re"], end_plates=True)
+        cl = true_lift_coefficient(t["alpha"], t["Re"], end_plates=True)
         assert t["CL"] == pytest.approx(cl, rel=1e-8, abs=1e-12)
 
 
@@ -299,7 +307,7 @@ def test_forward_wall_interference_inverts(small):
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     dest = tmp_path_factory.mktemp("demo")
-    return dest, synth.write_demo_campaign(dest)
+    return dest, write_demo_campaign(dest)
 
 
 def test_demo_fits_in_ten_megabytes(demo):
@@ -320,7 +328,7 @@ def test_demo_plants_each_fault_once_and_retakes_it(demo):
     folder, truth = demo
     faults = truth.loc[truth["planted_fault"].fillna("") != "", "planted_fault"]
     # The demo plants its own four kinds (sample_runs/README.md), not every kind synth knows.
-    assert sorted(faults) == sorted(f.kind for f in synth.demo_spec().faults)
+    assert sorted(faults) == sorted(f.kind for f in demo_spec().faults)
     runs = pd.read_csv(folder / "runs.csv", keep_default_na=False)
     for run in truth.loc[faults.index, "run"]:
         assert runs["notes"].str.contains(f"retake of {run}").sum() == 1

@@ -158,7 +158,7 @@ def _run_demo(args) -> int:
         return _fail_usage(f"{dest} exists and is not a folder")
     if dest.is_dir() and any(dest.iterdir()) and not args.force:
         return _fail_usage(f"{dest} is not empty; choose another folder or add --force")
-    from tunnelred.demo.synth import (
+    from tunnelred.demo.writer import (
         write_demo_campaign,  # imported here: only this command needs it
     )
 
