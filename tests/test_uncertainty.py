@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 import uncertainties
 from uncertainties import umath
@@ -347,3 +348,48 @@ def test_input_validation():
     with pytest.raises(ValueError):
         Input(1.0, 0.1, kind="C")
     assert Input([1.0, 2.0], 0.1).u == pytest.approx([0.1, 0.1])
+
+
+def test_summed_with_shares_one_column_and_matches_the_law_of_propagation():
+    # y = (a + b)^2 · c per element, b entering only through a + b. JCGM 100:2008 eq. (10) for
+    # independent inputs, s = a + b: u^2(y_k) = (2 s_k c)^2 (u_a,k^2 + u_b,k^2) + (s_k^2 u_c)^2.
+    # Central differences of this quadratic are exact up to round-off (~1e-9 here) → rel 1e-7.
+    calls = []
+
+    def model(x):
+        calls.append(x["a"].shape[0])
+        s = x["a"] + x["b"]
+        return {"y": s**2 * x["c"][:, None], "total": (s**2).sum(axis=1)}
+
+    a, b, c = np.array([1.0, 2.0, 3.0]), np.array([0.5, -0.2, 0.0]), 1.5
+    ua, ub, uc = np.array([0.01, 0.0, 0.03]), np.array([0.02, 0.04, 0.0]), 0.05
+    inputs = {"a": Input(a, ua), "b": Input(b, ub), "c": Input(c, uc)}
+    res = propagate_linear(model, inputs, summed_with={"b": "a"})
+    s = a + b
+    expected = np.sqrt((2 * s * c) ** 2 * (ua**2 + ub**2) + (s**2 * uc) ** 2)
+    assert res.u["y"] == pytest.approx(expected, rel=1e-7)
+    # b[0] borrows a[0]'s column; b[1] (a[1] exact) is perturbed itself; b[2] is exact:
+    # evaluated: a[0], a[2], b[1], c → 1 + 2·4 rows instead of 1 + 2·5.
+    assert calls == [9]
+    assert np.array_equal(res.jacobian[:, 3], res.jacobian[:, 0])
+    plain = propagate_linear(model, inputs)
+    assert res.u["total"] == pytest.approx(plain.u["total"], rel=1e-7)
+    with pytest.raises(ValueError, match="both must be inputs"):
+        propagate_linear(model, inputs, summed_with={"b": "nope"})
+    with pytest.raises(ValueError, match="another shape"):
+        propagate_linear(model, inputs, summed_with={"c": "a"})
+
+
+def test_budgets_of_several_outputs_are_their_budgets_side_by_side():
+    # The one-table form must hold exactly what budget() gives output by output (same code path
+    # for the numbers; this checks the assembly: order, columns, the correlation row).
+    res = propagate_linear(force_model, FORCE_INPUTS, correlation=FORCE_CORRELATION)
+    outputs = list(res.values)
+    table = res.budgets(outputs)
+    assert list(table.columns) == ["output", "input", "value", "u", "sensitivity",
+                                   "contribution", "share", "kind"]  # fmt: skip
+    for name in outputs:
+        one = res.budget(name)
+        part = table[table["output"] == name].drop(columns="output").reset_index(drop=True)
+        pd.testing.assert_frame_equal(part, one)
+    assert res.budget("CL")["input"].iloc[-1] == CORRELATION_ROW

@@ -616,7 +616,9 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
             measures["pressure_gap"] = str(exc)
 
     model = _run_model(cfg, has_balance=has_balance, theta_bins=theta_points, integrate=integrate)
-    linear = propagate_linear(model, inputs)
+    # The scanner term enters only through p_bin + p_scanner: one set of sensitivities for both.
+    summed = {"p_scanner": "p_bin"} if "p_scanner" in inputs else None
+    linear = propagate_linear(model, inputs, summed_with=summed)
 
     values: dict[str, float | str] = {
         "config": spec.config,
@@ -679,17 +681,12 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     flags = tuple(quality.check_run(measures, cfg.tolerances_for(spec.config)))
     values.update(quality.flag_columns(flags))
 
-    budgets = {
-        name: linear.budget(name)
-        for name in BUDGET_OUTPUTS
-        # An exact result (alpha of a model at rest) has no variance to share out.
-        if np.isfinite(values[name]) and values[f"u_{name}"] > 0
-    }
+    # An exact result (alpha of a model at rest) has no variance to share out.
+    budgeted = [n for n in BUDGET_OUTPUTS if np.isfinite(values[n]) and values[f"u_{n}"] > 0]
     budget_table = None
-    if budgets:
-        budget_table = pd.concat(budgets, names=["output", None]).reset_index(0)
+    if budgeted:
+        budget_table = linear.budgets(budgeted)
         budget_table.insert(0, "run", run_id)
-        budget_table = budget_table.reset_index(drop=True)
     return RunResult(
         run=run_id,
         config=spec.config,

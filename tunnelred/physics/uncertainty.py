@@ -40,6 +40,9 @@ Model = Callable[[dict[str, np.ndarray]], Mapping[str, np.ndarray]]
 #: Label of the budget row that holds the share of the output variance due to input correlations.
 CORRELATION_ROW = "(correlations)"
 
+# The columns of a budget table, after its ``output`` column.
+_BUDGET_COLUMNS = ("input", "value", "u", "sensitivity", "contribution", "share", "kind")
+
 
 @dataclass(frozen=True, eq=False)
 class Input:
@@ -174,7 +177,8 @@ def _correlation_matrix(
             )
         for i, j in pairs:
             R[i, j] = R[j, i] = r
-    if n > 1 and np.linalg.eigvalsh(R)[0] < -1e-10:
+    # The identity (no coefficients given) needs no check.
+    if correlation and n > 1 and np.linalg.eigvalsh(R)[0] < -1e-10:
         raise ValueError("the input correlation coefficients are not a valid correlation matrix")
     return R
 
@@ -282,13 +286,26 @@ class LinearResult:
             act on the output, a last row ``(correlations)`` holds the share of the cross terms
             2 Σ c_i c_j r_ij, so that the column always sums to 1.
         """
-        o = self._out().flat_index(output)
-        sens = self.jacobian[o]
-        contrib = np.where(self.input_u > 0, sens * self.input_u, 0.0)
-        var = float(contrib @ self.input_correlation @ contrib)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            share = contrib**2 / var
-        columns = ("input", "value", "u", "sensitivity", "contribution", "share", "kind")
+        return self.budgets([output], group=group).drop(columns="output")
+
+    def budgets(self, outputs: Sequence[str], *, group: bool = True) -> pd.DataFrame:
+        """The budgets of several scalar outputs in one table, built from arrays.
+
+        Parameters
+        ----------
+        outputs : sequence of str
+            Scalar output names or element labels, as for :meth:`budget`.
+        group : bool
+            As for :meth:`budget`.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Column ``output`` then the columns of :meth:`budget`; each output's rows in the
+            order :meth:`budget` gives them.
+        """
+        layout = self._out()
+        acting_u = self.input_u > 0
         if group:
             starts = np.array([sl.start for sl in self.input_index.values()])
             sizes = np.array([sl.stop - sl.start for sl in self.input_index.values()])
@@ -296,37 +313,54 @@ class LinearResult:
             scalar = (sizes == 1) & np.array(
                 [self.input_names[i] == n for i, n in zip(starts, names, strict=True)]
             )
-            # Vector inputs: variance contributions added, the contribution a root sum of squares.
-            sum_sq = np.add.reduceat(contrib**2, starts)
-            table = {
-                "input": names,
-                "value": np.where(scalar, self.input_values[starts], np.nan),
-                "u": np.where(scalar, self.input_u[starts], np.nan),
-                "sensitivity": np.where(scalar, sens[starts], np.nan),
-                "contribution": np.where(scalar, contrib[starts], np.sqrt(sum_sq)),
-                "share": np.add.reduceat(np.nan_to_num(share, nan=0.0), starts)
-                if var > 0
-                else np.full(len(names), np.nan),
-                "kind": [self.input_kind[i] for i in starts],
-            }
+            labels = np.array(names, dtype=object)
+            kinds = np.array([self.input_kind[i] for i in starts], dtype=object)
+            values = np.where(scalar, self.input_values[starts], np.nan)
+            us = np.where(scalar, self.input_u[starts], np.nan)
         else:
-            table = {
-                "input": list(self.input_names),
-                "value": self.input_values,
-                "u": self.input_u,
-                "sensitivity": sens,
-                "contribution": contrib,
-                "share": share,
-                "kind": list(self.input_kind),
-            }
-        frame = pd.DataFrame(table, columns=columns)
-        acting = contrib != 0
-        off = self.input_correlation[np.ix_(acting, acting)] - np.eye(int(acting.sum()))
-        if np.any(off != 0):
-            cross = (var - float(np.sum(contrib**2))) / var if var > 0 else np.nan
-            row = {"input": CORRELATION_ROW, "share": cross, "kind": ""}
-            frame.loc[len(frame)] = [row.get(c, np.nan) for c in columns]
-        return frame
+            labels = np.array(self.input_names, dtype=object)
+            kinds = np.array(self.input_kind, dtype=object)
+            values, us = self.input_values, self.input_u
+        parts: dict[str, list] = {c: [] for c in ("output", *_BUDGET_COLUMNS)}
+        for output in outputs:
+            o = layout.flat_index(output)
+            sens = self.jacobian[o]
+            contrib = np.where(acting_u, sens * self.input_u, 0.0)
+            var = float(contrib @ self.input_correlation @ contrib)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                share = contrib**2 / var
+            if group:
+                # Vector inputs: variance contributions added, the contribution a root sum of
+                # squares.
+                sum_sq = np.add.reduceat(contrib**2, starts)
+                columns = {
+                    "sensitivity": np.where(scalar, sens[starts], np.nan),
+                    "contribution": np.where(scalar, contrib[starts], np.sqrt(sum_sq)),
+                    "share": np.add.reduceat(np.nan_to_num(share, nan=0.0), starts)
+                    if var > 0
+                    else np.full(len(names), np.nan),
+                }
+            else:
+                columns = {"sensitivity": sens, "contribution": contrib, "share": share}
+            columns.update(input=labels, value=values, u=us, kind=kinds)
+            acting = contrib != 0
+            off = self.input_correlation[np.ix_(acting, acting)] - np.eye(int(acting.sum()))
+            rows = len(labels)
+            if np.any(off != 0):
+                cross = (var - float(np.sum(contrib**2))) / var if var > 0 else np.nan
+                extra = {"input": CORRELATION_ROW, "share": cross, "kind": ""}
+                columns = {
+                    c: np.append(columns[c], extra.get(c, np.nan)).astype(
+                        object if c in ("input", "kind") else float
+                    )
+                    for c in _BUDGET_COLUMNS
+                }
+                rows += 1
+            parts["output"].append(np.full(rows, output, dtype=object))
+            for c in _BUDGET_COLUMNS:
+                parts[c].append(columns[c])
+        table = {c: np.concatenate(v) if v else np.array([]) for c, v in parts.items()}
+        return pd.DataFrame(table, columns=["output", *_BUDGET_COLUMNS])
 
     def ufloats(self, names: Sequence[str]) -> dict[str, object]:
         """Scalar outputs as correlated ``uncertainties`` numbers, for notebooks.
@@ -358,6 +392,7 @@ def propagate_linear(
     *,
     correlation: Mapping[tuple[str, str], float] | None = None,
     relative_step: float = 1e-6,
+    summed_with: Mapping[str, str] | None = None,
 ) -> LinearResult:
     """Propagate standard uncertainties through a model by the GUM law of propagation.
 
@@ -373,6 +408,11 @@ def propagate_linear(
         length pair element-wise; a vector with itself sets every pair of its elements.
     relative_step : float
         Central-difference step as a fraction of each input's standard uncertainty [-].
+    summed_with : dict of str to str, optional
+        ``{"b": "a"}`` promises that input ``b`` enters the model only through the sum
+        ``a + b`` (same shape): ∂y/∂b = ∂y/∂a, so ``b`` takes ``a``'s sensitivity columns and
+        is not perturbed itself (elements where ``a`` has ``u = 0`` are perturbed as usual);
+        the shared column is differenced with the step of the larger of the two u.
 
     Returns
     -------
@@ -386,7 +426,8 @@ def propagate_linear(
     ``(y(x + h e_i) − y(x − h e_i)) / (2h)`` with ``h = relative_step · u(x_i)``, divided by the
     step actually represented in floating point. All ``2n + 1`` evaluations (the estimate and
     the ± steps of the ``n`` inputs with ``u > 0``) go to the model as one batch. An input with
-    ``u = 0`` contributes nothing to any variance, so it is not perturbed at all.
+    ``u = 0`` contributes nothing to any variance, so it is not perturbed at all, nor is one
+    named in ``summed_with``, whose columns are its partner's (a sum has one derivative).
 
     The result is first order: it is exact for a model linear in its inputs and otherwise valid
     while the model is close to linear over a few standard uncertainties of each input
@@ -412,20 +453,41 @@ def propagate_linear(
         raise ValueError(f"relative_step must be positive; got {relative_step}")
     layout, x0, u = _input_layout(inputs)
     R = _correlation_matrix(layout, correlation)
-    active = np.flatnonzero(u > 0)
-    m = active.size
+    varies = u > 0
+    # Elements that take their partner's sensitivity: not evaluated themselves.
+    borrowed: list[tuple[np.ndarray, np.ndarray]] = []
+    for name, partner in (summed_with or {}).items():
+        if name not in layout.index or partner not in layout.index or name == partner:
+            raise ValueError(f"summed_with pairs {name!r} with {partner!r}: both must be inputs")
+        if layout.shapes[name] != layout.shapes[partner]:
+            raise ValueError(f"summed_with pairs {name!r} with {partner!r} of another shape")
+        own = np.arange(layout.index[name].start, layout.index[name].stop)
+        theirs = np.arange(layout.index[partner].start, layout.index[partner].stop)
+        take = varies[own] & varies[theirs]
+        borrowed.append((own[take], theirs[take]))
+    evaluated = varies.copy()
+    # The step of a shared column follows the larger of the two u: less round-off.
+    u_step = u.copy()
+    for own, theirs in borrowed:
+        evaluated[own] = False
+        u_step[theirs] = np.maximum(u[theirs], u[own])
+    computed = np.flatnonzero(evaluated)
+    m = computed.size
     # A step far below the value's last digit would vanish in floating point; 1e-9 of the
     # value keeps the central difference meaningful (its truncation error is still negligible).
-    h = np.maximum(relative_step * u[active], 1e-9 * np.abs(x0[active]))
+    h = np.maximum(relative_step * u_step[computed], 1e-9 * np.abs(x0[computed]))
     X = np.tile(x0, (1 + 2 * m, 1))
     plus = 1 + 2 * np.arange(m)
-    X[plus, active] += h
-    X[plus + 1, active] -= h
-    dx = X[plus, active] - X[plus + 1, active]
+    X[plus, computed] += h
+    X[plus + 1, computed] -= h
+    dx = X[plus, computed] - X[plus + 1, computed]
     out, Y = _evaluate(model, layout, X)
 
     J = np.full((out.size, layout.size), np.nan)
-    J[:, active] = ((Y[plus] - Y[plus + 1]) / dx[:, None]).T
+    J[:, computed] = ((Y[plus] - Y[plus + 1]) / dx[:, None]).T
+    for own, theirs in borrowed:
+        J[:, own] = J[:, theirs]
+    active = np.flatnonzero(varies)
     Ja = J[:, active]
     cov_x = u[active, None] * R[np.ix_(active, active)] * u[None, active]
     cov_y = Ja @ cov_x @ Ja.T
