@@ -191,3 +191,27 @@ def test_model_spin_rate_limit_is_optional_and_in_si(tmp_path):
     assert config.model.max_spin_rate == pytest.approx(6000 * 2 * 3.141592653589793 / 60)
     config, problems = load(tmp_path, text.replace('"6000 rpm"', '"100 Hz"'))
     assert any(p.column == "model.max_spin_rate" for p in problems)
+
+
+def test_a_two_d_method_on_a_three_d_model_is_resolved_once_with_a_notice(tmp_path):
+    text = CAMPAIGN_TOML.replace("span = 0.8\n", "span = 0.8\nspans_section = false\n")
+    text += '\n[reduction]\nblockage = "allen-vincenti"\n'
+    config, problems = load(tmp_path, text)
+    assert problems == []
+    assert config.reduction.blockage == "maskell-3d"
+    assert config.reduction.blockage_requested == "allen-vincenti"
+    (notice,) = config.notices
+    assert notice.column == "reduction.blockage" and "maskell-3d" in notice.hint
+    assert notice.line == text.splitlines().index('blockage = "allen-vincenti"') + 1
+
+
+def test_a_method_that_fits_gives_no_notice(tmp_path):
+    config, problems = load(tmp_path, CAMPAIGN_TOML + '\n[reduction]\nblockage = "maskell"\n')
+    assert problems == [] and config.notices == ()
+    assert config.reduction.blockage == config.reduction.blockage_requested == "maskell"
+
+
+def test_maskell_factor_only_with_a_method_that_has_one(tmp_path):
+    text = CAMPAIGN_TOML + '\n[reduction]\nblockage = "allen-vincenti"\nmaskell_factor = 1.0\n'
+    config, problems = load(tmp_path, text)
+    assert [p.column for p in problems] == ["reduction.maskell_factor"]

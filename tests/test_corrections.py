@@ -392,3 +392,59 @@ def test_summary_text():
     text = c.correction_summary("allen-vincenti", lift_interference=True)
     assert "NACA Report 782" in text and "lift interference" in text and "buoyancy" in text
     assert set(c.METHOD_FORMULAS) >= {"allen-vincenti", "maskell", "maskell-3d", "none"}
+
+
+# --- the registry of methods -------------------------------------------------------------------
+
+
+def test_every_method_campaign_toml_may_name_has_one_physics_entry():
+    from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS
+
+    assert tuple(c.METHODS) == BLOCKAGE_METHODS
+    for name, method in c.METHODS.items():
+        assert method.choice is BLOCKAGE_CHOICES[name]
+        assert method.formula and method.validity and c.METHOD_FORMULAS[name] == method.formula
+
+
+def test_a_registry_entry_missing_a_field_fails():
+    av = c.METHODS["allen-vincenti"]
+    with pytest.raises(TypeError):  # no validity range
+        c.BlockageMethod(av.choice, av.increments, av.drag_factor, av.formula)
+    with pytest.raises(ValueError):  # an empty formula text
+        c.BlockageMethod(av.choice, av.increments, av.drag_factor, " ", av.validity)
+    with pytest.raises(TypeError):  # a drag factor that cannot be called
+        c.BlockageMethod(av.choice, av.increments, 1.0, av.formula, av.validity)
+    with pytest.raises(TypeError):  # a name, not the choice config knows
+        c.BlockageMethod("allen-vincenti", av.increments, av.drag_factor, av.formula, av.validity)
+
+
+def test_the_registry_refuses_a_choice_without_physics_or_physics_without_a_choice():
+    from tunnelred.inputs.methods import MethodChoice
+
+    with pytest.raises(ValueError, match="maskell-3d"):
+        c._registry(*(m for name, m in c.METHODS.items() if name != "maskell-3d"))
+    stray = c.BlockageMethod(
+        MethodChoice("glauert", fits_2d=True, fits_3d=False),
+        c.METHODS["none"].increments,
+        c.METHODS["none"].drag_factor,
+        "eps = 0",
+        "nowhere",
+    )
+    with pytest.raises(ValueError, match="glauert"):
+        c._registry(*c.METHODS.values(), stray)
+
+
+def test_each_entry_applies_its_own_drag_factor():
+    # Allen & Vincenti, NACA Report 782: CD_c = CD_u (1 - 3 eps_sb - 2 eps_wb); at d/h = 0.1,
+    # CD_u = 1.2: 1 - 3 * 8.22467e-3 - 2 * 0.03 = 0.915326. Maskell, ARC R&M 3400:
+    # CD_c = CD_u q/q_c = 1.2/(1 + 0.0642550)^2 = 1.059477.
+    values = dict(U=20.0, q=500.0, alpha=0.0, Re=1e5, CL=0.0, CM=0.0, C_power=0.0)
+    out = c.apply_wall_correction(_wall(buoyancy=False), CD=1.2, **values)
+    assert out["CD"] == pytest.approx(1.2 * 0.915326, rel=1e-6)
+    out = c.apply_wall_correction(_wall("maskell", buoyancy=False), CD=1.2, **values)
+    assert out["CD"] == pytest.approx(1.2 / 1.0642550**2, rel=1e-6)
+
+
+def test_summary_gives_the_validity_range():
+    text = c.correction_summary(c.METHODS["maskell-3d"], buoyancy=False)
+    assert "ARC R&M 3400" in text and "valid for:" in text and "S/C up to 0.1" in text

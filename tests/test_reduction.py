@@ -207,3 +207,32 @@ def test_pressure_with_must_name_a_data_run_with_pressure(campaign_dir):
     runs.write_text("\n".join(lines) + "\n", encoding="utf-8")
     problems = open_campaign(campaign_dir).run_problems("d1")
     assert any(p.column == "pressure_with" and "'z1', a zero run" in p.found for p in problems)
+
+
+def test_a_three_d_model_records_the_method_it_was_corrected_with(campaign_dir, tmp_path):
+    # campaign.toml asks for Allen & Vincenti's 2-D method on a model that does not span the
+    # section; config substitutes Maskell's 3-D method once, and every output says so.
+    import json
+
+    from tunnelred.pipeline.campaign import reduce_campaign
+
+    toml = campaign_dir / "campaign.toml"
+    text = toml.read_text(encoding="utf-8").replace("span = 0.8\n", "span = 0.5\n")
+    text = text.replace("[model]\n", "[model]\nspans_section = false\n")
+    toml.write_text(text + '\n[reduction]\nblockage = "allen-vincenti"\n', encoding="utf-8")
+    results = reduce_campaign(campaign_dir, tmp_path / "out", workers=1, progress=False)
+    ds = results.dataset
+    assert results.failed == 0 and results.reduced == 2
+    methods = json.loads(ds.attrs["methods"])
+    assert methods["blockage"] == "maskell-3d"
+    assert methods["blockage_requested"] == "allen-vincenti"
+    assert "maskell-3d" in ds["CL"].attrs["method"]
+    assert "allen-vincenti" not in ds["CL"].attrs["method"]
+    assert any("maskell-3d" in line for line in results.notices)
+    assert "notice" in results.summary()
+    # The numbers are Maskell's (ARC R&M 3400): no solid blockage, and
+    # eps = sqrt(1 + 5/2 CD_u S/C) - 1 with S = d b = 0.1 m * 0.5 m, C = h w = 1.2 m * 0.8 m.
+    assert np.all(ds["eps_solid"].values == 0.0)
+    cd_u = ds["CD_uncorrected"].values
+    want = np.sqrt(1.0 + 2.5 * cd_u * 0.1 * 0.5 / (1.2 * 0.8)) - 1.0
+    np.testing.assert_allclose(ds["eps_wake"].values, want, rtol=1e-9)

@@ -109,6 +109,8 @@ def _run_check(args) -> int:
         names = [t.name for t in config.taps]
         shown = ", ".join(names) if len(names) <= 12 else f"{', '.join(names[:12])}, …"
         out.append(f"taps: {len(names)} ({shown})")
+    for notice in campaign.notices:
+        out.append(f"notice: {notice.location()}: {notice.hint}")
     print("\n".join(out))
     return _print_problems(campaign.problems)
 

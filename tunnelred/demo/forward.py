@@ -89,6 +89,7 @@ def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> di
     names = ("CL", "CD", "CM", "CL_p", "CD_p")
     u = dict(zip(names, _truth_coefficients(alpha_u, Re_u, end_plates), strict=True))
     kw = _wall_kwargs(spec)
+    method = corrections.blockage_method(spec.blockage)  # the registry entry, resolved once
 
     def corrected(values, corr):
         return corrections.apply_wall_correction(
@@ -107,7 +108,7 @@ def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> di
 
     for _ in range(100):
         corr = corrections.wall_correction(
-            spec.blockage,
+            method,
             drag_coefficient=u["CD"],
             lift_coefficient=u["CL"],
             dynamic_pressure=q_u,
@@ -124,7 +125,7 @@ def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> di
         if step < 1e-14:
             break
     corr = corrections.wall_correction(
-        spec.blockage,
+        method,
         drag_coefficient=u["CD"],
         lift_coefficient=u["CL"],
         dynamic_pressure=q_u,

@@ -389,9 +389,8 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integra
     ``integrate`` is False when they leave a gap too wide for the pressure forces.
     """
     model_cfg, red = cfg.model, cfg.reduction
-    method = red.blockage
-    if not model_cfg.spans_section and method != "none":
-        method = "maskell-3d"
+    # Config resolved the method once (the 3-D substitution included); it is applied as it is.
+    method = corrections.METHODS[red.blockage]
 
     def model(x: dict) -> dict:
         temperature = x["T"] + x["T_spec"]
@@ -506,7 +505,6 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integra
                 out[name] = np.broadcast_to(value + shift, q_u.shape)
         return out
 
-    model.method = method
     return model
 
 

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
 from tunnelred.inputs.units import parse_quantity
 
 __all__ = [
@@ -38,9 +39,6 @@ __all__ = [
 
 #: Loads the balance calibration yields, in this order: [N], [N], [N m].
 LOAD_NAMES = ("Fx", "Fy", "Mz")
-
-#: Names accepted for [reduction] blockage.
-BLOCKAGE_METHODS = ("allen-vincenti", "maskell", "maskell-3d", "none")
 
 #: Names accepted for [tunnel] q_source, and the tunnel-log column each one reads.
 Q_SOURCES = {"pitot": "dp_pitot", "contraction": "dp_contraction"}
@@ -178,7 +176,11 @@ class Tolerances:
 
 @dataclass(frozen=True)
 class ReductionConfig:
+    # The method the runs are corrected with, resolved once here (inputs.methods): the one
+    # campaign.toml names, or the 3-D method in place of a 2-D one on a model that does not span
+    # the section; ``blockage_requested`` keeps what campaign.toml said.
     blockage: str = "allen-vincenti"  # one of BLOCKAGE_METHODS
+    blockage_requested: str = "allen-vincenti"
     maskell_factor: float | None = None  # Maskell's blockage factor; None: the method's default
     lift_interference: bool = False
     buoyancy: bool = True
@@ -199,6 +201,8 @@ class CampaignConfig:
     taps: tuple[TapConfig, ...]
     reduction: ReductionConfig
     sha256: str = ""  # of campaign.toml's bytes
+    # Things worth saying that do not stop a run (a substituted correction method, say).
+    notices: tuple[Problem, ...] = ()
 
     def tolerances_for(self, label: str) -> Tolerances:
         """The tolerances that apply to a configuration's runs."""
@@ -323,6 +327,7 @@ class _Reader:
     def __init__(self, file: str, text: str):
         self.file = file
         self.problems: list[Problem] = []
+        self.notices: list[Problem] = []
         self.fatal = False
         self._lines = _key_lines(text)
 
@@ -336,6 +341,9 @@ class _Reader:
     def problem(self, path: str, expected: str, found: str, hint: str = "", *, fatal=False):
         self.problems.append(Problem(self.file, self.line(path), path, expected, found, hint))
         self.fatal = self.fatal or fatal
+
+    def notice(self, path: str, expected: str, found: str, hint: str = "") -> None:
+        self.notices.append(Problem(self.file, self.line(path), path, expected, found, hint))
 
     def table(self, data: dict, key: str, path: str, allowed, *, required=False) -> dict:
         if key not in data:
@@ -584,7 +592,16 @@ def _build(r: _Reader, data: dict) -> CampaignConfig | None:
     reduction = _reduction(r, data, model)
     if r.fatal:
         return None
-    return CampaignConfig(info, tunnel, model, configurations, instruments, taps, reduction)
+    return CampaignConfig(
+        info,
+        tunnel,
+        model,
+        configurations,
+        instruments,
+        taps,
+        reduction,
+        notices=tuple(r.notices),
+    )
 
 
 def _tunnel(r: _Reader, data: dict) -> TunnelConfig | None:
@@ -854,9 +871,22 @@ def _reduction(r: _Reader, data: dict, model) -> ReductionConfig:
     p = "reduction"
     t = r.table(data, p, p, _KEYS[p])
     spans = model.spans_section if model is not None else True
-    blockage = r.choice(
+    requested = r.choice(
         t, p, "blockage", BLOCKAGE_METHODS, "allen-vincenti" if spans else "maskell-3d"
     )
+    used, note = resolve_blockage(requested, spans)
+    if note:
+        r.notice(f"{p}.blockage", "a method that fits the model", repr(requested), note + ".")
+    maskell_factor = r.get(t, p, "maskell_factor", "fraction", None, _POSITIVE)
+    if maskell_factor is not None and not used.takes_factor:
+        takers = ", ".join(repr(c.name) for c in BLOCKAGE_CHOICES.values() if c.takes_factor)
+        r.problem(
+            f"{p}.maskell_factor",
+            f"maskell_factor only with a method that has one ({takers})",
+            f"blockage {used.name!r}",
+            "Remove maskell_factor or choose one of those methods.",
+        )
+        maskell_factor = None
     base_arc = (160.0, 200.0)
     if "base_arc" in t:
         got = r.numbers(t["base_arc"], f"{p}.base_arc", ("angle", "angle"), fatal=False)
@@ -866,8 +896,9 @@ def _reduction(r: _Reader, data: dict, model) -> ReductionConfig:
             base_arc = got
     tolerances = Tolerances(**_tolerance_values(r, t, f"{p}.tolerances", given_only=False))
     return ReductionConfig(
-        blockage=blockage,
-        maskell_factor=r.get(t, p, "maskell_factor", "fraction", None, _POSITIVE),
+        blockage=used.name,
+        blockage_requested=requested,
+        maskell_factor=maskell_factor,
         lift_interference=r.get(t, p, "lift_interference", "bool", False),
         buoyancy=r.get(t, p, "buoyancy", "bool", True),
         cp_bins=r.get(

@@ -550,6 +550,11 @@ class Campaign:
     _by_file: dict[str, list[Problem]] = field(default_factory=dict)
     _columns: dict[str, tuple[dict, dict, dict, str]] = field(default_factory=dict)
 
+    @property
+    def notices(self) -> tuple[Problem, ...]:
+        """Things campaign.toml made config decide that stop no run (a substituted method)."""
+        return self.config.notices if self.config is not None else ()
+
     # -- lists of runs
     def data_runs(self) -> list[RunSpec]:
         return [r for r in self.runs.values() if r.kind == "data"]

@@ -1,9 +1,11 @@
 """Wall corrections for a spinning circular cylinder in a closed test section.
 
 One function per published method, each vectorised with numpy broadcasting so that the whole
-correction can be evaluated over a batch of Monte Carlo draws in one call; a dispatcher,
-:func:`wall_correction`, chosen by the name given in campaign.toml ``[reduction] blockage``; and
-:func:`apply_wall_correction`, which turns uncorrected coefficients into corrected ones.
+correction can be evaluated over a batch of Monte Carlo draws in one call; the registry
+:data:`METHODS`, one :class:`BlockageMethod` a method (its increments, drag factor, report text,
+validity range and the models it fits); :func:`wall_correction`, which applies the method config
+resolved from ``[reduction] blockage``; and :func:`apply_wall_correction`, which turns uncorrected
+coefficients into corrected ones.
 
 Conventions. A blockage is expressed as a velocity increment ``eps``: the model sees the speed
 ``U (1 + eps)`` instead of the reference speed ``U``. The solid and wake parts add,
@@ -20,19 +22,23 @@ doublet, and the lift-interference form is derived below, with its own image-sum
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
 from tunnelred.common._arraylike import arraylike
-from tunnelred.inputs.config import BLOCKAGE_METHODS
+from tunnelred.inputs.methods import BLOCKAGE_CHOICES, MethodChoice
 
 __all__ = [
     "MASKELL_FACTOR_2D",
     "MASKELL_FACTOR_3D",
+    "METHODS",
     "METHOD_FORMULAS",
+    "BlockageMethod",
+    "Geometry",
     "WallCorrection",
+    "blockage_method",
     "solid_blockage_2d",
     "wake_blockage_2d",
     "maskell_3d",
@@ -51,33 +57,6 @@ MASKELL_FACTOR_2D = 0.96
 #: Maskell's blockage factor for three-dimensional bluff bodies of aspect ratio 1 to 10, 5/2
 #: (ARC R&M 3400, summary).
 MASKELL_FACTOR_3D = 2.5
-
-#: The formula text of each method, the one place the report takes it from.
-METHOD_FORMULAS: dict[str, str] = {
-    "allen-vincenti": (
-        "eps_sb = (pi^2/12)(d/h)^2; eps_wb = (d/(4h)) CD_u; eps = eps_sb + eps_wb; "
-        "q_c = q (1 + eps)^2; CD_c = CD_u (1 - 3 eps_sb - 2 eps_wb) "
-        "(Allen & Vincenti, NACA Report 782, 1944)"
-    ),
-    "maskell": (
-        "eps_sb = (pi^2/12)(d/h)^2; (1 + eps_wb)^2 = 1 + theta CD_u d/h, theta = 0.96; "
-        "q_c = q (1 + eps)^2; CD_c = CD_u q/q_c (Maskell, ARC R&M 3400, 1963, in 2-D form)"
-    ),
-    "maskell-3d": (
-        "q_c/q = 1 + theta CD_u S/C, theta = 5/2, S = d b, C = h w; eps = sqrt(q_c/q) - 1; "
-        "CD_c = CD_u q/q_c (Maskell, ARC R&M 3400, 1963)"
-    ),
-    "none": "no blockage correction: eps = 0",
-    "lift-interference": (
-        "sigma = (pi^2/48)(d/h)^2; the wall images of the bound vortex strain the stream at the "
-        "model and raise the lift at fixed circulation by (1 + 2 sigma): CL_c = CL_u (q/q_c)/(1 + "
-        "2 sigma); alpha unchanged (derived in tunnelred.physics.corrections.lift_interference_2d)"
-    ),
-    "buoyancy": (
-        "Delta CD_B = -(pi d/(2 q)) dp/dx (volume plus added mass of a circular cylinder, "
-        "Glauert, ARC R&M 1566), subtracted before the blockage scaling"
-    ),
-}
 
 
 @arraylike
@@ -357,6 +336,178 @@ def buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient):
     return -np.pi * diameter / (2.0 * dynamic_pressure) * static_pressure_gradient
 
 
+#: A float, or an array over a batch of perturbed inputs or Monte Carlo draws.
+Values = float | np.ndarray
+
+
+@dataclass(frozen=True)
+class Geometry:
+    """What a blockage method may use besides the drag: model and section sizes [m]."""
+
+    diameter: Values
+    height: Values  # wall to wall across which lift acts
+    span: Values
+    width: Values
+
+
+@dataclass(frozen=True)
+class BlockageMethod:
+    """One wall-correction (blockage) method: everything the reduction and the report use of it.
+
+    Attributes
+    ----------
+    choice : MethodChoice
+        Its name and the models it fits, as campaign.toml and config know it
+        (:mod:`tunnelred.inputs.methods`).
+    increments : callable
+        ``increments(geometry, drag_coefficient, blockage_factor) -> (eps_solid, eps_wake)``:
+        the solid- and wake-blockage velocity increments [-]; ``blockage_factor`` is Maskell's
+        ``theta`` or None for the method's default.
+    drag_factor : callable
+        ``drag_factor(eps_solid, eps_wake) -> F``: the factor that turns a drag coefficient
+        (buoyancy removed) into the corrected one [-].
+    formula : str
+        The formulas and the publication, as the report prints them.
+    validity : str
+        The range the method is valid in, for the report and the docs.
+    """
+
+    choice: MethodChoice
+    increments: Callable[[Geometry, Values, float | None], tuple[Values, Values]]
+    drag_factor: Callable[[Values, Values], Values]
+    formula: str
+    validity: str
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.choice, MethodChoice):
+            raise TypeError(f"{self.choice!r} is not a MethodChoice")
+        if not callable(self.increments) or not callable(self.drag_factor):
+            raise TypeError(f"method {self.choice.name!r}: increments and drag_factor are called")
+        if not self.formula.strip() or not self.validity.strip():
+            raise ValueError(f"method {self.choice.name!r} needs its formula and validity text")
+
+    @property
+    def name(self) -> str:
+        return self.choice.name
+
+    @property
+    def fits_2d(self) -> bool:
+        return self.choice.fits_2d
+
+    @property
+    def fits_3d(self) -> bool:
+        return self.choice.fits_3d
+
+
+def _q_ratio_factor(eps_solid: Values, eps_wake: Values) -> Values:
+    """``CD_c = CD_u q/q_c``: the drag scales as the dynamic pressure does."""
+    return 1.0 / (1.0 + (eps_solid + eps_wake)) ** 2
+
+
+def _allen_vincenti(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
+    return solid_blockage_2d(g.diameter, g.height), wake_blockage_2d(g.diameter, g.height, cd)
+
+
+def _allen_vincenti_drag(eps_solid: Values, eps_wake: Values) -> Values:
+    # The extra -eps_sb is the horizontal buoyancy in the wake-induced pressure gradient.
+    return 1.0 - 3.0 * eps_solid - 2.0 * eps_wake
+
+
+def _maskell_2d(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
+    # Maskell's theory, built on thin plates, has no solid blockage: Allen & Vincenti's is added.
+    wake = wake_blockage_2d(g.diameter, g.height, cd, method="maskell", blockage_factor=factor)
+    return solid_blockage_2d(g.diameter, g.height), wake
+
+
+def _maskell_3d(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
+    wake = maskell_3d(cd, g.diameter * g.span, g.height * g.width, blockage_factor=factor)
+    return 0.0, wake
+
+
+def _no_blockage(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
+    return 0.0, 0.0
+
+
+def _registry(*methods: BlockageMethod) -> dict[str, BlockageMethod]:
+    """The methods by name; each must be a choice config knows, and every choice needs one."""
+    table = {m.name: m for m in methods}
+    for m in methods:
+        if BLOCKAGE_CHOICES.get(m.name) is not m.choice:
+            raise ValueError(f"method {m.name!r} is not registered in tunnelred.inputs.methods")
+    missing = set(BLOCKAGE_CHOICES) - set(table)
+    if missing or len(table) != len(methods):
+        raise ValueError(f"blockage methods without one physics entry: {sorted(missing)}")
+    return table
+
+
+#: Every blockage method, by the name campaign.toml gives: the one table the reduction, the
+#: forward model, the report and the docs read.
+METHODS: dict[str, BlockageMethod] = _registry(
+    BlockageMethod(
+        BLOCKAGE_CHOICES["allen-vincenti"],
+        increments=_allen_vincenti,
+        drag_factor=_allen_vincenti_drag,
+        formula=(
+            "eps_sb = (pi^2/12)(d/h)^2; eps_wb = (d/(4h)) CD_u; eps = eps_sb + eps_wb; "
+            "q_c = q (1 + eps)^2; CD_c = CD_u (1 - 3 eps_sb - 2 eps_wb) "
+            "(Allen & Vincenti, NACA Report 782, 1944)"
+        ),
+        validity="a model spanning the section, d/h below about 0.3, thin (attached) wakes",
+    ),
+    BlockageMethod(
+        BLOCKAGE_CHOICES["maskell"],
+        increments=_maskell_2d,
+        drag_factor=_q_ratio_factor,
+        formula=(
+            "eps_sb = (pi^2/12)(d/h)^2; (1 + eps_wb)^2 = 1 + theta CD_u d/h, theta = 0.96; "
+            "q_c = q (1 + eps)^2; CD_c = CD_u q/q_c (Maskell, ARC R&M 3400, 1963, in 2-D form)"
+        ),
+        validity="a model spanning the section, separated wakes that do not reattach",
+    ),
+    BlockageMethod(
+        BLOCKAGE_CHOICES["maskell-3d"],
+        increments=_maskell_3d,
+        drag_factor=_q_ratio_factor,
+        formula=(
+            "q_c/q = 1 + theta CD_u S/C, theta = 5/2, S = d b, C = h w; eps = sqrt(q_c/q) - 1; "
+            "CD_c = CD_u q/q_c (Maskell, ARC R&M 3400, 1963)"
+        ),
+        validity="a bluff model of aspect ratio 1 to 10 not spanning the section, S/C up to 0.1",
+    ),
+    BlockageMethod(
+        BLOCKAGE_CHOICES["none"],
+        increments=_no_blockage,
+        drag_factor=_q_ratio_factor,
+        formula="no blockage correction: eps = 0",
+        validity="any model; the results are the tunnel's, not free air's",
+    ),
+)
+
+#: The formula text of each correction, the one place the report takes it from: the blockage
+#: methods' own and the two corrections that follow their own switches.
+METHOD_FORMULAS: dict[str, str] = {
+    **{name: m.formula for name, m in METHODS.items()},
+    "lift-interference": (
+        "sigma = (pi^2/48)(d/h)^2; the wall images of the bound vortex strain the stream at the "
+        "model and raise the lift at fixed circulation by (1 + 2 sigma): CL_c = CL_u (q/q_c)/(1 + "
+        "2 sigma); alpha unchanged (derived in tunnelred.physics.corrections.lift_interference_2d)"
+    ),
+    "buoyancy": (
+        "Delta CD_B = -(pi d/(2 q)) dp/dx (volume plus added mass of a circular cylinder, "
+        "Glauert, ARC R&M 1566), subtracted before the blockage scaling"
+    ),
+}
+
+
+def blockage_method(method: str | BlockageMethod) -> BlockageMethod:
+    """The registry entry of a method given by name (or the entry itself)."""
+    if isinstance(method, BlockageMethod):
+        return method
+    if method not in METHODS:
+        raise ValueError(f"blockage method must be one of {tuple(METHODS)}, not {method!r}")
+    return METHODS[method]
+
+
 @dataclass(frozen=True)
 class WallCorrection:
     """The size of the wall corrections for one run (floats, or arrays over a batch of draws).
@@ -365,40 +516,40 @@ class WallCorrection:
     buoyancy drag coefficient in the measurement, subtracted before the blockage scaling [-];
     ``delta_alpha_lift``: lift-interference change of the spin ratio [-] (zero in the 2-D
     derivation, see :func:`lift_interference_2d`); ``lift_curvature``: the fraction ``2 sigma``
-    by which the walls raise the lift [-]; ``method``: the blockage method's name.
+    by which the walls raise the lift [-]; ``method``: the blockage method applied.
     """
 
-    eps_solid: Any
-    eps_wake: Any
-    eps: Any
-    delta_CD_buoyancy: Any
-    delta_alpha_lift: Any
-    method: str
-    lift_curvature: Any = 0.0
+    eps_solid: Values
+    eps_wake: Values
+    eps: Values
+    delta_CD_buoyancy: Values
+    delta_alpha_lift: Values
+    method: BlockageMethod
+    lift_curvature: Values = 0.0
 
 
 def wall_correction(
-    method,
+    method: str | BlockageMethod,
     *,
-    diameter,
-    height,
-    span,
-    width,
-    drag_coefficient,
-    lift_coefficient,
-    dynamic_pressure,
-    static_pressure_gradient=0.0,
-    blockage_factor=None,
-    lift_interference=False,
-    buoyancy=True,
-    spans_section=True,
+    diameter: Values,
+    height: Values,
+    span: Values,
+    width: Values,
+    drag_coefficient: Values,
+    lift_coefficient: Values,
+    dynamic_pressure: Values,
+    static_pressure_gradient: Values = 0.0,
+    blockage_factor: float | None = None,
+    lift_interference: bool = False,
+    buoyancy: bool = True,
+    spans_section: bool = True,
 ) -> WallCorrection:
     """Work out the wall corrections of a run by the method named in campaign.toml.
 
     Parameters
     ----------
-    method : {"allen-vincenti", "maskell", "maskell-3d", "none"}
-        ``[reduction] blockage``.
+    method : BlockageMethod or str
+        The resolved ``[reduction] blockage``: an entry of :data:`METHODS` or its name.
     diameter, height, span, width : float or array_like
         Model diameter and span; test-section height (across which lift acts) and width. [m]
     drag_coefficient, lift_coefficient : float or array_like
@@ -424,19 +575,17 @@ def wall_correction(
     ------
     ValueError
         For an unknown method, a 2-D method or lift interference on a model that does not span
-        the section, or a blockage factor given to a method that has none.
+        the section, or a blockage factor given to a method that has none. (Configuration
+        resolves the method so that a reduction never meets the first two.)
 
     Notes
     -----
-    ``"allen-vincenti"``: :func:`solid_blockage_2d` plus :func:`wake_blockage_2d`.
-    ``"maskell"``: the same solid blockage (Maskell's theory, built on thin plates, has none)
-    plus Maskell's wake blockage in 2-D form. ``"maskell-3d"``: :func:`maskell_3d` with
-    ``S = d b``, ``C = h w`` as the whole blockage. ``"none"``: no blockage. Buoyancy and lift
+    The blockage is the method's own ``increments`` (see :data:`METHODS`). Buoyancy and lift
     interference follow their own switches whatever the blockage method.
 
     References
     ----------
-    See the functions named above.
+    See the functions named in :data:`METHODS`.
 
     Examples
     --------
@@ -445,14 +594,13 @@ def wall_correction(
     >>> round(wc.eps, 6)
     0.038225
     """
-    if method not in BLOCKAGE_METHODS:
-        raise ValueError(f"blockage method must be one of {BLOCKAGE_METHODS}, not {method!r}")
-    if blockage_factor is not None and method not in ("maskell", "maskell-3d"):
-        raise ValueError(f"a blockage factor applies to Maskell's methods, not to {method!r}")
-    if not spans_section and method in ("allen-vincenti", "maskell"):
+    entry = blockage_method(method)
+    if blockage_factor is not None and not entry.choice.takes_factor:
+        raise ValueError(f"a blockage factor applies to Maskell's methods, not to {entry.name!r}")
+    if not spans_section and not entry.fits_3d:
         raise ValueError(
-            f"{method!r} is a two-dimensional method; a model that does not span the section "
-            "needs 'maskell-3d'"
+            f"{entry.name!r} is a two-dimensional method; a model that does not span the section "
+            f"needs a three-dimensional one"
         )
     if not spans_section and lift_interference:
         raise ValueError("the lift-interference correction is two-dimensional only")
@@ -461,25 +609,10 @@ def wall_correction(
     ).shape
     zero = np.zeros(shape) if shape else 0.0
 
-    if method == "allen-vincenti" or method == "maskell":
-        eps_solid = solid_blockage_2d(diameter, height) + zero
-        eps_wake = (
-            wake_blockage_2d(
-                diameter, height, drag_coefficient, method=method, blockage_factor=blockage_factor
-            )
-            + zero
-        )
-    elif method == "maskell-3d":
-        eps_solid = zero
-        eps_wake = (
-            maskell_3d(
-                drag_coefficient, diameter * span, height * width, blockage_factor=blockage_factor
-            )
-            + zero
-        )
-    else:
-        eps_solid = zero
-        eps_wake = zero
+    geometry = Geometry(diameter, height, span, width)
+    eps_solid, eps_wake = entry.increments(geometry, drag_coefficient, blockage_factor)
+    eps_solid = eps_solid + zero
+    eps_wake = eps_wake + zero
 
     delta_cd = zero
     if buoyancy:
@@ -494,16 +627,9 @@ def wall_correction(
         eps=eps_solid + eps_wake,
         delta_CD_buoyancy=delta_cd,
         delta_alpha_lift=zero,
-        method=method,
+        method=entry,
         lift_curvature=lift_curvature,
     )
-
-
-def _drag_factor(corr: WallCorrection):
-    """The factor that turns a drag coefficient (buoyancy removed) into the corrected one."""
-    if corr.method == "allen-vincenti":
-        return 1.0 - 3.0 * corr.eps_solid - 2.0 * corr.eps_wake
-    return 1.0 / (1.0 + corr.eps) ** 2
 
 
 def apply_wall_correction(
@@ -583,7 +709,7 @@ def apply_wall_correction(
     speed = 1.0 + eps
     q_ratio = speed**-2
     lift_factor = q_ratio / (1.0 + corr.lift_curvature)
-    drag_factor = _drag_factor(corr)
+    drag_factor = corr.method.drag_factor(corr.eps_solid, corr.eps_wake)
     out = {
         "U": U * speed,
         "q": q * speed**2,
@@ -604,13 +730,19 @@ def apply_wall_correction(
     return out
 
 
-def correction_summary(method, *, lift_interference=False, buoyancy=True, blockage_factor=None):
+def correction_summary(
+    method: str | BlockageMethod,
+    *,
+    lift_interference: bool = False,
+    buoyancy: bool = True,
+    blockage_factor: float | None = None,
+) -> str:
     """The formulas a reduction used, as lines of text for the report.
 
     Parameters
     ----------
-    method : str
-        The blockage method's name.
+    method : BlockageMethod or str
+        The blockage method applied, or its name.
     lift_interference, buoyancy : bool
         Whether those corrections were on.
     blockage_factor : float, optional
@@ -619,15 +751,17 @@ def correction_summary(method, *, lift_interference=False, buoyancy=True, blocka
     Returns
     -------
     str
+        ``name: text`` lines: the blockage formula, its validity range, then the factor, lift
+        interference and buoyancy as they apply.
 
     Examples
     --------
     >>> print(correction_summary("none", buoyancy=False))
     blockage: no blockage correction: eps = 0
+    valid for: any model; the results are the tunnel's, not free air's
     """
-    if method not in BLOCKAGE_METHODS:
-        raise ValueError(f"blockage method must be one of {BLOCKAGE_METHODS}, not {method!r}")
-    lines = [f"blockage: {METHOD_FORMULAS[method]}"]
+    entry = blockage_method(method)
+    lines = [f"blockage: {entry.formula}", f"valid for: {entry.validity}"]
     if blockage_factor is not None:
         lines.append(f"Maskell's blockage factor set to theta = {blockage_factor:g}")
     if lift_interference:

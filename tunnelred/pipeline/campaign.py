@@ -71,6 +71,7 @@ class CampaignResults:
     flagged: int
     elapsed: float
     title: str = ""
+    notices: tuple[str, ...] = ()  # config's notices (campaign.toml), shown with the summary
 
     def _flagged_runs(self) -> list[tuple[str, str]]:
         if "flags" not in self.dataset:
@@ -117,6 +118,7 @@ class CampaignResults:
             lines.append(f"  outputs  {folder}: {', '.join(files)}")
         else:
             lines.append("  outputs  none written (no output folder given)")
+        lines += [f"  notice   {text}" for text in self.notices]
         return "\n".join(lines)
 
     def __str__(self) -> str:
@@ -712,7 +714,12 @@ def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run
         flagged=sum(1 for r in results if r.flags),
         elapsed=time.perf_counter() - started,
         title=campaign.config.campaign.title,
+        notices=tuple(_notice_text(p) for p in campaign.notices),
     )
+
+
+def _notice_text(notice: Problem) -> str:
+    return f"{notice.location()}: {notice.hint or notice.found}"
 
 
 def _methods(campaign, monte_carlo: int) -> dict:

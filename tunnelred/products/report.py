@@ -488,7 +488,7 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
         ["results created (UTC)", str(ds.attrs.get("created", ""))],
         ["campaign.toml SHA-256", str(ds.attrs.get("config_sha256", ""))],
         ["input files hashed", str(len(data.hashes))],
-        ["blockage method", str(methods.get("blockage", "–"))],
+        ["blockage method", _blockage_text(methods)],
         ["lift interference", _on_off(methods.get("lift_interference"))],
         ["buoyancy", _on_off(methods.get("buoyancy"))],
         ["uncertainty", str(methods.get("uncertainty", "GUM linear propagation"))],
@@ -613,11 +613,18 @@ def _conditions(b: _Builder, data: _Inputs) -> None:
     )
 
 
+def _blockage_text(methods: dict) -> str:
+    """The method applied, and what campaign.toml asked for when config substituted it."""
+    used = str(methods.get("blockage", "–"))
+    requested = methods.get("blockage_requested")
+    return f"{used} (campaign.toml: {requested})" if requested else used
+
+
 def _corrections(b: _Builder, data: _Inputs) -> None:
     b.section("Wall corrections")
     methods = data.methods
     method = methods.get("blockage")
-    if method in corrections.METHOD_FORMULAS:
+    if method in corrections.METHODS:
         summary = corrections.correction_summary(
             method,
             lift_interference=bool(methods.get("lift_interference")),

@@ -236,7 +236,9 @@ def _method_text(methods: dict) -> str:
 def campaign_methods(campaign) -> dict:
     """The correction methods and options of a campaign's [reduction] table, for provenance."""
     red = campaign.config.reduction
-    return {
+    methods = {
+        # The method the runs were corrected with (config resolved it once); what campaign.toml
+        # asked for is kept beside it only when the two differ.
         "blockage": red.blockage,
         "maskell_factor": red.maskell_factor,
         "lift_interference": red.lift_interference,
@@ -246,6 +248,9 @@ def campaign_methods(campaign) -> dict:
         "max_tap_gap": red.max_tap_gap,
         "tare_extrapolation": red.tare_extrapolation,
     }
+    if red.blockage_requested != red.blockage:
+        methods["blockage_requested"] = red.blockage_requested
+    return methods
 
 
 def _attrs(name: str, method: str) -> dict:
