@@ -8,6 +8,7 @@ of them rather than asserting the defaults themselves.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
@@ -21,66 +22,81 @@ T = Tolerances()
 RPM = 2 * math.pi / 60  # rad/s per rpm (exact)
 
 
+M = q.RunMeasures
+
+
+def _judge(name, **measures):
+    return q.judge(name, M(**measures), T)
+
+
 @pytest.mark.parametrize(
-    ("check", "bad", "clean", "tol", "quoted"),
+    ("check", "measure", "bad", "clean", "tol", "quoted"),
     [
-        (q.spin_scatter, 0.031, 0.019, T.spin_scatter, ("3.1 %", "2.0 %", "alpha(t)")),
-        (q.spin_scatter, -0.031, -0.019, T.spin_scatter, ("3.1 %",)),  # alpha < 0: |std/mean|
-        (q.spin_drift, -0.025, 0.015, T.spin_drift, ("2.5 %", "2.0 %")),
-        (q.speed_drift, 0.012, 0.009, T.speed_drift, ("1.2 %", "1.0 %")),
-        (q.temperature_drift, -0.7, 0.4, T.temperature_drift, ("0.70 K", "0.50 K")),
-        (q.stream_overlap, 0.90, 0.97, T.stream_overlap, ("90 %", "95 %")),
-        (q.few_revolutions, 12.0, 25.0, T.min_revolutions, ("12.0 revolutions", "20")),
+        ("spin_scatter", "spin_scatter", 0.031, 0.019, T.spin_scatter, ("3.1 %", "2.0 %", "(t)")),
+        ("spin_scatter", "spin_scatter", -0.031, -0.019, T.spin_scatter, ("3.1 %",)),  # |std/mean|
+        ("spin_drift", "spin_drift", -0.025, 0.015, T.spin_drift, ("2.5 %", "2.0 %")),
+        ("speed_drift", "speed_drift", 0.012, 0.009, T.speed_drift, ("1.2 %", "1.0 %")),
+        ("temperature_drift", "temperature_drift", -0.7, 0.4, T.temperature_drift, ("0.70 K",)),
+        ("stream_overlap", "stream_overlap", 0.90, 0.97, T.stream_overlap, ("90 %", "95 %")),
+        ("few_revolutions", "revolutions", 12.0, 25.0, T.min_revolutions, ("12.0 rev", "20")),
     ],
 )
-def test_scalar_checks(check, bad, clean, tol, quoted):
-    flag = check(bad, tol)
+def test_scalar_checks(check, measure, bad, clean, tol, quoted):
+    flag = _judge(check, **{measure: bad})
     assert isinstance(flag, Flag)
-    assert flag.name in FLAG_NAMES
+    assert flag.name == check and flag.name in FLAG_NAMES
     assert flag.tolerance == tol
     for text in quoted:
         assert text in flag.reason
-    assert check(clean, tol) is None
-    assert check(math.nan, tol) is None  # a measure the run does not have raises nothing
+    assert _judge(check, **{measure: clean}) is None
+    assert _judge(check, **{measure: math.nan}) is None  # a measure the run does not have
 
 
 def test_zero_shift_takes_the_worst_component():
-    flag = q.zero_shift([0.0005, -0.0031, 0.0010], T.zero_shift)
+    flag = _judge("zero_shift", zero_shift=(0.0005, -0.0031, 0.0010))
     assert flag.value == pytest.approx(0.0031)
     assert "0.31 %" in flag.reason and "(Fy)" in flag.reason and "0.20 %" in flag.reason
-    assert q.zero_shift([0.0005, -0.0019, 0.0010], T.zero_shift) is None
-    assert q.zero_shift(0.0025, T.zero_shift) is not None
+    assert _judge("zero_shift", zero_shift=(0.0005, -0.0019, 0.0010)) is None
+    assert _judge("zero_shift", zero_shift=(0.0025,)) is not None
+    assert _judge("zero_shift") is None  # one zero run: no shift measured
 
 
 def test_overload_takes_the_worst_component():
-    flag = q.overload(np.array([0.30, -0.93, 0.10]), T.overload)
+    flag = _judge("overload", overload=(0.30, -0.93, 0.10))
     assert flag.value == pytest.approx(0.93)
     assert "93 %" in flag.reason and "(Fy)" in flag.reason and "90 %" in flag.reason
-    assert q.overload([0.30, 0.85, 0.10], T.overload) is None
+    assert _judge("overload", overload=(0.30, 0.85, 0.10)) is None
+    assert _judge("overload", overload=(0.30, 0.90, 0.10)) is not None  # at the limit: raised
 
 
 def test_tare_extrapolated():
-    flag = q.tare_extrapolated(True, 1830 * RPM, (0.0, 1500 * RPM))
+    tare = dict(omega=1830 * RPM, tare_range=(0.0, 1500 * RPM))
+    flag = _judge("tare_extrapolated", tare_extrapolated=True, **tare)
     assert "1830 rpm" in flag.reason and "0 to 1500 rpm" in flag.reason
-    assert flag.value == pytest.approx(1830 * RPM) and flag.tolerance == pytest.approx(1500 * RPM)
-    assert q.tare_extrapolated(False, 1200 * RPM, (0.0, 1500 * RPM)) is None
+    assert _judge("tare_extrapolated", tare_extrapolated=False, **tare) is None
 
 
 def test_dead_tap():
-    flag = q.dead_tap({"tap07": "reads constant", "tap12": "departs 0.4 from neighbours"}, 0.15)
-    assert flag.value == 2
+    dead = {"tap07": "reads constant", "tap12": "departs 0.4 from neighbours"}
+    flag = _judge("dead_tap", dead_taps=dead)
+    assert flag.value == 2 and flag.tolerance == T.dead_tap
+    assert "2 taps excluded" in flag.reason
     assert "tap07 (reads constant)" in flag.reason and "tap12" in flag.reason
-    assert q.dead_tap({}, 0.15) is None
+    assert _judge("dead_tap", dead_taps={}) is None
+
+
+def _cl(cl_p=-1.38, r=0.0, **tolerances):
+    m = M(CL=-1.50, u_CL=0.04, CL_p=cl_p, u_CL_p=0.04, corr_CL_CL_p=r)
+    return q.judge("cl_disagreement", m, replace(T, **tolerances))
 
 
 def test_cl_disagreement_end_effect_allowance():
     # 0.12 apart with u(diff) = 0.04 * sqrt(2) = 0.0566: 2.1 u > k = 2 (JCGM 100:2008 eq. (16));
     # a stated 5 % allowance adds 0.075 to the limit 0.113 → 0.188, so it passes; 0.2 % adds only
     # 0.003 (limit 0.116 < 0.12), so it is still raised.
-    args = (-1.50, 0.04, -1.38, 0.04, 0.0, 2.0)
-    assert q.cl_disagreement(*args) is not None
-    assert q.cl_disagreement(*args, allowance=0.05) is None
-    flag = q.cl_disagreement(*args, allowance=0.002)
+    assert _cl() is not None
+    assert _cl(cl_agreement=0.05) is None
+    flag = _cl(cl_agreement=0.002)
     assert flag is not None and "end-effect allowance" in flag.reason
 
 
@@ -88,26 +104,54 @@ def test_cl_disagreement_uses_the_correlation():
     # u^2(CL - CL_p) = u1^2 + u2^2 - 2 r u1 u2 (JCGM 100:2008 eq. (16)). Difference 0.12 with
     # u1 = u2 = 0.04: r = 0 gives u = 0.0566 → 2.1 u > k = 2 (flag); r = -0.5 gives u = 0.0693
     # → 1.7 u (no flag); r = 0.8 gives u = 0.0253 → 4.7 u (flag).
-    k = T.agreement_k
-    flag = q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, 0.0, k)
+    flag = _cl()
     assert flag.value == pytest.approx(0.12 / math.sqrt(2 * 0.04**2), rel=1e-9)
     assert "-1.500" in flag.reason and "-1.380" in flag.reason and "k = 2" in flag.reason
-    assert q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, -0.5, k) is None
-    assert q.cl_disagreement(-1.50, 0.04, -1.38, 0.04, 0.8, k).value == pytest.approx(
-        0.12 / math.sqrt(2 * 0.04**2 * (1 - 0.8)), rel=1e-9
-    )
-    assert q.cl_disagreement(-1.50, 0.04, math.nan, 0.04, 0.0, k) is None
+    assert _cl(r=-0.5) is None
+    assert _cl(r=0.8).value == pytest.approx(0.12 / math.sqrt(2 * 0.04**2 * (1 - 0.8)), rel=1e-9)
+    assert _cl(cl_p=math.nan) is None
 
 
 def test_stagnation_cp_only_on_non_spinning_runs():
     # Cp = 1 at the front stagnation point of incompressible flow (Bernoulli; Anderson,
     # Fundamentals of Aerodynamics).
-    flag = q.stagnation_cp(0.0, 0.91, T.stagnation_cp)
+    flag = _judge("stagnation_cp", alpha=0.0, Cp_max=0.91)
     assert flag.value == pytest.approx(0.09) and "0.910" in flag.reason
-    assert q.stagnation_cp(0.0, 0.98, T.stagnation_cp) is None
-    assert q.stagnation_cp(-0.005, 1.08, T.stagnation_cp) is not None
-    assert q.stagnation_cp(q.STAGNATION_ALPHA, 0.5, T.stagnation_cp) is None
-    assert q.stagnation_cp(1.2, 0.5, T.stagnation_cp) is None
+    assert _judge("stagnation_cp", alpha=0.0, Cp_max=0.98) is None
+    assert _judge("stagnation_cp", alpha=-0.005, Cp_max=1.08) is not None
+    assert _judge("stagnation_cp", alpha=q.SPINNING_ALPHA, Cp_max=0.5) is None
+    assert _judge("stagnation_cp", alpha=1.2, Cp_max=0.5) is None
+
+
+def test_one_definition_of_spinning():
+    # The front stagnation point of potential flow sits at theta = asin(alpha/2) (Anderson,
+    # Fundamentals of Aerodynamics, §3.15): at the threshold it has moved less than a 5° bin.
+    assert math.degrees(math.asin(q.SPINNING_ALPHA / 2)) < 2.5
+    assert q.is_spinning(q.SPINNING_ALPHA) and q.is_spinning(-0.5)
+    assert not q.is_spinning(0.0) and not q.is_spinning(-0.999 * q.SPINNING_ALPHA)
+
+
+def test_a_misspelt_or_unknown_measure_is_an_error():
+    with pytest.raises(TypeError):
+        q.check_run({"spin_scater": 0.05}, T)  # misspelt: never a silently skipped check
+    with pytest.raises(TypeError):
+        M(spin_scater=0.05)
+    bad = q.Check("spin_scatter", "spin_scater", "spin_scatter", "above", "{value}")
+    with pytest.raises(ValueError, match="spin_scater"):
+        q._validate([bad])
+    bad = q.Check("spin_scatter", "spin_scatter", "spin_scatterr", "above", "{value}")
+    with pytest.raises(ValueError, match="Tolerances"):
+        q._validate([bad])
+    with pytest.raises(ValueError, match="twice"):
+        q._validate([q.CHECKS[0], q.CHECKS[0]])
+
+
+def test_the_table_is_the_list_of_flags():
+    assert FLAG_NAMES == tuple(c.name for c in q.CHECKS)
+    assert [c.name for c in q.CHECKS if c.scope == "campaign"] == ["repeat_disagreement"]
+    # Every tolerance a check names is one of campaign.toml's [reduction.tolerances].
+    tolerance_keys = {c.tolerance for c in q.CHECKS} - {None}
+    assert tolerance_keys <= set(vars(T))
 
 
 CLEAN = {
@@ -221,3 +265,41 @@ def test_repeat_disagreement_on_a_small_campaign():
     # Agreeing repeats: nothing raised; the run id may also be the index.
     df3 = df.assign(CL=[-1.20, -1.21, -1.22, -1.60, -2.00, -1.80]).set_index("run")
     assert q.repeat_disagreement(df3, T) == {}
+
+
+def test_repeat_disagreement_uses_each_configurations_tolerances(tmp_path):
+    # docs/input-format.md: [configurations.LABEL.tolerances] replace [reduction.tolerances] for
+    # that configuration's runs, the repeat check included. Configuration B allows k = 10.
+    from conftest import CAMPAIGN_TOML
+
+    from tunnelred.inputs.config import load_config
+
+    text = CAMPAIGN_TOML.replace(
+        'end_plate_diameter = "0.2 m"\n',
+        'end_plate_diameter = "0.2 m"\n\n[configurations.B.tolerances]\nagreement_k = 10.0\n',
+    )
+    (tmp_path / "campaign.toml").write_text(text, encoding="utf-8")
+    config, problems = load_config(tmp_path / "campaign.toml")
+    assert problems == []
+    # Each pair is 0.15 apart with u = 0.02 each: 5.3 combined u, above k = 2, below k = 10.
+    df = pd.DataFrame(
+        {
+            "run": ["a1", "a2", "b1", "b2"],
+            "config": ["A", "A", "B", "B"],
+            "speed_set": 20.0,
+            "spin_set": 600.0,
+            "CL": [-1.20, -1.35, -1.20, -1.35],
+            "u_CL": 0.02,
+        }
+    )
+    flags = q.repeat_disagreement(df, config.tolerances_for)
+    assert sorted(flags) == ["a1", "a2"]
+    assert flags["a1"].tolerance == 2.0 and "limit k = 2" in flags["a1"].reason
+    # The campaign engine passes the per-configuration tolerances.
+    from tunnelred.engine.reduction import RunResult
+    from tunnelred.pipeline.campaign import _repeat_flags
+
+    results = [RunResult(r.run, r.config, r._asdict()) for r in df.itertuples(index=False)]
+    campaign = type("C", (), {"config": config})()
+    flagged = {r.run for r in _repeat_flags(results, campaign) if r.flags}
+    assert flagged == {"a1", "a2"}

@@ -1,18 +1,25 @@
 """Run-quality flags: each check compares a measured value with a tolerance from campaign.toml.
 
-A flag never deletes a run; it travels with it into the results and the report. Every check is a
-small function that returns a :class:`Flag` when its tolerance is broken and None otherwise; a
-measure that is NaN (not available for this run) raises nothing. :func:`check_run` applies every
-per-run check whose measures are present, :func:`repeat_disagreement` compares repeated runs across
-a campaign, and :func:`flag_columns` lays the flags out as the ``flags`` and ``flag_<name>``
-result columns of docs/results.md.
+A flag never deletes a run; it travels with it into the results and the report. The checks are
+one table, :data:`CHECKS`: each :class:`Check` names its flag, the :class:`RunMeasures` attribute
+it judges, the :class:`~tunnelred.inputs.config.Tolerances` field it compares with, the direction
+of the comparison and the template of its reason. :func:`check_run` loops over the table for one
+run; :func:`repeat_disagreement` applies the one campaign-level entry across runs, and
+:func:`flag_columns` lays the flags out as the ``flags`` and ``flag_<name>`` result columns of
+docs/results.md. A measure that is NaN (not available for this run) raises nothing; a measure the
+table names that :class:`RunMeasures` does not have is an error when this module is imported,
+and a measure :class:`RunMeasures` is built with that it does not have is an error there.
+
+Adding a flag: a field of ``Tolerances`` (config), a field of ``RunMeasures`` filled by the
+reduction, and one entry of :data:`CHECKS` (DEVELOPERS.md, "Adding a quality flag").
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field, fields
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -21,49 +28,32 @@ from tunnelred.inputs.config import LOAD_NAMES, Tolerances
 
 __all__ = [
     "Flag",
+    "RunMeasures",
+    "Check",
+    "CHECKS",
     "FLAG_NAMES",
-    "STAGNATION_ALPHA",
-    "spin_scatter",
-    "spin_drift",
-    "speed_drift",
-    "temperature_drift",
-    "zero_shift",
-    "tare_extrapolated",
-    "overload",
-    "dead_tap",
-    "stream_overlap",
-    "few_revolutions",
-    "cl_disagreement",
-    "stagnation_cp",
-    "repeat_disagreement",
+    "SPINNING_ALPHA",
+    "is_spinning",
+    "judge",
     "check_run",
+    "repeat_disagreement",
     "flag_columns",
     "parse_flag_reasons",
 ]
 
-#: Every flag kind, in the order the report lists them (docs/results.md).
-FLAG_NAMES = (
-    "spin_scatter",
-    "spin_drift",
-    "speed_drift",
-    "temperature_drift",
-    "zero_shift",
-    "tare_extrapolated",
-    "overload",
-    "dead_tap",
-    "stream_overlap",
-    "few_revolutions",
-    "cl_disagreement",
-    "repeat_disagreement",
-    "stagnation_cp",
-)
-
-#: Largest |alpha| of a run treated as non-spinning by :func:`stagnation_cp` [-]. At |alpha| =
-#: 0.01 the potential-flow front stagnation point has moved only 0.3 deg from theta = 0, well
-#: inside a typical 5 deg bin, so the windward bin still holds the stagnation pressure.
-STAGNATION_ALPHA = 0.01
+#: The one definition of a spinning run: |alpha| at or above 0.01. Below it the potential-flow
+#: front stagnation point lies within 0.3 deg of theta = 0 (asin(alpha/2)), inside one azimuth
+#: bin, so the run is a model at rest for every purpose: its taps are read at their fixed
+#: azimuths rather than binned, its stagnation Cp is judged, and the steadiness of a spin ratio
+#: too small to divide by (std/mean of alpha) is not.
+SPINNING_ALPHA = 0.01
 
 _RPM = 60.0 / (2.0 * math.pi)  # rad/s → rpm, for reasons people read
+
+
+def is_spinning(alpha: float) -> bool:
+    """True when a run's mean spin ratio makes it a spinning run (:data:`SPINNING_ALPHA`)."""
+    return bool(abs(float(alpha)) >= SPINNING_ALPHA)
 
 
 @dataclass(frozen=True)
@@ -79,555 +69,329 @@ class Flag:
         return f"{self.name}: {self.reason}"
 
 
-def _exceeds(value: float, limit: float) -> bool:
-    """value > limit, False for a NaN value (a measure this run does not have)."""
-    return not math.isnan(value) and value > limit
+_NAN = math.nan
 
 
-def _relative_check(name: str, value: float, tolerance: float, what: str) -> Flag | None:
-    value = abs(float(value))
-    if not _exceeds(value, tolerance):
-        return None
-    return Flag(
-        name, value, tolerance, f"{what} {100 * value:.1f} % exceeds {100 * tolerance:.1f} %"
-    )
+@dataclass(frozen=True)
+class RunMeasures:
+    """What the quality checks of one run judge (units as in docs/results.md).
+
+    NaN (or empty) where the run has no such measure: a run without a balance log has no
+    ``overload``, a run at rest no ``spin_scatter``.
+    """
+
+    spin_scatter: float = _NAN  # std(alpha(t))/mean(alpha) [-], spinning runs only
+    spin_drift: float = _NAN  # change of alpha over the run / mean [-], spinning runs only
+    speed_drift: float = _NAN  # change of U over the run / mean [-]
+    temperature_drift: float = _NAN  # change of T over the run [K]
+    zero_shift: tuple[float, ...] = ()  # |pre − post zero| / full scale, per load [-]
+    overload: tuple[float, ...] = ()  # peak |load| / full scale, per load [-]
+    tare_extrapolated: bool = False
+    omega: float = _NAN  # mean spin rate [rad/s]
+    tare_range: tuple[float, float] = (_NAN, _NAN)  # spin rates of the tare runs used [rad/s]
+    dead_taps: Mapping[str, str] = field(default_factory=dict)  # tap → why it was excluded
+    stream_overlap: float = _NAN  # fraction of the run every stream covers [-]
+    revolutions: float = _NAN  # revolutions in the pressure record of a spinning run [-]
+    CL: float = _NAN  # balance lift coefficient and its u [-]
+    u_CL: float = _NAN
+    CL_p: float = _NAN  # pressure-integrated lift coefficient and its u [-]
+    u_CL_p: float = _NAN
+    corr_CL_CL_p: float = 0.0  # their correlation coefficient [-]
+    alpha: float = _NAN  # spin ratio (corrected) [-]
+    Cp_max: float = _NAN  # largest binned Cp [-]
+    pressure_gap: str = ""  # why the pressure forces were left out, if they were
+
+    # -- measures derived from the fields above, judged by the table like the fields
+
+    @property
+    def dead_tap_count(self) -> float:
+        return float(len(self.dead_taps))
+
+    @property
+    def dead_tap_list(self) -> str:
+        n = len(self.dead_taps)
+        listed = "; ".join(f"{tap} ({why})" for tap, why in self.dead_taps.items())
+        return f"{n} tap{'s' if n > 1 else ''} excluded from the integration: {listed}"
+
+    @property
+    def cl_difference(self) -> float:
+        return abs(self.CL - self.CL_p)
+
+    @property
+    def u_cl_difference(self) -> float:
+        """u(CL − CL_p) = √(u²(CL) + u²(CL_p) − 2 r u(CL) u(CL_p)) (JCGM 100:2008 eq. (16))."""
+        var = self.u_CL**2 + self.u_CL_p**2 - 2.0 * self.corr_CL_CL_p * self.u_CL * self.u_CL_p
+        return math.sqrt(max(var, 0.0)) if not math.isnan(var) else _NAN
+
+    @property
+    def cl_difference_ratio(self) -> float:
+        """|CL − CL_p| / u(CL − CL_p): the E_n number of the pair with k = 1."""
+        diff, u = self.cl_difference, self.u_cl_difference
+        if math.isnan(diff) or math.isnan(u):
+            return _NAN
+        return diff / u if u > 0 else (math.inf if diff > 0 else 0.0)
+
+    @property
+    def stagnation_miss(self) -> float:
+        """|Cp_max − 1| of a run at rest; NaN for a spinning run (:func:`is_spinning`)."""
+        if math.isnan(self.alpha) or is_spinning(self.alpha):
+            return _NAN
+        return abs(self.Cp_max - 1.0)
+
+    @property
+    def omega_rpm(self) -> float:
+        return self.omega * _RPM
+
+    @property
+    def tare_low_rpm(self) -> float:
+        return min(self.tare_range) * _RPM
+
+    @property
+    def tare_high_rpm(self) -> float:
+        return max(self.tare_range) * _RPM
 
 
-def spin_scatter(scatter: float, tolerance: float) -> Flag | None:
-    """Flag an unsteady spin ratio.
+Direction = Literal["above", "at_least", "below", "raised"]
 
-    Parameters
+
+@dataclass(frozen=True)
+class Check:
+    """One quality flag: what it judges, against which tolerance, and how it says why.
+
+    Attributes
     ----------
-    scatter : float
-        std(alpha(t)) / mean(alpha) over the run (its absolute value is judged). [-]
-    tolerance : float
-        Largest accepted scatter (``Tolerances.spin_scatter``). [-]
+    name : str
+        The flag's name (``flag_<name>`` in the results).
+    measure : str
+        The :class:`RunMeasures` attribute judged (a field or a derived property); for the
+        campaign-level entry, the quantity :func:`repeat_disagreement` works out across runs.
+    tolerance : str or None
+        The ``Tolerances`` field it is compared with (per configuration); None: no tolerance.
+    direction : {"above", "at_least", "below", "raised"}
+        Raised when ``|measure| > tolerance``, ``|measure| >= tolerance``, ``measure <
+        tolerance``, or when the measure is true (non-zero) whatever the tolerance.
+    reason : str
+        :meth:`str.format` template of the reason: ``{value}`` and ``{tolerance}`` (``{pct}``
+        and ``{tol_pct}`` the same in per cent), ``{which}`` the load component of a per-load
+        measure (" (Fy)"), ``{m}`` the RunMeasures and ``{t}`` the Tolerances.
+    scope : {"run", "campaign"}
+        "run": judged by :func:`check_run`; "campaign": by :func:`repeat_disagreement`.
+    limit : callable, optional
+        ``limit(measures, tolerances) -> float`` when the limit is not the tolerance alone
+        (``cl_disagreement`` widens k by the end-effect allowance).
+    """
 
-    Returns
-    -------
-    Flag or None
+    name: str
+    measure: str
+    tolerance: str | None
+    direction: Direction
+    reason: str
+    scope: Literal["run", "campaign"] = "run"
+    limit: Callable[[RunMeasures, Tolerances], float] | None = None
 
-    Notes
-    -----
-    Raised when |scatter| > tolerance. A run whose spin ratio wanders cannot be placed on a
-    coefficient-versus-alpha curve at one abscissa (common practice).
 
-    References
-    ----------
-    .. [1] JCGM 100:2008, GUM, §4.2 (the experimental standard deviation of observations).
+def _cl_limit(m: RunMeasures, t: Tolerances) -> float:
+    """k, widened by the end-effect allowance |CL| cl_agreement expressed in units of u."""
+    u = m.u_cl_difference
+    allowed = t.cl_agreement * abs(m.CL)
+    if u > 0:
+        return t.agreement_k + allowed / u
+    return math.inf if m.cl_difference <= allowed else t.agreement_k
+
+
+#: Every quality flag, in the order the results and the report list them (docs/methods.md,
+#: "Quality flags", gives each one's rationale and source).
+CHECKS: tuple[Check, ...] = (
+    Check(
+        "spin_scatter",
+        "spin_scatter",
+        "spin_scatter",
+        "above",
+        "spin ratio scatter {pct:.1f} % exceeds {tol_pct:.1f} % (std/mean of alpha(t))",
+    ),
+    Check(
+        "spin_drift",
+        "spin_drift",
+        "spin_drift",
+        "above",
+        "spin ratio drift {pct:.1f} % exceeds {tol_pct:.1f} % over the run",
+    ),
+    Check(
+        "speed_drift",
+        "speed_drift",
+        "speed_drift",
+        "above",
+        "tunnel speed drift {pct:.1f} % exceeds {tol_pct:.1f} % over the run",
+    ),
+    Check(
+        "temperature_drift",
+        "temperature_drift",
+        "temperature_drift",
+        "above",
+        "air temperature drift {value:.2f} K exceeds {tolerance:.2f} K over the run",
+    ),
+    Check(
+        "zero_shift",
+        "zero_shift",
+        "zero_shift",
+        "above",
+        "zero shift {pct:.2f} % of full scale{which} exceeds {tol_pct:.2f} % "
+        "between the pre- and post-run zeros",
+    ),
+    Check(
+        "tare_extrapolated",
+        "tare_extrapolated",
+        None,
+        "raised",
+        "spin rate {m.omega_rpm:.0f} rpm lies outside the tare runs' {m.tare_low_rpm:.0f} to "
+        "{m.tare_high_rpm:.0f} rpm: tare extrapolated",
+    ),
+    Check(
+        "overload",
+        "overload",
+        "overload",
+        "at_least",
+        "load reached {pct:.0f} % of full scale{which}, limit {tol_pct:.0f} %",
+    ),
+    Check("dead_tap", "dead_tap_count", "dead_tap", "raised", "{m.dead_tap_list}"),
+    Check(
+        "stream_overlap",
+        "stream_overlap",
+        "stream_overlap",
+        "below",
+        "the streams overlap over {pct:.0f} % of the run, less than {tol_pct:.0f} %",
+    ),
+    Check(
+        "few_revolutions",
+        "revolutions",
+        "min_revolutions",
+        "below",
+        "{value:.1f} revolutions in the pressure record, fewer than the {tolerance:g} "
+        "phase binning needs",
+    ),
+    Check(
+        "cl_disagreement",
+        "cl_difference_ratio",
+        "agreement_k",
+        "above",
+        "balance CL {m.CL:.3f} vs pressure CL_p {m.CL_p:.3f}: {m.cl_difference:.3f} apart, "
+        "{value:.1f} × combined u {m.u_cl_difference:.3f} > k = {tolerance:g} plus the "
+        "{t.cl_agreement:.0%} end-effect allowance",
+        limit=_cl_limit,
+    ),
+    Check(
+        "repeat_disagreement",
+        "repeat_ratio",
+        "agreement_k",
+        "above",
+        "{coefficient} {x:.3f} ± {u:.3f} disagrees with repeat run {other} ({coefficient} "
+        "{x_other:.3f} ± {u_other:.3f}): difference {difference:.3f} is {value:.1f} times the "
+        "combined u (limit k = {tolerance:g})",
+        scope="campaign",
+    ),
+    Check(
+        "stagnation_cp",
+        "stagnation_miss",
+        "stagnation_cp",
+        "above",
+        "alpha = {m.alpha:.3f} run: Cp_max {m.Cp_max:.3f} differs from 1 by {value:.3f}, "
+        "more than {tolerance:.3f}",
+    ),
+)
+
+
+def _validate(checks: Sequence[Check]) -> dict[str, Check]:
+    """The table by name; a measure or tolerance it names that does not exist is an error."""
+    measures = {f.name for f in fields(RunMeasures)}
+    measures |= {k for k, v in vars(RunMeasures).items() if isinstance(v, property)}
+    tolerances = {f.name for f in fields(Tolerances)}
+    by_name: dict[str, Check] = {}
+    for c in checks:
+        if c.name in by_name:
+            raise ValueError(f"quality check {c.name!r} is in the table twice")
+        if c.scope == "run" and c.measure not in measures:
+            raise ValueError(f"quality check {c.name!r} judges {c.measure!r}, not a RunMeasures")
+        if c.tolerance is not None and c.tolerance not in tolerances:
+            raise ValueError(f"quality check {c.name!r}: {c.tolerance!r} is not a Tolerances field")
+        if c.direction not in ("above", "at_least", "below", "raised"):
+            raise ValueError(f"quality check {c.name!r}: unknown direction {c.direction!r}")
+        by_name[c.name] = c
+    return by_name
+
+
+_BY_NAME = _validate(CHECKS)
+
+#: Every flag kind, in the order the report lists them (docs/results.md).
+FLAG_NAMES: tuple[str, ...] = tuple(c.name for c in CHECKS)
+
+
+def _worst(value: object) -> tuple[float, str]:
+    """The judged value of a measure: itself, or the largest |component| and its load name."""
+    if isinstance(value, (tuple, list, np.ndarray)):
+        arr = np.abs(np.asarray(value, dtype=float).reshape(-1))
+        if arr.size == 0 or np.all(np.isnan(arr)):
+            return _NAN, ""
+        k = int(np.nanargmax(arr))
+        if arr.size == 1:
+            return float(arr[k]), ""
+        names = LOAD_NAMES if len(LOAD_NAMES) == arr.size else None
+        return float(arr[k]), f" ({names[k]})" if names else f" (component {k})"
+    return float(value), ""
+
+
+def _raised(direction: Direction, value: float, limit: float) -> bool:
+    if math.isnan(value):
+        return False
+    if direction == "above":
+        return abs(value) > limit
+    if direction == "at_least":
+        return abs(value) >= limit
+    if direction == "below":
+        return value < limit
+    return value != 0
+
+
+def judge(check: Check | str, measures: RunMeasures, tolerances: Tolerances) -> Flag | None:
+    """One per-run check of :data:`CHECKS` on one run's measures: its Flag, or None.
 
     Examples
     --------
-    >>> print(spin_scatter(0.031, 0.02).reason)
+    >>> print(judge("spin_scatter", RunMeasures(spin_scatter=0.031), Tolerances()).reason)
     spin ratio scatter 3.1 % exceeds 2.0 % (std/mean of alpha(t))
-    >>> spin_scatter(0.01, 0.02) is None
+    >>> judge("spin_scatter", RunMeasures(spin_scatter=0.01), Tolerances()) is None
     True
     """
-    flag = _relative_check("spin_scatter", scatter, tolerance, "spin ratio scatter")
-    if flag is None:
+    c = _BY_NAME[check] if isinstance(check, str) else check
+    if c.scope != "run":
+        raise ValueError(f"{c.name!r} is judged across runs (repeat_disagreement)")
+    value, which = _worst(getattr(measures, c.measure))
+    tolerance = float(getattr(tolerances, c.tolerance)) if c.tolerance else 0.0
+    limit = c.limit(measures, tolerances) if c.limit is not None else tolerance
+    if not _raised(c.direction, value, limit):
         return None
-    return Flag(flag.name, flag.value, flag.tolerance, flag.reason + " (std/mean of alpha(t))")
-
-
-def spin_drift(drift: float, tolerance: float) -> Flag | None:
-    """Flag a spin ratio that drifts over the run.
-
-    Parameters
-    ----------
-    drift : float
-        Change of alpha over the run relative to its mean (absolute value judged). [-]
-    tolerance : float
-        Largest accepted drift (``Tolerances.spin_drift``). [-]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when |drift| > tolerance (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] (definition of the measure).
-
-    Examples
-    --------
-    >>> print(spin_drift(-0.035, 0.02).reason)
-    spin ratio drift 3.5 % exceeds 2.0 % over the run
-    """
-    flag = _relative_check("spin_drift", drift, tolerance, "spin ratio drift")
-    if flag is None:
-        return None
-    return Flag(flag.name, flag.value, flag.tolerance, flag.reason + " over the run")
-
-
-def speed_drift(drift: float, tolerance: float) -> Flag | None:
-    """Flag a tunnel speed that drifts over the run.
-
-    Parameters
-    ----------
-    drift : float
-        Change of U over the run relative to its mean (absolute value judged). [-]
-    tolerance : float
-        Largest accepted drift (``Tolerances.speed_drift``). [-]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when |drift| > tolerance (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] (definition of the measure).
-
-    Examples
-    --------
-    >>> print(speed_drift(0.014, 0.01).reason)
-    tunnel speed drift 1.4 % exceeds 1.0 % over the run
-    """
-    flag = _relative_check("speed_drift", drift, tolerance, "tunnel speed drift")
-    if flag is None:
-        return None
-    return Flag(flag.name, flag.value, flag.tolerance, flag.reason + " over the run")
-
-
-def temperature_drift(drift: float, tolerance: float) -> Flag | None:
-    """Flag an air temperature that drifts over the run.
-
-    Parameters
-    ----------
-    drift : float
-        Change of T over the run (absolute value judged). [K]
-    tolerance : float
-        Largest accepted change (``Tolerances.temperature_drift``). [K]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when |drift| > tolerance. A warming tunnel changes density and viscosity during the
-    run and shifts strain-gauge zeros (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] (definition of the measure).
-
-    Examples
-    --------
-    >>> print(temperature_drift(0.8, 0.5).reason)
-    air temperature drift 0.80 K exceeds 0.50 K over the run
-    """
-    drift = abs(float(drift))
-    if not _exceeds(drift, tolerance):
-        return None
-    reason = f"air temperature drift {drift:.2f} K exceeds {tolerance:.2f} K over the run"
-    return Flag("temperature_drift", drift, tolerance, reason)
-
-
-def _worst(fractions: float | Sequence[float], names: Sequence[str] | None) -> tuple[float, str]:
-    """Largest |fraction| and, for a vector, the name of its component (" (Fy)")."""
-    arr = np.abs(np.atleast_1d(np.asarray(fractions, dtype=float)))
-    if arr.size == 0 or np.all(np.isnan(arr)):
-        return math.nan, ""
-    k = int(np.nanargmax(arr))
-    if arr.size == 1:
-        return float(arr[k]), ""
-    names = names if names is not None and len(names) == arr.size else None
-    return float(arr[k]), f" ({names[k]})" if names else f" (component {k})"
-
-
-def zero_shift(
-    shift: float | Sequence[float], tolerance: float, *, names: Sequence[str] | None = LOAD_NAMES
-) -> Flag | None:
-    """Flag a balance whose wind-off zero moved between the pre- and post-run zero runs.
-
-    Parameters
-    ----------
-    shift : float or sequence of float
-        Zero difference as a fraction of full scale, one per load component (or their maximum);
-        the largest absolute value is judged. [-]
-    tolerance : float
-        Largest accepted shift (``Tolerances.zero_shift``). [-]
-    names : sequence of str, optional
-        Component names, to say which one shifted most (default Fx, Fy, Mz).
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when max_i |Δzero_i / full_scale_i| > tolerance. The drift-interpolated zero assumes a
-    linear drift between the two zero runs; a large shift makes that assumption doubtful
-    (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] (definition of the measure).
-
-    Examples
-    --------
-    >>> print(zero_shift([0.0005, -0.0031, 0.001], 0.002).reason)
-    zero shift 0.31 % of full scale (Fy) exceeds 0.20 % between the pre- and post-run zeros
-    """
-    worst, which = _worst(shift, names)
-    if not _exceeds(worst, tolerance):
-        return None
-    reason = (
-        f"zero shift {100 * worst:.2f} % of full scale{which} exceeds {100 * tolerance:.2f} % "
-        "between the pre- and post-run zeros"
+    shown = value if c.direction == "below" else abs(value)
+    reason = c.reason.format(
+        value=shown,
+        tolerance=tolerance,
+        pct=100.0 * shown,
+        tol_pct=100.0 * tolerance,
+        which=which,
+        m=measures,
+        t=tolerances,
     )
-    return Flag("zero_shift", worst, tolerance, reason)
+    return Flag(c.name, shown, tolerance, reason)
 
 
-def tare_extrapolated(
-    extrapolated: bool, omega: float, tare_range: tuple[float, float]
-) -> Flag | None:
-    """Flag a run whose spin tare was extrapolated beyond the spin rates of its tare runs.
+def check_run(measures: RunMeasures | Mapping[str, object], tolerances: Tolerances) -> list[Flag]:
+    """Apply every per-run check of :data:`CHECKS` to one run.
 
     Parameters
     ----------
-    extrapolated : bool
-        Whether the balance module had to extrapolate the tare.
-    omega : float
-        The run's mean spin rate (signed). [rad/s]
-    tare_range : tuple of float
-        Lowest and highest spin rate of the tare runs used. [rad/s]
-
-    Returns
-    -------
-    Flag or None
-        ``value`` is ``omega`` and ``tolerance`` the nearer end of ``tare_range`` [rad/s]; the
-        reason quotes them in rpm.
-
-    Notes
-    -----
-    Spin tares (aerodynamic and bearing loads of the spinning model, wind off) grow roughly with
-    ω²; outside the tare runs' range the interpolation becomes an extrapolation whose error is
-    not bounded by the tare data (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction] tare_extrapolation.
-
-    Examples
-    --------
-    >>> rpm = 2 * 3.141592653589793 / 60
-    >>> print(tare_extrapolated(True, 1830 * rpm, (0.0, 1500 * rpm)).reason)
-    spin rate 1830 rpm lies outside the tare runs' 0 to 1500 rpm: tare extrapolated
-    """
-    if not extrapolated:
-        return None
-    low, high = sorted(float(v) for v in tare_range)
-    nearer = low if abs(omega - low) < abs(omega - high) else high
-    if math.isnan(omega) or math.isnan(low) or math.isnan(high):
-        return Flag("tare_extrapolated", omega, nearer, "tare extrapolated beyond its tare runs")
-    reason = (
-        f"spin rate {omega * _RPM:.0f} rpm lies outside the tare runs' {low * _RPM:.0f} to "
-        f"{high * _RPM:.0f} rpm: tare extrapolated"
-    )
-    return Flag("tare_extrapolated", float(omega), nearer, reason)
-
-
-def overload(
-    fraction: float | Sequence[float], tolerance: float, *, names: Sequence[str] | None = LOAD_NAMES
-) -> Flag | None:
-    """Flag a balance load that came near or past its full scale.
-
-    Parameters
-    ----------
-    fraction : float or sequence of float
-        Peak |load| / full scale during the run, one per component (or their maximum). [-]
-    tolerance : float
-        Largest accepted fraction (``Tolerances.overload``). [-]
-    names : sequence of str, optional
-        Component names (default Fx, Fy, Mz).
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when max_i |peak_i / full_scale_i| ≥ tolerance: a calibration holds only within the
-    loads it was made over (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] (definition of the measure).
-
-    Examples
-    --------
-    >>> print(overload([0.2, 0.94, 0.1], 0.9).reason)
-    load reached 94 % of full scale (Fy), limit 90 %
-    """
-    worst, which = _worst(fraction, names)
-    if math.isnan(worst) or worst < tolerance:
-        return None
-    reason = f"load reached {100 * worst:.0f} % of full scale{which}, limit {100 * tolerance:.0f} %"
-    return Flag("overload", worst, tolerance, reason)
-
-
-def dead_tap(dead_taps: Mapping[str, str], tolerance: float) -> Flag | None:
-    """Flag a pressure run from which taps were excluded.
-
-    Parameters
-    ----------
-    dead_taps : dict of str to str
-        Tap name → why the pressure module excluded it.
-    tolerance : float
-        The |Cp_tap − Cp_neighbours| threshold the pressure module applied
-        (``Tolerances.dead_tap``), recorded with the flag. [-]
-
-    Returns
-    -------
-    Flag or None
-        ``value`` is the number of dead taps.
-
-    Notes
-    -----
-    Raised when any tap was excluded. The surface integral ∮Cp then bridges the gap by
-    interpolation, which may bias CL_p and CD_p (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] dead_tap.
-
-    Examples
-    --------
-    >>> print(dead_tap({"tap07": "reads constant"}, 0.15).reason)
-    1 tap excluded from the integration: tap07 (reads constant)
-    """
-    if not dead_taps:
-        return None
-    n = len(dead_taps)
-    listed = "; ".join(f"{tap} ({why})" for tap, why in dead_taps.items())
-    reason = f"{n} tap{'s' if n > 1 else ''} excluded from the integration: {listed}"
-    return Flag("dead_tap", float(n), tolerance, reason)
-
-
-def stream_overlap(fraction: float, tolerance: float) -> Flag | None:
-    """Flag a run whose logs (balance, pressure, tunnel) cover too little common time.
-
-    Parameters
-    ----------
-    fraction : float
-        Fraction of the run covered by every stream. [-]
-    tolerance : float
-        Smallest accepted fraction (``Tolerances.stream_overlap``). [-]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when fraction < tolerance (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] stream_overlap.
-
-    Examples
-    --------
-    >>> print(stream_overlap(0.91, 0.95).reason)
-    the streams overlap over 91 % of the run, less than 95 %
-    """
-    fraction = float(fraction)
-    if math.isnan(fraction) or fraction >= tolerance:
-        return None
-    reason = (
-        f"the streams overlap over {100 * fraction:.0f} % of the run, less than "
-        f"{100 * tolerance:.0f} %"
-    )
-    return Flag("stream_overlap", fraction, tolerance, reason)
-
-
-def few_revolutions(revolutions: float, minimum: float) -> Flag | None:
-    """Flag a spinning pressure run too short for phase binning.
-
-    Parameters
-    ----------
-    revolutions : float
-        Revolutions of the model during the pressure record. [-]
-    minimum : float
-        Fewest accepted (``Tolerances.min_revolutions``). [-]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    Raised when revolutions < minimum: each azimuth bin averages one pass per revolution, so
-    few revolutions leave few, correlated samples per bin (common practice).
-
-    References
-    ----------
-    .. [1] tunnelred docs/input-format.md, [reduction.tolerances] min_revolutions.
-
-    Examples
-    --------
-    >>> print(few_revolutions(12.4, 20).reason)
-    12.4 revolutions in the pressure record, fewer than the 20 phase binning needs
-    """
-    revolutions = float(revolutions)
-    if math.isnan(revolutions) or revolutions >= minimum:
-        return None
-    reason = (
-        f"{revolutions:.1f} revolutions in the pressure record, fewer than the {minimum:g} "
-        "phase binning needs"
-    )
-    return Flag("few_revolutions", revolutions, float(minimum), reason)
-
-
-def cl_disagreement(
-    CL: float,
-    u_CL: float,
-    CL_p: float,
-    u_CL_p: float,
-    correlation: float,
-    k: float,
-    *,
-    allowance: float = 0.0,
-) -> Flag | None:
-    """Flag a balance lift coefficient that disagrees with the pressure-integrated one.
-
-    Parameters
-    ----------
-    CL : float
-        Lift coefficient from the balance. [-]
-    u_CL : float
-        Its standard uncertainty. [-]
-    CL_p : float
-        Lift coefficient from ∮Cp at mid-span. [-]
-    u_CL_p : float
-        Its standard uncertainty. [-]
-    correlation : float
-        Correlation coefficient r(CL, CL_p), from the shared q, geometry and corrections. [-]
-    k : float
-        Coverage factor of the test (``Tolerances.agreement_k``). [-]
-    allowance : float, optional
-        Relative difference |CL − CL_p| / |CL| that end effects are expected to make
-        (``Tolerances.cl_agreement``, per configuration), allowed on top of k u. [-]
-
-    Returns
-    -------
-    Flag or None
-        ``value`` is the normalised difference |CL − CL_p| / u(CL − CL_p); ``tolerance`` is k.
-
-    Notes
-    -----
-    u²(CL − CL_p) = u²(CL) + u²(CL_p) − 2 r u(CL) u(CL_p) (JCGM 100:2008 eq. (16) for a
-    difference); raised when |CL − CL_p| > k u(CL − CL_p) + allowance·|CL|, the E_n criterion of
-    proficiency testing with expanded uncertainties U = k u, widened by the stated allowance. The
-    balance integrates over the span, the taps see mid-span only, so end effects alone can trip it
-    on a model without end plates: state the expected difference there as the allowance.
-
-    References
-    ----------
-    .. [1] JCGM 100:2008, GUM, §5.2.2, eq. (16).
-    .. [2] ISO 13528:2022, Statistical methods for use in proficiency testing by interlaboratory
-       comparison (E_n numbers).
-
-    Examples
-    --------
-    >>> print(cl_disagreement(-1.92, 0.05, -1.71, 0.06, 0.0, 2.0).reason)
-    balance CL -1.920 vs pressure CL_p -1.710: 0.210 apart, 2.7 × combined u 0.078 > k = 2
-    """
-    diff = float(CL) - float(CL_p)
-    var = u_CL**2 + u_CL_p**2 - 2.0 * correlation * u_CL * u_CL_p
-    u_diff = math.sqrt(max(var, 0.0))
-    if math.isnan(diff) or math.isnan(u_diff):
-        return None
-    allowed = allowance * abs(float(CL))
-    if abs(diff) <= k * u_diff + allowed:
-        return None
-    ratio = abs(diff) / u_diff if u_diff > 0 else math.inf
-    reason = (
-        f"balance CL {CL:.3f} vs pressure CL_p {CL_p:.3f}: {abs(diff):.3f} apart, "
-        f"{ratio:.1f} × combined u {u_diff:.3f} > k = {k:g}"
-    )
-    if allowance:
-        reason += f" plus the {allowance:.0%} end-effect allowance"
-    return Flag("cl_disagreement", ratio, float(k), reason)
-
-
-def stagnation_cp(
-    alpha: float, Cp_max: float, tolerance: float, *, alpha_max: float = STAGNATION_ALPHA
-) -> Flag | None:
-    """Flag a non-spinning pressure run whose peak Cp is not the stagnation value 1.
-
-    Parameters
-    ----------
-    alpha : float
-        The run's spin ratio; runs with |alpha| ≥ ``alpha_max`` are not judged. [-]
-    Cp_max : float
-        Largest binned Cp of the run. [-]
-    tolerance : float
-        Largest accepted |Cp_max − 1| (``Tolerances.stagnation_cp``). [-]
-    alpha_max : float
-        Largest |alpha| treated as non-spinning. [-]
-
-    Returns
-    -------
-    Flag or None
-
-    Notes
-    -----
-    At the front stagnation point of a cylinder the pressure coefficient is 1 (Bernoulli on the
-    stagnation streamline), whatever the Reynolds number. A peak far from 1 on a non-spinning run
-    points at the reference pressures (q, static), a tap azimuth offset or a leak (common
-    practice). Raised when |alpha| < alpha_max and |Cp_max − 1| > tolerance.
-
-    References
-    ----------
-    .. [1] J. D. Anderson, Fundamentals of Aerodynamics, McGraw-Hill (stagnation pressure
-       coefficient Cp = 1 of incompressible flow).
-
-    Examples
-    --------
-    >>> print(stagnation_cp(0.0, 0.91, 0.05).reason)
-    alpha = 0.000 run: Cp_max 0.910 differs from 1 by 0.090, more than 0.050
-    >>> stagnation_cp(1.5, 0.5, 0.05) is None
-    True
-    """
-    if not abs(float(alpha)) < alpha_max:
-        return None
-    miss = abs(float(Cp_max) - 1.0)
-    if not _exceeds(miss, tolerance):
-        return None
-    reason = (
-        f"alpha = {alpha:.3f} run: Cp_max {Cp_max:.3f} differs from 1 by {miss:.3f}, "
-        f"more than {tolerance:.3f}"
-    )
-    return Flag("stagnation_cp", miss, tolerance, reason)
-
-
-def check_run(measures: Mapping[str, object], tolerances: Tolerances) -> list[Flag]:
-    """Apply every per-run check whose measures are present.
-
-    Parameters
-    ----------
-    measures : dict
-        Measured values of one run; a missing key skips its check. Keys (units as in
-        docs/results.md):
-
-        ``spin_scatter``, ``spin_drift``, ``speed_drift`` [-]; ``temperature_drift`` [K];
-        ``zero_shift`` [-] (float or one per load component); ``tare_extrapolated`` (bool), with
-        ``omega`` [rad/s] and ``tare_range`` (low, high) [rad/s] for its reason (NaN if absent);
-        ``overload`` [-] (float or one per load component); ``dead_taps`` (dict tap → reason);
-        ``stream_overlap`` [-]; ``revolutions`` [-]; ``CL``, ``u_CL``, ``CL_p``, ``u_CL_p`` [-]
-        and ``corr_CL_CL_p`` [-] (taken as 0 when absent) for the balance/pressure agreement;
-        ``alpha`` and ``Cp_max`` [-] for the stagnation check.
+    measures : RunMeasures or dict
+        Measured values of one run; a dict is turned into RunMeasures, so a key that is not a
+        measure is an error (TypeError), never a silently skipped check.
     tolerances : Tolerances
-        From ``[reduction.tolerances]``.
+        Those of the run's configuration (``CampaignConfig.tolerances_for``).
 
     Returns
     -------
@@ -636,58 +400,19 @@ def check_run(measures: Mapping[str, object], tolerances: Tolerances) -> list[Fl
 
     Examples
     --------
-    >>> flags = check_run({"spin_scatter": 0.05, "revolutions": 40}, Tolerances())
+    >>> flags = check_run(RunMeasures(spin_scatter=0.05, revolutions=40), Tolerances())
     >>> [f.name for f in flags]
     ['spin_scatter']
     """
-    m, t = measures, tolerances
-    found: list[Flag | None] = []
-    if "spin_scatter" in m:
-        found.append(spin_scatter(m["spin_scatter"], t.spin_scatter))
-    if "spin_drift" in m:
-        found.append(spin_drift(m["spin_drift"], t.spin_drift))
-    if "speed_drift" in m:
-        found.append(speed_drift(m["speed_drift"], t.speed_drift))
-    if "temperature_drift" in m:
-        found.append(temperature_drift(m["temperature_drift"], t.temperature_drift))
-    if "zero_shift" in m:
-        found.append(zero_shift(m["zero_shift"], t.zero_shift))
-    if "tare_extrapolated" in m:
-        found.append(
-            tare_extrapolated(
-                bool(m["tare_extrapolated"]),
-                float(m.get("omega", math.nan)),
-                m.get("tare_range", (math.nan, math.nan)),
-            )
-        )
-    if "overload" in m:
-        found.append(overload(m["overload"], t.overload))
-    if "dead_taps" in m:
-        found.append(dead_tap(m["dead_taps"], t.dead_tap))
-    if "stream_overlap" in m:
-        found.append(stream_overlap(m["stream_overlap"], t.stream_overlap))
-    if "revolutions" in m:
-        found.append(few_revolutions(m["revolutions"], t.min_revolutions))
-    if all(key in m for key in ("CL", "u_CL", "CL_p", "u_CL_p")):
-        found.append(
-            cl_disagreement(
-                float(m["CL"]),
-                float(m["u_CL"]),
-                float(m["CL_p"]),
-                float(m["u_CL_p"]),
-                float(m.get("corr_CL_CL_p", 0.0)),
-                t.agreement_k,
-                allowance=t.cl_agreement,
-            )
-        )
-    if "alpha" in m and "Cp_max" in m:
-        found.append(stagnation_cp(float(m["alpha"]), float(m["Cp_max"]), t.stagnation_cp))
+    if not isinstance(measures, RunMeasures):
+        measures = RunMeasures(**measures)
+    found = (judge(c, measures, tolerances) for c in CHECKS if c.scope == "run")
     return [f for f in found if f is not None]
 
 
 def repeat_disagreement(
     results: pd.DataFrame,
-    tolerances: Tolerances,
+    tolerances: Tolerances | Callable[[str], Tolerances],
     *,
     speed_resolution: float = 0.5,
     spin_resolution: float = 10.0,
@@ -700,8 +425,10 @@ def repeat_disagreement(
     results : pandas.DataFrame
         One row a run, with ``run`` (a column, else the index), ``config``, ``speed_set`` [m/s],
         ``spin_set`` [rpm] and, for each coefficient X compared, ``X`` and ``u_X`` [-].
-    tolerances : Tolerances
-        ``agreement_k`` is the coverage factor of the test.
+    tolerances : Tolerances or callable
+        ``agreement_k`` is the coverage factor of the test. A callable gives the tolerances of
+        a configuration label (``CampaignConfig.tolerances_for``), so that each configuration's
+        repeats are judged with its own ``[configurations.LABEL.tolerances]``.
     speed_resolution : float
         Set speeds are rounded to this step before matching. [m/s]
     spin_resolution : float
@@ -737,14 +464,16 @@ def repeat_disagreement(
     ['a', 'b']
     """
     df = results if "run" in results.columns else results.rename_axis("run").reset_index()
-    k = tolerances.agreement_k
+    check = _BY_NAME["repeat_disagreement"]
+    tolerances_for = tolerances if callable(tolerances) else (lambda label: tolerances)
     speed = np.round(df["speed_set"].to_numpy(dtype=float) / speed_resolution) * speed_resolution
     spin = np.round(df["spin_set"].to_numpy(dtype=float) / spin_resolution) * spin_resolution
     keyed = df.assign(_speed=speed, _spin=spin).dropna(subset=["_speed", "_spin"])
-    worst: dict[str, tuple[float, str]] = {}
-    for _, group in keyed.groupby(["config", "_speed", "_spin"], sort=False):
+    worst: dict[str, tuple[float, float, str]] = {}
+    for (label, _, _), group in keyed.groupby(["config", "_speed", "_spin"], sort=False):
         if len(group) < 2:
             continue
+        k = float(getattr(tolerances_for(str(label)), str(check.tolerance)))
         runs = group["run"].astype(str).to_numpy()
         for name in coefficients:
             if name not in group or f"u_{name}" not in group:
@@ -762,15 +491,19 @@ def repeat_disagreement(
                 j = int(np.argmax(z[i]))
                 if z[i, j] <= worst.get(runs[i], (-1.0, ""))[0]:
                     continue
-                reason = (
-                    f"{name} {x[i]:.3f} ± {u[i]:.3f} disagrees with repeat run {runs[j]} "
-                    f"({name} {x[j]:.3f} ± {u[j]:.3f}): difference {abs(x[i] - x[j]):.3f} is "
-                    f"{z[i, j]:.1f} times the combined u (limit k = {k:g})"
+                reason = check.reason.format(
+                    coefficient=name,
+                    x=x[i],
+                    u=u[i],
+                    other=runs[j],
+                    x_other=x[j],
+                    u_other=u[j],
+                    difference=abs(x[i] - x[j]),
+                    value=z[i, j],
+                    tolerance=k,
                 )
-                worst[runs[i]] = (float(z[i, j]), reason)
-    return {
-        run: Flag("repeat_disagreement", value, k, reason) for run, (value, reason) in worst.items()
-    }
+                worst[runs[i]] = (float(z[i, j]), k, reason)
+    return {run: Flag(check.name, value, k, reason) for run, (value, k, reason) in worst.items()}
 
 
 def flag_columns(flags: Iterable[Flag]) -> dict[str, str | bool]:

@@ -44,9 +44,6 @@ RUN_OUTPUTS = (
 #: Headline outputs whose uncertainty budgets are kept.
 BUDGET_OUTPUTS = ("alpha", "CL", "CD", "CM")
 
-#: |alpha| below which a run counts as not spinning for the stagnation-Cp check.
-_NOT_SPINNING_ALPHA = 0.02
-
 
 @dataclass
 class RunResult:
@@ -190,10 +187,10 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     u_zero_loads = np.abs(matrix) @ u_zero
     full_scale = np.array(cfg.full_scale)
     # Per component, so that a flag's reason can name the load (Fx, Fy, Mz).
-    measures["overload"] = np.asarray(balance.overload_fraction(loads_t, full_scale))
+    measures["overload"] = _components(balance.overload_fraction(loads_t, full_scale))
     if len(spec.zero) > 1:
         shift_loads = balance.loads_from_signals(shift, matrix, None)
-        measures["zero_shift"] = np.abs(np.asarray(shift_loads)) / full_scale
+        measures["zero_shift"] = _components(np.abs(np.asarray(shift_loads)) / full_scale)
 
     tare = np.zeros(3)
     u_tare = np.zeros(3)
@@ -240,8 +237,18 @@ class _PressurePoints:
     count: np.ndarray  # samples per grid bin
 
 
-def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures: dict):
-    """Tap readings (Pa) reduced to azimuth points, dead taps excluded, and u of the azimuth."""
+def _components(values) -> tuple[float, ...]:
+    return tuple(float(v) for v in np.atleast_1d(np.asarray(values, dtype=float)))
+
+
+def _pressure_inputs(
+    campaign, data, q_mean: float, omega_mean: float, spinning: bool, measures: dict
+):
+    """Tap readings (Pa) reduced to azimuth points, dead taps excluded, and u of the azimuth.
+
+    A spinning run (:func:`tunnelred.engine.quality.is_spinning`) is binned in azimuth; a model
+    at rest gives one point a tap at its fixed azimuth.
+    """
     cfg = campaign.config
     stream = data.streams["pressure"]
     t = stream["time"].to_numpy()
@@ -253,7 +260,6 @@ def _pressure_inputs(campaign, data, q_mean: float, omega_mean: float, measures:
     readings = np.stack([stream[name].to_numpy() for name in names])
     bins = cfg.reduction.cp_bins
     revolutions = abs(omega_mean) * (t[-1] - t[0]) / (2 * np.pi)
-    spinning = revolutions >= 2.0
     # Each tap's bin means, all taps in one bincount: the dead-tap test needs no more.
     width = 360.0 / bins
     cells = np.minimum((np.mod(thetas, 360.0) // width).astype(int), bins - 1)
@@ -318,7 +324,13 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
         flow = conditions.free_stream(data.streams["tunnel"], campaign.config)
         q_other = float(np.mean(flow["q"].to_numpy()))
         _, omega, _ = conditions.spin_rate(data.streams)
-        extra, _, dead_other = _pressure_inputs(campaign, data, q_other, float(np.mean(omega)), {})
+        omega_other = float(np.mean(omega))
+        alpha_other = conditions.spin_ratio(
+            omega_other, campaign.config.model.radius, float(np.mean(flow["U"].to_numpy()))
+        )
+        extra, _, dead_other = _pressure_inputs(
+            campaign, data, q_other, omega_other, quality.is_spinning(alpha_other), {}
+        )
         scale = q_mean / q_other
         thetas.append(extra.theta)
         readings.append(extra.reading * scale)
@@ -581,7 +593,8 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     steadiness = conditions.spin_steadiness(
         t_spin, omega_t, tunnel["time"].to_numpy(), fs["U"].to_numpy(), cfg.model.radius
     )
-    if abs(steadiness.alpha_mean) >= _NOT_SPINNING_ALPHA:
+    spinning = quality.is_spinning(steadiness.alpha_mean)
+    if spinning:
         measures["spin_scatter"] = steadiness.scatter
         measures["spin_drift"] = abs(steadiness.drift)
     measures["stream_overlap"] = _stream_overlap(data.streams)
@@ -594,7 +607,9 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     points = None
     dead_taps: list[str] = []
     if "pressure" in data.streams and cfg.taps:
-        points, u_theta, dead_taps = _pressure_inputs(campaign, data, q_mean, omega_mean, measures)
+        points, u_theta, dead_taps = _pressure_inputs(
+            campaign, data, q_mean, omega_mean, spinning, measures
+        )
         if spec.pressure_with:
             points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
         n = points.theta.size
@@ -676,7 +691,9 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         for name in RUN_OUTPUTS:
             values[f"u_{name}_mc"] = float(np.asarray(mc.u[name]).reshape(-1)[0])
 
-    flags = tuple(quality.check_run(measures, cfg.tolerances_for(spec.config)))
+    # A key that is not a RunMeasures field is a TypeError here, never a silently skipped check.
+    run_measures = quality.RunMeasures(**measures)
+    flags = tuple(quality.check_run(run_measures, cfg.tolerances_for(spec.config)))
     values.update(quality.flag_columns(flags))
 
     # An exact result (alpha of a model at rest) has no variance to share out.

@@ -536,7 +536,8 @@ def _repeat_flags(results: list, campaign) -> list:
     if len(results) < 2:
         return results
     table = pd.DataFrame([{**r.values, "run": r.run, "config": r.config} for r in results])
-    raised = quality.repeat_disagreement(table, campaign.config.reduction.tolerances)
+    # Each configuration's repeats are judged with its own tolerances.
+    raised = quality.repeat_disagreement(table, campaign.config.tolerances_for)
     return [
         dataclasses.replace(r, flags=(*r.flags, raised[r.run])) if r.run in raised else r
         for r in results
