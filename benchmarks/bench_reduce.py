@@ -183,6 +183,114 @@ def _ratio(rows: list[dict], pick, key) -> list[dict]:
     ]
 
 
+# ---------------------------------------------------------------------------------------------
+# Side by side with the yardstick: whole processes, alternating rounds, medians.
+
+_FLOOR_CODE = (
+    "import sys, pathlib, pyarrow.csv as c\n"
+    "for f in sorted(pathlib.Path(sys.argv[1]).glob('logs/*.csv')): c.read_csv(f)"
+)
+
+
+def _timed(command: list[str]) -> float:
+    started = time.perf_counter()
+    subprocess.run(command, check=True, capture_output=True)
+    return time.perf_counter() - started
+
+
+def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
+    """Time ``tunnelred reduce`` (standard figures included) beside the hand-written script.
+
+    Each round runs, one after the other: ``tunnelred reduce --workers 1 --fresh``, the naive
+    script, the pyarrow parse of every log, an unchanged re-run of the CLI into the same folder,
+    and with ``parallel`` ``--workers 2 --fresh`` and ``--dask local --workers 2 --fresh``. The
+    rounds alternate the commands, so a change in the machine's load falls on all of them; the
+    medians over the rounds are reported.
+    """
+    import statistics
+
+    py = sys.executable
+    cli = [py, "-m", "tunnelred", "reduce", str(campaign)]
+    work = Path(tempfile.mkdtemp(prefix="tunnelred-versus-"))
+    commands = {
+        "tunnelred_1": [*cli, "-o", str(work / "out1"), "--fresh", "--workers", "1"],
+        "naive": [py, str(HERE / "naive_reference.py"), str(campaign), str(work / "naive.csv")],
+        "floor": [py, "-c", _FLOOR_CODE, str(campaign)],
+        "rerun": [*cli, "-o", str(work / "out1"), "--workers", "1"],
+    }
+    if parallel:
+        commands["tunnelred_2"] = [*cli, "-o", str(work / "out2"), "--fresh", "--workers", "2"]
+        commands["dask_2"] = [
+            *cli, "-o", str(work / "outd"), "--fresh", "--workers", "2", "--dask", "local"
+        ]  # fmt: skip
+    times: dict[str, list[float]] = {name: [] for name in commands}
+    load = [os.getloadavg()[0]]
+    for _ in range(rounds):
+        for name, command in commands.items():
+            times[name].append(_timed(command))
+            print(f"  {name}: {times[name][-1]:.2f} s", file=sys.stderr, flush=True)
+        load.append(os.getloadavg()[0])
+    median = {name: statistics.median(v) for name, v in times.items()}
+    record = {
+        "campaign": str(campaign),
+        "bytes": sum(f.stat().st_size for f in campaign.glob("logs/*.csv")),
+        "data_runs": _data_run_count(campaign),
+        "rounds": rounds,
+        "times": times,
+        "median": median,
+        "load_average_1min": load,
+        "tunnelred_over_naive": median["tunnelred_1"] / median["naive"],
+        "tunnelred_over_floor": median["tunnelred_1"] / median["floor"],
+        "rerun_fraction": median["rerun"] / median["tunnelred_1"],
+        "agreement": _agreement(work / "out1", work / "naive.csv"),
+    }
+    if parallel:
+        record["speedup_2_workers"] = median["tunnelred_1"] / median["tunnelred_2"]
+        record["dask_over_2_workers"] = median["dask_2"] / median["tunnelred_2"]
+    return record
+
+
+def _agreement(out: Path, naive_csv: Path) -> dict:
+    """Median and largest |naive / tunnelred - 1| of CL and CD over the runs both reduced."""
+    import pandas as pd
+    import xarray as xr
+
+    naive = pd.read_csv(naive_csv).set_index("run")
+    with xr.open_dataset(out / "results.nc") as ds:
+        ours = pd.DataFrame({k: ds[k].values for k in ("CL", "CD")}, index=ds["run"].values)
+    both = naive.index.intersection(ours.index)
+    found = {}
+    for name in ("CL", "CD"):
+        rel = (naive.loc[both, name] / ours.loc[both, name] - 1).abs()
+        found[name] = {"median": float(rel.median()), "max": float(rel.max()), "runs": len(both)}
+    return found
+
+
+def _print_versus(r: dict) -> None:
+    m = r["median"]
+    print(f"\n{r['campaign']}: {r['data_runs']} data runs, {r['bytes'] / 1e6:.0f} MB of logs, "
+          f"medians of {r['rounds']} alternating rounds (whole processes)")  # fmt: skip
+    print(f"  tunnelred reduce --workers 1 --fresh  {m['tunnelred_1']:8.2f} s")
+    print(f"  naive per-run script                  {m['naive']:8.2f} s   "
+          f"tunnelred / naive = {r['tunnelred_over_naive']:.2f}")  # fmt: skip
+    print(f"  pyarrow parse of every log            {m['floor']:8.2f} s   "
+          f"tunnelred / floor = {r['tunnelred_over_floor']:.1f}")  # fmt: skip
+    print(f"  unchanged re-run                      {m['rerun']:8.2f} s   "
+          f"{r['rerun_fraction']:.1%} of fresh")  # fmt: skip
+    if "speedup_2_workers" in r:
+        print(f"  --workers 2                           {m['tunnelred_2']:8.2f} s   "
+              f"speed-up {r['speedup_2_workers']:.2f}x")  # fmt: skip
+        print(f"  --dask local --workers 2              {m['dask_2']:8.2f} s   "
+              f"{r['dask_over_2_workers']:.2f}x of --workers 2")  # fmt: skip
+    for name, a in r["agreement"].items():
+        print(
+            f"  {name}: naive vs tunnelred median |rel diff| {a['median']:.2e}, max {a['max']:.2e}"
+        )
+    print(
+        f"  1-minute load average during: {', '.join(f'{x:.1f}' for x in r['load_average_1min'])}"
+    )
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--quick", action="store_true", help="a small set of sizes")
@@ -192,9 +300,38 @@ def main(argv=None) -> int:
     parser.add_argument("--taps", type=int, default=8, help="pressure taps")
     parser.add_argument("--output", type=Path, default=HERE / "results.json")
     parser.add_argument("--child", help=argparse.SUPPRESS)
+    parser.add_argument(
+        "--versus",
+        type=Path,
+        metavar="CAMPAIGN",
+        help="time the CLI beside benchmarks/naive_reference.py and the parse floor on CAMPAIGN",
+    )
+    parser.add_argument(
+        "--make-large",
+        type=Path,
+        metavar="FOLDER",
+        help="write the large campaign (300 runs x 20 s x 1 kHz x 16 taps, ~1.1 GB) into FOLDER "
+        "(outside the repository, e.g. under /tmp) and stop",
+    )
+    parser.add_argument("--rounds", type=int, default=3, help="alternating rounds for --versus")
+    parser.add_argument(
+        "--parallel", action="store_true", help="with --versus: also --workers 2 and --dask local"
+    )
     options = parser.parse_args(argv)
     if options.child:
         print(json.dumps(_child(json.loads(options.child))))
+        return 0
+    if options.make_large:
+        from tunnelred.demo.writer import make_campaign
+
+        make_campaign(options.make_large, _spec(300, 20.0, 1000.0, 16))
+        return 0
+    if options.versus:
+        record = _versus(options.versus.resolve(), options.rounds, options.parallel)
+        _print_versus(record)
+        options.output.with_name("versus.json").open("a", encoding="utf-8").write(
+            json.dumps({"created": time.strftime("%Y-%m-%dT%H:%M:%S%z"), **record}) + "\n"
+        )
         return 0
 
     from tunnelred import __version__

@@ -380,3 +380,14 @@ def test_input_kinds(func, arguments, reference, kind):
     check_kind(result, args[0], kind)
     first = result if kind == "scalar" else np.asarray(result)[0]
     assert first == pytest.approx(reference, rel=1e-6)
+
+
+def test_fft_length_is_scipys_next_fast_len():
+    # scipy.fft.next_fast_len(n, real=True) is the reference: the smallest 5-smooth number >= n.
+    # The same length keeps N_eff bitwise what it was when scipy chose it.
+    from scipy.fft import next_fast_len
+
+    from tunnelred.physics.conditions import _fft_length
+
+    for n in [*range(1, 3000), 39999, 40000, 40001, 123457, 2_000_003]:
+        assert _fft_length(n) == next_fast_len(n, real=True), n

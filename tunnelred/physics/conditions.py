@@ -12,7 +12,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import xarray as xr
-from scipy.fft import next_fast_len
 
 from tunnelred.common._arraylike import arraylike, as_array
 from tunnelred.common.errors import ReductionError
@@ -663,6 +662,26 @@ def series_statistics(values, time=None) -> SeriesStats:
     return SeriesStats(mean, std, drift, n, n_eff, std / np.sqrt(n_eff))
 
 
+def _fft_length(n: int) -> int:
+    """The smallest 5-smooth number (2^a 3^b 5^c) >= n: a length pocketfft transforms fast.
+
+    The same length as scipy.fft.next_fast_len(n, real=True), without importing scipy.fft
+    (0.4-0.9 s) in every process.
+    """
+    best = 1 << max(int(n - 1).bit_length(), 0)  # the power of two at or above n
+    p5 = 1
+    while p5 < best:
+        p35 = p5
+        while p35 < best:
+            # the smallest power of two that lifts p35 to n or above
+            quotient = -(-n // p35)
+            candidate = p35 << max(int(quotient - 1).bit_length(), 0)
+            best = min(best, candidate)
+            p35 *= 3
+        p5 *= 5
+    return best
+
+
 def effective_sample_size(x) -> float:
     """Effective number of independent samples in an autocorrelated record.
 
@@ -703,7 +722,7 @@ def effective_sample_size(x) -> float:
         raise ValueError(f"effective_sample_size needs a non-empty 1-D record; got {x.shape}")
     n = x.size
     dx = x - x.mean()
-    size = next_fast_len(2 * n, real=True)
+    size = _fft_length(2 * n)
     spectrum = np.fft.rfft(dx, size)
     acov = np.fft.irfft(spectrum.real**2 + spectrum.imag**2, size)[:n]
     if acov[0] <= 0.0:

@@ -13,7 +13,6 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.interpolate import CubicSpline
 
 from tunnelred.common._arraylike import arraylike
 
@@ -345,6 +344,8 @@ def _integrate_distinct(theta: np.ndarray, cp: np.ndarray, max_gap: float):
         h = 2.0 * np.pi / theta.size
         return 0.5 * h * cp @ np.sin(x), 0.5 * h * cp @ np.cos(x)
     knots = np.append(x, x[0] + 2.0 * np.pi)
+    from scipy.interpolate import CubicSpline  # scipy.interpolate costs 0.6 s to import
+
     spline = CubicSpline(
         knots, np.concatenate([cp, cp[:, :1]], axis=-1), axis=-1, bc_type="periodic"
     )
