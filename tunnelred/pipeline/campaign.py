@@ -619,20 +619,55 @@ def reduce_campaign(
     started = time.perf_counter()
     if dask is not None:
         _distributed()
-    path = Path(path).resolve()
-    workers = max(1, int(workers or os.cpu_count() or 1))
-    return _reduce(
-        path, out, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures
+    settings = _Settings(
+        path=Path(path).resolve(),
+        out=None if out is None else Path(out),
+        workers=max(1, int(workers or os.cpu_count() or 1)),
+        dask=dask,
+        fresh=fresh,
+        monte_carlo=monte_carlo,
+        progress=progress,
+        run_ids=None if run_ids is None else tuple(run_ids),
+        figures=figures,
     )
+    return _reduce(settings, started)
 
 
-def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run_ids, figures):
-    campaign = open_campaign(path, check_logs=False)
-    selected = _select(campaign, run_ids)
+@dataclass(frozen=True)
+class _Settings:
+    """How :func:`reduce_campaign` was asked to reduce (its arguments, normalised)."""
 
+    path: Path  # the campaign folder, absolute
+    out: Path | None  # the output folder; None: nothing written, nothing cached
+    workers: int
+    dask: str | None
+    fresh: bool
+    monte_carlo: int
+    progress: bool
+    run_ids: tuple[str, ...] | None  # None: every data run
+    figures: bool
+
+    @property
+    def cache(self) -> Path | None:
+        return self.out / _CACHE_DIR if self.out is not None else None
+
+
+@dataclass
+class _Plan:
+    """The runs of one reduction: those that failed already and the cache key of the others."""
+
+    selected: list[str]
+    unreadable: list[str]
+    failures: dict[str, list[dict]]
+    keys: dict[str, str]
+
+
+def _plan(campaign, settings: _Settings) -> _Plan:
+    """Runs with input problems fail at once; every other selected run gets its cache key."""
+    selected = _select(campaign, settings.run_ids)
     failures: dict[str, list[dict]] = {}
     # A row too broken to say its kind may be a data run: it is listed with the failures.
-    unreadable = list(campaign.unreadable_runs) if run_ids is None else []
+    unreadable = list(campaign.unreadable_runs) if settings.run_ids is None else []
     for rid in unreadable:
         failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
     keys: dict[str, str] = {}
@@ -642,42 +677,77 @@ def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run
         if problems:
             failures[rid] = [_problem_row(rid, p) for p in problems]
         else:
-            keys[rid] = _key(campaign, rid, monte_carlo, rows)
+            keys[rid] = _key(campaign, rid, settings.monte_carlo, rows)
+    return _Plan(selected, unreadable, failures, keys)
 
-    cache = Path(out) / _CACHE_DIR if out is not None else None
+
+def _cached_outcomes(plan: _Plan, settings: _Settings) -> dict[str, _Outcome]:
     outcomes: dict[str, _Outcome] = {}
-    from_cache = 0
-    if cache is not None and not fresh:
-        for rid, key in keys.items():
-            hit = _cache_read(cache, key, rid)
+    if settings.cache is not None and not settings.fresh:
+        for rid, key in plan.keys.items():
+            hit = _cache_read(settings.cache, key, rid)
             if hit is not None:
                 outcomes[rid] = hit
-                from_cache += hit.result is not None
-    todo = [rid for rid in keys if rid not in outcomes]
+    return outcomes
 
-    bar = _progress_bar(len(failures) + len(keys), progress)
-    bar.update(len(failures) + len(outcomes))
+
+def _reduce_pending(campaign, plan: _Plan, settings: _Settings, outcomes: dict) -> None:
+    """Reduce the runs the cache did not answer, on the executor asked for, caching each."""
+    todo = [rid for rid in plan.keys if rid not in outcomes]
+    mc = settings.monte_carlo
+    bar = _progress_bar(len(plan.failures) + len(plan.keys), settings.progress)
+    bar.update(len(plan.failures) + len(outcomes))
     try:
-        if dask is not None:
-            stream = _run_dask(str(path), _token(campaign, keys), todo, monte_carlo, workers, dask)
-        elif workers == 1 or len(todo) <= 1:
-            stream = _run_serial(campaign, todo, monte_carlo)
+        if settings.dask is not None:
+            token = _token(campaign, plan.keys)
+            stream = _run_dask(str(settings.path), token, todo, mc, settings.workers, settings.dask)
+        elif settings.workers == 1 or len(todo) <= 1:
+            stream = _run_serial(campaign, todo, mc)
         else:
             # Started only when there is work for it: this process reduces from the front of
             # the list while the pool's processes start, and the pool is joined when done,
             # so that no half-started process outlives the command.
-            stream = _run_pool(campaign, _PoolStart(str(path), workers - 1), todo, monte_carlo)
+            pool = _PoolStart(str(settings.path), settings.workers - 1)
+            stream = _run_pool(campaign, pool, todo, mc)
         with contextlib.closing(stream), _blas_one_thread():
             for outcome in stream:
                 outcomes[outcome.run] = outcome
-                if cache is not None and outcome.cacheable:
-                    _cache_write(cache, keys[outcome.run], outcome)
+                if settings.cache is not None and outcome.cacheable:
+                    _cache_write(settings.cache, plan.keys[outcome.run], outcome)
                 bar.update(1)
     finally:
         bar.close()
 
+
+def _write_outputs(ds, failures_table, budgets, plan: _Plan, settings: _Settings) -> dict:
+    """results.nc and its companions, the figures, and the cache pruned to this campaign."""
+    if settings.out is None:
+        return {}
+    out = settings.out
+    outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
+    (out / "figures").mkdir(exist_ok=True)
+    if settings.figures and ds.sizes.get("run", 0):
+        from tunnelred.products.plotting import (
+            save_standard_figures,  # matplotlib only where figures are made
+        )
+
+        for path in save_standard_figures(ds, out):
+            outputs[f"figures/{path.name}"] = path
+    if settings.run_ids is None:
+        _cache_prune(settings.cache, set(plan.keys.values()))
+    return outputs
+
+
+def _reduce(settings: _Settings, started: float) -> CampaignResults:
+    campaign = open_campaign(settings.path, check_logs=False)
+    plan = _plan(campaign, settings)
+    outcomes = _cached_outcomes(plan, settings)
+    from_cache = sum(1 for o in outcomes.values() if o.result is not None)
+    _reduce_pending(campaign, plan, settings, outcomes)
+
+    failures = plan.failures
     results = []
-    for rid in selected:
+    for rid in plan.selected:
         outcome = outcomes.get(rid)
         if outcome is not None and outcome.result is not None:
             results.append(outcome.result)
@@ -685,25 +755,12 @@ def _reduce(path, out, started, workers, dask, fresh, monte_carlo, progress, run
             failures[rid] = outcome.failures
     results = _repeat_flags(results, campaign)
     ds = store.results_to_dataset(
-        results, campaign=campaign, methods=_methods(campaign, monte_carlo)
+        results, campaign=campaign, methods=_methods(campaign, settings.monte_carlo)
     )
-    failure_rows = [row for rid in [*selected, *unreadable] for row in failures.get(rid, [])]
-    failures_table = _failures_table(failure_rows)
+    runs = [*plan.selected, *plan.unreadable]
+    failures_table = _failures_table([row for rid in runs for row in failures.get(rid, [])])
     budgets = _budgets_table(results)
-
-    outputs: dict[str, Path] = {}
-    if out is not None:
-        outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
-        (Path(out) / "figures").mkdir(exist_ok=True)
-        if figures and ds.sizes.get("run", 0):
-            from tunnelred.products.plotting import (
-                save_standard_figures,  # matplotlib only where figures are made
-            )
-
-            for path in save_standard_figures(ds, out):
-                outputs[f"figures/{path.name}"] = path
-        if run_ids is None:
-            _cache_prune(cache, set(keys.values()))
+    outputs = _write_outputs(ds, failures_table, budgets, plan, settings)
     return CampaignResults(
         dataset=ds,
         failures=failures_table,
