@@ -578,113 +578,29 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     fs = conditions.free_stream(tunnel, cfg)
     inputs = _tunnel_inputs(cfg, tunnel, fs, measures)
     inputs.update(_geometry_inputs(cfg))
-
-    t_spin, omega_t, spin_source = conditions.spin_rate(data.streams)
-    omega_stats = conditions.series_statistics(omega_t, t_spin)
-    omega_mean = omega_stats.mean
-    if spin_source == "tachometer":
-        u_omega_rel = cfg.instruments.u_tachometer_relative
-    else:
-        duration = t_spin[-1] - t_spin[0]
-        u_omega_rel = np.sqrt(2) * np.radians(cfg.instruments.u_encoder) / duration
-        u_omega_rel = u_omega_rel / abs(omega_mean) if omega_mean else 0.0
-    inputs["omega"] = Input(omega_mean, omega_stats.u_mean, "A", f"spin rate ({spin_source})")
-    inputs["omega_spec"] = Input(0.0, u_omega_rel, "B", f"{spin_source} (relative)")
-    steadiness = conditions.spin_steadiness(
-        t_spin, omega_t, tunnel["time"].to_numpy(), fs["U"].to_numpy(), cfg.model.radius
-    )
-    spinning = quality.is_spinning(steadiness.alpha_mean)
-    if spinning:
-        measures["spin_scatter"] = steadiness.scatter
-        measures["spin_drift"] = abs(steadiness.drift)
+    spin = _spin_inputs(cfg, data, fs, measures)
+    inputs.update(spin.inputs)
     measures["stream_overlap"] = _stream_overlap(data.streams)
 
     has_balance = "balance" in data.streams
     if has_balance:
-        inputs.update(_balance_inputs(campaign, spec, data, omega_mean, measures))
+        inputs.update(_balance_inputs(campaign, spec, data, spin.omega_mean, measures))
 
     q_mean = float(np.mean(fs["q"].to_numpy()))
-    points = None
-    dead_taps: list[str] = []
-    if "pressure" in data.streams and cfg.taps:
-        points, u_theta, dead_taps = _pressure_inputs(
-            campaign, data, q_mean, omega_mean, spinning, measures
-        )
-        if spec.pressure_with:
-            points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
-        n = points.theta.size
-        inputs["p_bin"] = Input(points.reading, points.u_reading, "A", "tap pressure per bin")
-        inputs["p_scanner"] = Input(
-            np.zeros(n), np.full(n, cfg.instruments.u_scanner), "B", "pressure scanner"
-        )
-        inputs["theta_offset"] = Input(0.0, u_theta, "B", "tap azimuth (offset, delay, encoder)")
-    theta_points = None if points is None else points.theta
-    integrate = points is not None
-    if points is not None:
-        try:
-            pressure.integrate_cp(points.theta, points.reading, max_gap=cfg.reduction.max_tap_gap)
-        except pressure.CpGapError as exc:
-            # The balance result stands; only the pressure forces are left out.
-            integrate = False
-            measures["pressure_gap"] = str(exc)
+    taps = _pressure_step(campaign, spec, data, q_mean, spin, measures)
+    inputs.update(taps.inputs)
 
-    model = _run_model(cfg, has_balance=has_balance, theta_bins=theta_points, integrate=integrate)
+    theta_points = None if taps.points is None else taps.points.theta
+    model = _run_model(
+        cfg, has_balance=has_balance, theta_bins=theta_points, integrate=taps.integrate
+    )
     # The scanner term enters only through p_bin + p_scanner: one set of sensitivities for both.
     summed = {"p_scanner": "p_bin"} if "p_scanner" in inputs else None
     linear = propagate_linear(model, inputs, summed_with=summed)
 
-    values: dict[str, float | str] = {
-        "config": spec.config,
-        "start": spec.start.isoformat(),
-        "speed_set": np.nan if spec.speed_set is None else spec.speed_set,
-        "spin_set": np.nan if spec.spin_set is None else spec.spin_set,
-    }
-    for name in RUN_OUTPUTS:
-        values[name] = float(np.asarray(linear.values[name]).reshape(-1)[0])
-        values[f"u_{name}"] = float(np.asarray(linear.u[name]).reshape(-1)[0])
-    values["corr_CL_alpha"] = _safe_correlation(linear, "CL", "alpha")
-
-    alpha = values["alpha"]
-    for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
-        values[name] = float(np.max(measures.get(name, np.nan)))
-    values["revolutions"] = float(measures.get("revolutions", np.nan))
-    values["overload"] = float(np.max(measures.get("overload", np.nan)))
-    values["stream_overlap"] = float(measures["stream_overlap"])
-    values["dead_taps"] = ";".join(dead_taps)
-
-    theta = None
-    profiles: dict[str, np.ndarray] = {}
-    if points is not None:
-        theta = points.grid
-
-        # Points sharing a bin (merged index runs) are averaged there, their u as for a mean
-        # of independent values.
-        n = np.bincount(points.grid_index, minlength=theta.size)
-
-        def on_grid(v, power=1):
-            total = np.bincount(points.grid_index, np.asarray(v).reshape(-1) ** power, theta.size)
-            with np.errstate(invalid="ignore", divide="ignore"):
-                mean = np.where(n > 0, total / n, np.nan)
-            return mean if power == 1 else np.sqrt(mean / n)
-
-        profiles = {
-            "Cp": on_grid(linear.values["Cp"]),
-            "u_Cp": on_grid(linear.u["Cp"], power=2),
-            "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
-            "Cp_count": points.count,
-            "Cp_ideal": theory.cp_surface(theta, alpha),
-        }
-        measures["Cp_max"] = values["Cp_max"]
-
-    if has_balance and integrate:
-        measures.update(
-            CL=values["CL"],
-            u_CL=values["u_CL"],
-            CL_p=values["CL_p"],
-            u_CL_p=values["u_CL_p"],
-            corr_CL_CL_p=_safe_correlation(linear, "CL", "CL_p"),
-        )
-    measures["alpha"] = alpha
+    values = _run_values(spec, linear, measures, taps.dead_taps)
+    theta, profiles = _profiles(taps.points, linear, values["alpha"])
+    _agreement_measures(measures, values, linear, has_balance and taps.integrate, taps.points)
 
     if monte_carlo:
         mc = propagate_monte_carlo(model, inputs, draws=monte_carlo, seed=seed)
@@ -695,13 +611,6 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     run_measures = quality.RunMeasures(**measures)
     flags = tuple(quality.check_run(run_measures, cfg.tolerances_for(spec.config)))
     values.update(quality.flag_columns(flags))
-
-    # An exact result (alpha of a model at rest) has no variance to share out.
-    budgeted = [n for n in BUDGET_OUTPUTS if np.isfinite(values[n]) and values[f"u_{n}"] > 0]
-    budget_table = None
-    if budgeted:
-        budget_table = linear.budgets(budgeted)
-        budget_table.insert(0, "run", run_id)
     return RunResult(
         run=run_id,
         config=spec.config,
@@ -709,9 +618,152 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         theta=theta,
         profiles=profiles,
         flags=flags,
-        budgets=budget_table,
+        budgets=_budget_table(linear, values, run_id),
         inputs=_files_used(campaign, spec),
     )
+
+
+@dataclass(frozen=True)
+class _SpinStep:
+    """The spin rate as run-level inputs, and whether the run counts as spinning."""
+
+    inputs: dict[str, Input]
+    omega_mean: float  # [rad/s]
+    spinning: bool  # quality.is_spinning of the time-mean spin ratio
+
+
+def _spin_inputs(cfg, data, fs, measures: dict) -> _SpinStep:
+    """Spin rate (tachometer or encoder) with its u, and the spin-steadiness measures."""
+    t_spin, omega_t, spin_source = conditions.spin_rate(data.streams)
+    omega_stats = conditions.series_statistics(omega_t, t_spin)
+    omega_mean = omega_stats.mean
+    if spin_source == "tachometer":
+        u_omega_rel = cfg.instruments.u_tachometer_relative
+    else:
+        duration = t_spin[-1] - t_spin[0]
+        u_omega_rel = np.sqrt(2) * np.radians(cfg.instruments.u_encoder) / duration
+        u_omega_rel = u_omega_rel / abs(omega_mean) if omega_mean else 0.0
+    inputs = {
+        "omega": Input(omega_mean, omega_stats.u_mean, "A", f"spin rate ({spin_source})"),
+        "omega_spec": Input(0.0, u_omega_rel, "B", f"{spin_source} (relative)"),
+    }
+    tunnel_time = data.streams["tunnel"]["time"].to_numpy()
+    steadiness = conditions.spin_steadiness(
+        t_spin, omega_t, tunnel_time, fs["U"].to_numpy(), cfg.model.radius
+    )
+    spinning = quality.is_spinning(steadiness.alpha_mean)
+    if spinning:
+        measures["spin_scatter"] = steadiness.scatter
+        measures["spin_drift"] = abs(steadiness.drift)
+    return _SpinStep(inputs, omega_mean, spinning)
+
+
+@dataclass(frozen=True)
+class _PressureStep:
+    """The surface-pressure part of a run: its points (None without taps) and their inputs."""
+
+    points: _PressurePoints | None
+    dead_taps: list[str]
+    integrate: bool  # False when the points leave a gap too wide for the pressure forces
+    inputs: dict[str, Input]
+
+
+def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measures: dict):
+    cfg = campaign.config
+    if "pressure" not in data.streams or not cfg.taps:
+        return _PressureStep(None, [], False, {})
+    points, u_theta, dead_taps = _pressure_inputs(
+        campaign, data, q_mean, spin.omega_mean, spin.spinning, measures
+    )
+    if spec.pressure_with:
+        points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
+    n = points.theta.size
+    inputs = {
+        "p_bin": Input(points.reading, points.u_reading, "A", "tap pressure per bin"),
+        "p_scanner": Input(
+            np.zeros(n), np.full(n, cfg.instruments.u_scanner), "B", "pressure scanner"
+        ),
+        "theta_offset": Input(0.0, u_theta, "B", "tap azimuth (offset, delay, encoder)"),
+    }
+    integrate = True
+    try:
+        pressure.integrate_cp(points.theta, points.reading, max_gap=cfg.reduction.max_tap_gap)
+    except pressure.CpGapError as exc:
+        # The balance result stands; only the pressure forces are left out.
+        integrate = False
+        measures["pressure_gap"] = str(exc)
+    return _PressureStep(points, dead_taps, integrate, inputs)
+
+
+def _run_values(spec, linear, measures: dict, dead_taps: list[str]) -> dict[str, float | str]:
+    """The run's row of results: set points, every output with its u, and the measures."""
+    values: dict[str, float | str] = {
+        "config": spec.config,
+        "start": spec.start.isoformat(),
+        "speed_set": np.nan if spec.speed_set is None else spec.speed_set,
+        "spin_set": np.nan if spec.spin_set is None else spec.spin_set,
+    }
+    for name in RUN_OUTPUTS:
+        values[name] = float(np.asarray(linear.values[name]).reshape(-1)[0])
+        values[f"u_{name}"] = float(np.asarray(linear.u[name]).reshape(-1)[0])
+    values["corr_CL_alpha"] = _safe_correlation(linear, "CL", "alpha")
+    for name in ("spin_scatter", "spin_drift", "speed_drift", "temperature_drift", "zero_shift"):
+        values[name] = float(np.max(measures.get(name, np.nan)))
+    values["revolutions"] = float(measures.get("revolutions", np.nan))
+    values["overload"] = float(np.max(measures.get("overload", np.nan)))
+    values["stream_overlap"] = float(measures["stream_overlap"])
+    values["dead_taps"] = ";".join(dead_taps)
+    return values
+
+
+def _profiles(points: _PressurePoints | None, linear, alpha: float):
+    """Cp and its u on the results' theta grid (None and {} for a run without taps)."""
+    if points is None:
+        return None, {}
+    theta = points.grid
+    # Points sharing a bin (merged index runs) are averaged there, their u as for a mean of
+    # independent values.
+    n = np.bincount(points.grid_index, minlength=theta.size)
+
+    def on_grid(v, power=1):
+        total = np.bincount(points.grid_index, np.asarray(v).reshape(-1) ** power, theta.size)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = np.where(n > 0, total / n, np.nan)
+        return mean if power == 1 else np.sqrt(mean / n)
+
+    profiles = {
+        "Cp": on_grid(linear.values["Cp"]),
+        "u_Cp": on_grid(linear.u["Cp"], power=2),
+        "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
+        "Cp_count": points.count,
+        "Cp_ideal": theory.cp_surface(theta, alpha),
+    }
+    return theta, profiles
+
+
+def _agreement_measures(measures: dict, values: dict, linear, both: bool, points) -> None:
+    """The measures judged on the reduced values: Cp_max, balance/pressure lift, alpha."""
+    if points is not None:
+        measures["Cp_max"] = values["Cp_max"]
+    if both:
+        measures.update(
+            CL=values["CL"],
+            u_CL=values["u_CL"],
+            CL_p=values["CL_p"],
+            u_CL_p=values["u_CL_p"],
+            corr_CL_CL_p=_safe_correlation(linear, "CL", "CL_p"),
+        )
+    measures["alpha"] = values["alpha"]
+
+
+def _budget_table(linear, values: dict, run_id: str) -> pd.DataFrame | None:
+    # An exact result (alpha of a model at rest) has no variance to share out.
+    budgeted = [n for n in BUDGET_OUTPUTS if np.isfinite(values[n]) and values[f"u_{n}"] > 0]
+    if not budgeted:
+        return None
+    table = linear.budgets(budgeted)
+    table.insert(0, "run", run_id)
+    return table
 
 
 def _safe_correlation(linear, a: str, b: str) -> float:
