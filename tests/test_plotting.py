@@ -52,7 +52,7 @@ def _segment_half_lengths(collection, axis: int) -> np.ndarray:
 
 @pytest.mark.parametrize("name", ["CL", "CD", "CM", "C_power", "L_D"])
 def test_coefficient_error_bars_carry_the_results_and_k2(results, name):
-    ax = plotting.plot_coefficient(results, name)
+    ax = plotting.plot_coefficient(results, name, by="config")
     containers = _containers(ax)
     configs = list(dict.fromkeys(str(c) for c in results["config"].values))
     assert [c.get_label() for c in containers] == configs
@@ -77,10 +77,12 @@ def test_coefficient_error_bars_carry_the_results_and_k2(results, name):
 
 
 def test_corrected_filled_uncorrected_hollow(results):
-    ax = plotting.plot_coefficient(results, "CL", theory=False)
+    ax = plotting.plot_coefficient(results, "CL", theory=False, by="config")
     filled = [c.lines[0] for c in _containers(ax)]
-    hollow = [line for line in ax.lines if line.get_label().endswith(", uncorrected")]
+    hollow = [line for line in ax.lines if line.get_gid() == plotting.UNCORRECTED_GID]
     assert len(hollow) == len(filled) == 2
+    # One neutral legend key stands for every hollow series.
+    assert "hollow: before wall corrections" in _legend_texts(ax)
     for line in filled:
         assert line.get_markerfacecolor() != "none"
     for line in hollow:
@@ -194,22 +196,128 @@ def test_run_diagnostics_panels(reduced, results):
     assert f"run {run}" in labelled
 
 
-def test_comparison_joins_each_sweep_separately(results):
-    ax = plotting.plot_comparison(results, "CL", by="config")
-    assert [c.get_label() for c in _containers(ax)] == list(
-        dict.fromkeys(str(c) for c in results["config"].values)
-    )
-    # Lines that are not an error-bar container's data line or caps are the joins.
+def _speed_labels(results):
+    return [label for label, _ in plotting.group_runs(results, "speed")]
+
+
+def test_default_series_name_configuration_and_speed(results):
+    ax = plotting.plot_coefficient(results, "CL")
+    configs = list(dict.fromkeys(str(c) for c in results["config"].values))
+    expected = [f"{c}, {s}" for c in configs for s in _speed_labels(results)]
+    assert [c.get_label() for c in _containers(ax)] == expected
+
+
+def _joins(ax):
+    """Lines that are neither an error-bar container's data line or caps, nor a legend key."""
     points = {id(x) for c in _containers(ax) for x in (c.lines[0], *c.lines[1])}
-    joins = [line for line in ax.lines if id(line) not in points]
+    return [
+        line
+        for line in ax.lines
+        if id(line) not in points
+        and len(line.get_xdata()) > 1
+        and line.get_gid() != plotting.UNCORRECTED_GID
+        and "potential flow" not in line.get_label()
+        and "Prandtl" not in line.get_label()
+        and line.get_label() != plotting.FLAGGED_LABEL
+    ]
+
+
+@pytest.mark.parametrize("draw", ["coefficient", "comparison", "polar"])
+def test_flagged_runs_ringed_and_left_out_of_sweep_lines(results, draw):
+    if draw == "coefficient":
+        ax, xname, yname = (
+            plotting.plot_coefficient(results, "CL", uncorrected=False),
+            "alpha",
+            "CL",
+        )
+    elif draw == "comparison":
+        ax, xname, yname = plotting.plot_comparison(results, "CL", by="speed"), "alpha", "CL"
+    else:
+        ax, xname, yname = plotting.plot_drag_polar(results), "CD", "CL"
+    flagged = plotting.flagged_runs(results)
+    assert flagged.any()  # the small campaign plants a spin-scatter fault
+    ring = next(line for line in ax.lines if line.get_label() == plotting.FLAGGED_LABEL)
+    np.testing.assert_array_equal(ring.get_xdata(), results[xname].values[flagged])
+    np.testing.assert_array_equal(ring.get_ydata(), results[yname].values[flagged])
+    # A ring: hollow, black, larger than any series marker, so it reads in greyscale too.
+    assert ring.get_markerfacecolor() == "none"
+    assert to_rgb(ring.get_markeredgecolor()) == (0.0, 0.0, 0.0)
+    assert ring.get_markersize() > 1.5 * max(c.lines[0].get_markersize() for c in _containers(ax))
+    bad = {(x, y) for x, y in zip(ring.get_xdata(), ring.get_ydata(), strict=True)}
+    joins = _joins(ax)
     assert joins
+    # Each join holds the runs of one configuration at one speed, none of them flagged.
+    table = {
+        (float(x), float(y)): (str(c), float(s))
+        for x, y, c, s in zip(
+            results[xname].values,
+            results[yname].values,
+            results["config"].values,
+            results["speed_set"].values,
+            strict=True,
+        )
+    }
     for line in joins:
+        pairs = list(zip(line.get_xdata(), line.get_ydata(), strict=True))
+        assert not bad & set(pairs)
+        assert len({table[(float(x), float(y))] for x, y in pairs}) == 1
+
+
+def test_sweep_legs_split_by_direction(results):
+    legs = plotting.sweep_legs(results)
+    directions = {leg for leg, _ in legs}
+    assert directions == {"up", "down"}  # the small campaign sweeps up, then back down
+    ax = plotting.plot_coefficient(results, "CL")
+    labels = _legend_texts(ax)
+    assert "sweep, spin increasing" in labels and "sweep, spin decreasing" in labels
+
+
+def test_comparison_legend_names_both_splits(results):
+    ax = plotting.plot_comparison(results, "CL", by="config")
+    configs = list(dict.fromkeys(str(c) for c in results["config"].values))
+    expected = [f"{c}, {s}" for c in configs for s in _speed_labels(results)]
+    assert [c.get_label() for c in _containers(ax)] == expected
+    for line in _joins(ax):
         x = np.asarray(line.get_xdata())
         assert np.all(np.diff(x) >= 0)  # joined in order of alpha
     ax_re = plotting.plot_comparison(results, "CD", by="re")
-    assert all(c.get_label().startswith("Re ≈") for c in _containers(ax_re))
+    labels = [c.get_label() for c in _containers(ax_re)]
+    assert all(lab.startswith("Re ≈") for lab in labels)
+    assert all(any(c in lab for c in configs) for lab in labels)
     with pytest.raises(ValueError, match="by must be"):
         plotting.plot_comparison(results, "CL", by="colour")
+
+
+def test_pressure_lift_against_balance_lift(results):
+    ax = plotting.plot_pressure_lift(results)
+    both = np.isfinite(results["CL"].values) & np.isfinite(results["CL_p"].values)
+    drawn = np.concatenate([c.lines[0].get_xdata() for c in _containers(ax)])
+    np.testing.assert_array_equal(np.sort(drawn), np.sort(results["CL"].values[both]))
+    equality = next(line for line in ax.lines if "C_{L,p} = C_L" in line.get_label())
+    np.testing.assert_array_equal(equality.get_xdata(), equality.get_ydata())
+
+
+def test_cp_pair_shows_the_band_width(results):
+    run = plotting.representative_runs(results)[-1]
+    fig = plotting.plot_cp_pair(results, run)
+    ax_cp, ax_u, ax_polar = fig.axes
+    assert ax_polar.name == "polar"
+    strip = ax_u.lines[0]
+    wrapped = (results["theta"].values + 180.0) % 360.0 - 180.0
+    order = np.argsort(wrapped)
+    # The strip is the band's half-width, k u(Cp) with k = 2 (DESIGN.md §4).
+    np.testing.assert_allclose(
+        strip.get_ydata(), 2 * results.sel(run=run)["u_Cp"].values[order], rtol=1e-12
+    )
+
+
+def test_axes_sketch_names_the_conventions():
+    ax = plotting.plot_axes_sketch()
+    texts = " ".join(t.get_text() for t in ax.texts)
+    # docs/conventions.md: x downstream, y the lift axis, z along the cylinder axis, omega > 0
+    # counter-clockwise, positive spin gives negative lift.
+    for word in ("x", "y (lift axis)", "z", r"$\omega > 0$", "L < 0 for ω > 0"):
+        assert word in texts
 
 
 def test_house_style_distinct_in_greyscale():
@@ -236,7 +344,7 @@ def test_house_style_distinct_in_greyscale():
 def test_standard_figures_written(results, tmp_path):
     paths = plotting.save_standard_figures(results, tmp_path)
     names = {p.name for p in paths}
-    assert {"CL_alpha.png", "CD_alpha.png", "CL_by_speed.png"} <= names
+    assert {"CL_alpha.png", "CD_alpha.png", "CL_by_speed.png", "drag_polar.png"} <= names
     assert any(n.startswith("cp_") for n in names)
     for path in paths:
         assert path.parent == tmp_path / "figures"

@@ -29,7 +29,6 @@ import pandas as pd
 import xarray as xr
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
-from matplotlib.lines import Line2D
 
 from tunnelred.physics import conditions, theory
 from tunnelred.products import store
@@ -47,7 +46,14 @@ __all__ = [
     "plot_cp",
     "plot_run_diagnostics",
     "plot_comparison",
+    "plot_drag_polar",
+    "plot_cp_pair",
+    "plot_axes_sketch",
+    "plot_pressure_lift",
     "plot_steadiness",
+    "flagged_runs",
+    "sweep_legs",
+    "FLAGGED_LABEL",
     "save_standard_figures",
 ]
 
@@ -173,8 +179,9 @@ def group_runs(results, by: str) -> list[tuple[str, np.ndarray]]:
     ----------
     results : xarray.Dataset, CampaignResults or path-like
     by : str
-        ``"config"`` (the label), ``"speed"`` (the set speed, else the measured one to 1 m/s) or
-        ``"re"`` (runs within 5 % of the group's lowest Re).
+        ``"series"`` (one group per configuration and speed, labelled with whichever of the two
+        varies in the campaign), ``"config"`` (the label), ``"speed"`` (the set speed, else the
+        measured one to 1 m/s) or ``"re"`` (runs within 5 % of the group's lowest Re).
 
     Returns
     -------
@@ -186,6 +193,8 @@ def group_runs(results, by: str) -> list[tuple[str, np.ndarray]]:
     if by == "config":
         labels = [str(c) for c in ds["config"].values] if "config" in ds else [""] * n
         return [(lab, np.flatnonzero(np.array(labels) == lab)) for lab in dict.fromkeys(labels)]
+    if by == "series":
+        return _series_groups(ds)
     if by == "speed":
         speed = _values(ds, "speed_set")
         # Runs without a set point are grouped by their measured speed to the nearest 1 m/s.
@@ -209,7 +218,29 @@ def group_runs(results, by: str) -> list[tuple[str, np.ndarray]]:
         if current:
             out.append(current)
         return [(f"Re ≈ {_sig(float(np.mean(re[g])))}", np.array(g)) for g in out]
-    raise ValueError(f"by must be 'config', 'speed' or 're', not {by!r}")
+    raise ValueError(f"by must be 'series', 'config', 'speed' or 're', not {by!r}")
+
+
+def _series_groups(ds: xr.Dataset) -> list[tuple[str, np.ndarray]]:
+    """One group per configuration and tunnel speed, labelled by what varies in the campaign."""
+    configs = group_runs(ds, "config")
+    speeds = group_runs(ds, "speed")
+    out = []
+    for config, in_config in configs:
+        for speed, at_speed in speeds:
+            idx = np.intersect1d(in_config, at_speed)
+            if idx.size == 0:
+                continue
+            parts = ([config or "all runs"] if len(configs) > 1 else []) + (
+                [speed] if len(speeds) > 1 else []
+            )
+            out.append((", ".join(parts) or config or "all runs", idx))
+    # Runs without a speed at all (no set point, no measured U) still get drawn.
+    grouped = np.concatenate([g for _, g in out]) if out else np.array([], dtype=int)
+    rest = np.setdiff1d(np.arange(ds.sizes["run"]), grouped)
+    if rest.size:
+        out.append(("other runs", rest))
+    return out
 
 
 def _check_name(ds: xr.Dataset, name: str) -> None:
@@ -270,14 +301,126 @@ def _error_points(ax: Axes, x, y, ux, uy, idx, style: SeriesStyle, label: str):
     )
 
 
+#: The ring drawn around a flagged run's point, in every figure of runs.
+_FLAG_RING = {
+    "marker": "o",
+    "markersize": 12,
+    "markerfacecolor": "none",
+    "markeredgecolor": "#000000",
+    "markeredgewidth": 1.2,
+    "linestyle": "none",
+}
+FLAGGED_LABEL = "flagged run (ringed)"
+UNCORRECTED_GID = "uncorrected"  # the gid of the hollow markers of values before corrections
+_LEAST_JOINED = 3  # distinct set spin rates a sweep leg needs to be drawn as a line
+_DOWN_DASH = (0, (1, 1.5))  # a sweep leg of decreasing spin: dotted, whatever the series
+
+
+def flagged_runs(results) -> np.ndarray:
+    """Which runs raised at least one quality flag (``flags`` not empty), as a bool array."""
+    ds = results_dataset(results)
+    if "flags" not in ds:
+        return np.zeros(ds.sizes["run"], dtype=bool)
+    return np.array([isinstance(f, str) and f != "" for f in ds["flags"].values])
+
+
+def sweep_legs(results) -> list[tuple[str, np.ndarray]]:
+    """The sweep legs of the results as (direction, positions along ``run``).
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+
+    Returns
+    -------
+    list of (str, numpy.ndarray)
+        ``"up"``, ``"down"`` or ``"single"`` and the positions of the leg's runs, as
+        :func:`tunnelred.products.compare.find_sweeps` groups them (one configuration, one speed,
+        one direction of the set spin rate in time), those with at least three set spin rates
+        (a retake of one or two set points is not a curve to follow). Empty when the results
+        lack the set points that define a sweep.
+    """
+    # compare imports this module's style at import time; it is needed only when drawing.
+    from tunnelred.products import compare
+
+    ds = results_dataset(results)
+    if "config" not in ds or "alpha" not in ds:
+        return []
+    index = {str(r): i for i, r in enumerate(ds["run"].values)}
+    return [
+        (s.leg, np.array([index[r] for r in s.runs], dtype=int))
+        for s in compare.find_sweeps(ds)
+        # Retakes at one or two set points make a "leg" too short to follow as a curve.
+        if np.unique(s.arrays["spin_point"]).size >= _LEAST_JOINED
+    ]
+
+
+def _draw_runs(
+    ax: Axes,
+    ds: xr.Dataset,
+    xname: str,
+    yname: str,
+    groups: list[tuple[str, np.ndarray, SeriesStyle]],
+    *,
+    join: bool = True,
+) -> None:
+    """Each group's runs with k = 2 bars; flagged runs ringed; each sweep leg joined by a line.
+
+    A leg is joined in order of α; flagged runs stay out of the line (they are drawn and ringed,
+    so the curve shows the runs that passed their checks). Increasing-spin and single legs are
+    solid, decreasing-spin legs dotted, both in the group's colour.
+    """
+    x, ux = _values(ds, xname), _values(ds, f"u_{xname}")
+    y, uy = _values(ds, yname), _values(ds, f"u_{yname}")
+    alpha = _values(ds, "alpha")
+    flagged = flagged_runs(ds)
+    owner = np.full(ds.sizes["run"], -1)
+    for g, (label, idx, style) in enumerate(groups):
+        _error_points(ax, x, y, ux, uy, idx, style, label)
+        owner[idx] = g
+    directions = set()
+    if join:
+        for leg, positions in sweep_legs(ds):
+            for _, idx, style in groups:
+                part = positions[np.isin(positions, idx) & ~flagged[positions]]
+                part = part[np.isfinite(x[part]) & np.isfinite(y[part])]
+                if part.size < 2:
+                    continue
+                part = part[np.argsort(alpha[part], kind="stable")]
+                down = leg == "down"
+                directions.add("down" if down else "up")
+                ax.plot(
+                    x[part],
+                    y[part],
+                    color=style.color,
+                    linestyle=_DOWN_DASH if down else "-",
+                    linewidth=0.9,
+                    zorder=2,
+                )
+    if flagged.any():
+        ax.plot(x[flagged], y[flagged], label=FLAGGED_LABEL, zorder=4, **_FLAG_RING)
+    # Neutral legend keys for the two kinds of join, only when a campaign has both.
+    if directions == {"up", "down"}:
+        ax.plot([], [], color=_BOUND_COLOR, linestyle="-", label="sweep, spin increasing")
+        ax.plot([], [], color=_BOUND_COLOR, linestyle=_DOWN_DASH, label="sweep, spin decreasing")
+
+
+def _styled(groups: list[tuple[str, np.ndarray]]) -> list[tuple[str, np.ndarray, SeriesStyle]]:
+    return [
+        (label or "all runs", idx, HOUSE_STYLE[i % len(HOUSE_STYLE)])
+        for i, (label, idx) in enumerate(groups)
+    ]
+
+
 def plot_coefficient(
     results,
     name: str = "CL",
     *,
     ax: Axes | None = None,
-    by: str = "config",
+    by: str = "series",
     uncorrected: bool = True,
     theory: bool = True,
+    join: bool = True,
 ) -> Axes:
     """A coefficient against the spin ratio, with expanded-uncertainty bars in both.
 
@@ -290,11 +433,14 @@ def plot_coefficient(
     ax : matplotlib.axes.Axes, optional
         Where to draw; a new Figure's Axes when None.
     by : str
-        Group the runs by ``"config"``, ``"speed"`` or ``"re"``; each group gets a house style.
+        Group the runs by ``"series"`` (configuration and speed, the default), ``"config"``,
+        ``"speed"`` or ``"re"`` (:func:`group_runs`); each group gets a house style.
     uncorrected : bool
         Also draw the values before wall corrections (hollow markers, no bars).
     theory : bool
         For CL and CL_p, draw the potential-flow line CL = −2πα and Prandtl's |CL| = 4π.
+    join : bool
+        Join the runs of each sweep leg (:func:`sweep_legs`) within each group.
 
     Returns
     -------
@@ -303,9 +449,10 @@ def plot_coefficient(
     Notes
     -----
     Wall-corrected values are drawn with filled markers and error bars of ±k·u (k = 2) in α and in
-    the coefficient; uncorrected ones with hollow markers of the same style. The potential-flow
-    line is drawn where it holds, while the stagnation points stay on the surface (|α| ≤ 2); it
-    ends on Prandtl's limit |CL| = 4π.
+    the coefficient; uncorrected ones with hollow markers of the same style. Flagged runs are
+    ringed and left out of the sweep lines; legs of decreasing spin are dotted. The
+    potential-flow line is drawn where it holds, while the stagnation points stay on the surface
+    (|α| ≤ 2); it ends on Prandtl's limit |CL| = 4π.
 
     References
     ----------
@@ -327,12 +474,10 @@ def plot_coefficient(
         ax = _new_axes(ax)
         if theory:
             _theory_lines(ax, ds, name)
-        x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
-        y, uy = _values(ds, name), _values(ds, f"u_{name}")
-        for i, (label, idx) in enumerate(group_runs(ds, by)):
-            style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
-            _error_points(ax, x, y, ux, uy, idx, style, label or "all runs")
-            if uncorrected and f"{name}_uncorrected" in ds:
+        groups = _styled(group_runs(ds, by))
+        _draw_runs(ax, ds, "alpha", name, groups, join=join)
+        if uncorrected and f"{name}_uncorrected" in ds:
+            for label, idx, style in groups:
                 ax.plot(
                     _values(ds, "alpha_uncorrected")[idx],
                     _values(ds, f"{name}_uncorrected")[idx],
@@ -340,12 +485,94 @@ def plot_coefficient(
                     marker=style.marker,
                     markerfacecolor="none",
                     linestyle="none",
-                    label=f"{label or 'all runs'}, uncorrected",
+                    label=f"_{label}, uncorrected",  # one neutral legend key stands for all
+                    gid=UNCORRECTED_GID,
                     zorder=2,
                 )
+            ax.plot([], [], color=_BOUND_COLOR, marker="o", markerfacecolor="none",
+                    linestyle="none", label="hollow: before wall corrections")  # fmt: skip
         ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
         ax.set_ylabel(COEFFICIENT_LABELS[name])
-        ax.legend(title=_K_TEXT, loc="best")
+        _legend(ax)
+    return ax
+
+
+def _legend(ax: Axes) -> None:
+    """The legend titled with the coverage factor; beside the axes when it is long."""
+    count = len(ax.get_legend_handles_labels()[1])
+    if count > 6:
+        ax.legend(title=_K_TEXT, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7,
+                  title_fontsize=7, borderaxespad=0.0)  # fmt: skip
+    else:
+        ax.legend(title=_K_TEXT, loc="best", fontsize=7, title_fontsize=7)
+
+
+def plot_drag_polar(results, *, ax: Axes | None = None, by: str = "series") -> Axes:
+    """The drag polar: CL against CD, each run with k = 2 bars in both, sweeps joined.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+    ax : matplotlib.axes.Axes, optional
+    by : str
+        Grouping of the runs (:func:`group_runs`).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        Wall-corrected values; flagged runs ringed; each sweep leg joined in order of α.
+    """
+    ds = results_dataset(results)
+    for name in ("CL", "CD"):
+        if name not in ds:
+            raise ValueError(f"the results hold no {name!r}")
+    with house_style():
+        ax = _new_axes(ax)
+        _draw_runs(ax, ds, "CD", "CL", _styled(group_runs(ds, by)))
+        ax.set_xlabel(COEFFICIENT_LABELS["CD"])
+        ax.set_ylabel(COEFFICIENT_LABELS["CL"])
+        ax.set_title("Drag polar")
+        _legend(ax)
+    return ax
+
+
+def plot_pressure_lift(results, *, ax: Axes | None = None, by: str = "series") -> Axes:
+    """CL from ∮Cp (mid-span pressure) against CL from the balance, with the line of equality.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Results with ``CL`` and ``CL_p``.
+    ax : matplotlib.axes.Axes, optional
+    by : str
+        Grouping of the runs (:func:`group_runs`).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        Runs with both values, k = 2 bars in both; flagged runs ringed; no sweep lines (the
+        points are compared with the line CL_p = CL, not followed along α).
+    """
+    ds = results_dataset(results)
+    for name in ("CL", "CL_p"):
+        if name not in ds:
+            raise ValueError(f"the results hold no {name!r}")
+    both = np.isfinite(_values(ds, "CL")) & np.isfinite(_values(ds, "CL_p"))
+    if not both.any():
+        raise ValueError("no run has both CL and CL_p")
+    sub = ds.isel(run=np.flatnonzero(both))
+    with house_style():
+        ax = _new_axes(ax)
+        values = np.concatenate([_values(sub, "CL"), _values(sub, "CL_p")])
+        lo, hi = float(np.nanmin(values)), float(np.nanmax(values))
+        pad = 0.05 * (hi - lo or 1.0)
+        ax.plot([lo - pad, hi + pad], [lo - pad, hi + pad], color=_THEORY_COLOR, linewidth=1.0,
+                linestyle="--", label=r"$C_{L,p} = C_L$", zorder=1)  # fmt: skip
+        _draw_runs(ax, sub, "CL", "CL_p", _styled(group_runs(sub, by)), join=False)
+        ax.set_xlabel(r"lift coefficient from the balance $C_L$")
+        ax.set_ylabel(COEFFICIENT_LABELS["CL_p"])
+        ax.set_title("Lift from surface pressure against lift from the balance")
+        _legend(ax)
     return ax
 
 
@@ -455,6 +682,118 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
     return ax
 
 
+def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:
+    """A run's Cp(θ) in cartesian and polar form, with its expanded uncertainty made visible.
+
+    Parameters
+    ----------
+    results : xarray.Dataset, CampaignResults or path-like
+        Campaign results with ``Cp`` and ``u_Cp``.
+    run : str
+        The run id.
+    fig : matplotlib.figure.Figure, optional
+        Where to draw; a new Figure when None.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Left: :func:`plot_cp` (cartesian) above a strip of the band's half-width k·u(Cp) against
+        θ, so a band too thin to see at the scale of Cp still shows its size; right: the polar
+        form. The title says when the run raised quality flags.
+    """
+    ds = results_dataset(results)
+    with house_style():
+        if fig is None:
+            fig = Figure(figsize=(9.6, 4.6), layout="constrained")
+        grid = fig.add_gridspec(2, 2, height_ratios=(3.2, 1.0), width_ratios=(1.25, 1.0))
+        ax_cp = fig.add_subplot(grid[0, 0])
+        ax_u = fig.add_subplot(grid[1, 0], sharex=ax_cp)
+        ax_polar = fig.add_subplot(grid[:, 1], projection="polar")
+        plot_cp(ds, run, ax=ax_cp)
+        plot_cp(ds, run, ax=ax_polar, polar=True)
+        ax_cp.set_xlabel("")
+        ax_cp.legend(loc="best", fontsize=6.5)
+        row = ds.sel(run=run)
+        theta = _wrap(ds["theta"].values)
+        order = np.argsort(theta)
+        u = np.asarray(row["u_Cp"].values, dtype=float)[order] if "u_Cp" in row else None
+        if u is not None:
+            style = HOUSE_STYLE[0]
+            ax_u.fill_between(theta[order], 0, COVERAGE_FACTOR * u, color=style.color, alpha=0.35,
+                              linewidth=0)  # fmt: skip
+            ax_u.plot(theta[order], COVERAGE_FACTOR * u, color=style.color, linewidth=0.9)
+            ax_u.set_ylim(bottom=0)
+        ax_u.set_ylabel(r"$k\,u(C_p)$, k = 2", fontsize=7)
+        ax_u.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
+        ax_polar.set_title("polar form (flow from the left)", fontsize=8, pad=14)
+        ax_polar.legend().remove()
+        flags = str(row["flags"].item()) if "flags" in row else ""
+        if flags:
+            fig.suptitle(f"run {run}: flagged ({flags.replace(';', ', ')})", fontsize=9)
+    return fig
+
+
+def plot_axes_sketch(ax: Axes | None = None) -> Axes:
+    """A sketch of the model's axes and sign conventions (docs/conventions.md).
+
+    x downstream, y the lift axis, z = x × y along the cylinder axis (out of the page);
+    ω > 0 counter-clockwise seen from +z; θ from the windward point, increasing with positive
+    spin; positive spin gives lift towards −y (CL < 0, CL = −2πα in potential flow).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes, optional
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    with house_style():
+        ax = _new_axes(ax, size=(4.6, 3.4))
+        ax.set_aspect("equal")
+        ax.axis("off")
+        ink = _THEORY_COLOR
+        ax.add_patch(mpl.patches.Circle((0, 0), 1.0, fill=False, color=ink, linewidth=1.4))
+        arrow = {"arrowstyle": "-|>", "color": ink, "linewidth": 1.1, "mutation_scale": 10}
+        # Free stream from the left.
+        for yy in (-0.6, 0.0, 0.6):
+            ax.annotate("", xy=(-1.5, yy), xytext=(-2.6, yy), arrowprops=arrow)
+        ax.text(-2.6, 0.85, r"$U_\infty$", fontsize=9)
+        # Axes at the centre: x downstream, y up, z out of the page.
+        axis = dict(arrow, color=HOUSE_STYLE[0].color)
+        ax.annotate("", xy=(2.3, 0), xytext=(0, 0), arrowprops=axis)
+        ax.text(2.35, -0.1, "x", color=HOUSE_STYLE[0].color)
+        ax.annotate("", xy=(0, 2.0), xytext=(0, 0), arrowprops=axis)
+        ax.text(0.08, 1.95, "y (lift axis)", color=HOUSE_STYLE[0].color, fontsize=8)
+        ax.plot([0], [0], marker="o", markersize=6, markerfacecolor="white",
+                markeredgecolor=HOUSE_STYLE[0].color)  # fmt: skip
+        ax.plot([0], [0], marker=".", markersize=3, color=HOUSE_STYLE[0].color)
+        ax.text(-0.45, -0.35, "z", color=HOUSE_STYLE[0].color)
+        # Positive spin: counter-clockwise seen from +z.
+        spin = mpl.patches.FancyArrowPatch(
+            (0.55, -0.35), (0.35, 0.55), connectionstyle="arc3,rad=0.55", **arrow
+        )
+        ax.add_patch(spin)
+        ax.text(0.62, 0.12, r"$\omega > 0$", fontsize=8)
+        # θ from the windward point (−R, 0), increasing with positive spin (towards −y).
+        arc = np.radians(np.linspace(180, 240, 30))
+        ax.plot(1.25 * np.cos(arc), 1.25 * np.sin(arc), color=HOUSE_STYLE[1].color, linewidth=1)
+        ax.annotate("", xy=(1.25 * np.cos(arc[-1]), 1.25 * np.sin(arc[-1])),
+                    xytext=(1.25 * np.cos(arc[-3]), 1.25 * np.sin(arc[-3])),
+                    arrowprops=dict(arrow, color=HOUSE_STYLE[1].color))  # fmt: skip
+        ax.plot([-1.0], [0.0], marker="o", markersize=3, color=HOUSE_STYLE[1].color)
+        ax.text(-1.75, -0.95, r"$\theta$", color=HOUSE_STYLE[1].color)
+        # The forces for positive spin: drag along +x, lift along −y.
+        force = dict(arrow, color=HOUSE_STYLE[2].color, linewidth=1.6)
+        ax.annotate("", xy=(0.9, -2.1), xytext=(0.9, -1.1), arrowprops=force)
+        ax.text(1.0, -2.0, "L < 0 for ω > 0", color=HOUSE_STYLE[2].color, fontsize=8)
+        ax.annotate("", xy=(2.0, -0.9), xytext=(1.2, -0.9), arrowprops=force)
+        ax.text(1.55, -0.75, "D", color=HOUSE_STYLE[2].color, fontsize=8)
+        ax.set_xlim(-2.8, 3.4)
+        ax.set_ylim(-2.3, 2.3)
+    return ax
+
+
 def _stream_time_label(ax: Axes) -> None:
     ax.set_xlabel("time from the start of the run [s]")
 
@@ -477,9 +816,10 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
 
     Notes
     -----
-    α(t) = ω(t) R / U(t) on the common time base of :func:`tunnelred.physics.conditions.spin_steadiness`,
-    with its mean and the band mean·(1 ± spin_scatter tolerance); U(t) from
-    :func:`tunnelred.physics.conditions.free_stream` (uncorrected), with mean·(1 ± speed_drift tolerance).
+    α(t) = ω(t) R / U(t) on the common time base of
+    :func:`tunnelred.physics.conditions.spin_steadiness`, with its mean and the band
+    mean·(1 ± spin_scatter tolerance); U(t) from :func:`tunnelred.physics.conditions.free_stream`
+    (uncorrected), with mean·(1 ± speed_drift tolerance).
     The zero panel shows each wind-off zero run's mean channel signals against clock time (the
     zeros nearest the run), those the run uses filled, the run's start marked: a step or trend
     there is what the zero_shift flag judges.
@@ -602,10 +942,6 @@ def _zero_panel(ax: Axes, campaign, spec) -> None:
     ax.legend(loc="best", ncols=2)
 
 
-def _other_split(by: str) -> str:
-    return "speed" if by == "config" else "config"
-
-
 def plot_comparison(
     results, name: str = "CL", *, by: str = "config", ax: Axes | None = None
 ) -> Axes:
@@ -618,7 +954,7 @@ def plot_comparison(
     name : str
         The coefficient against α (as :func:`plot_coefficient`).
     by : str
-        ``"config"``, ``"speed"`` or ``"re"``: one house style per group.
+        ``"config"``, ``"speed"`` or ``"re"``: one colour per group.
     ax : matplotlib.axes.Axes, optional
         Where to draw; a new one when None.
 
@@ -628,49 +964,36 @@ def plot_comparison(
 
     Notes
     -----
-    Each group's runs are joined in order of α by the group's line style, one line per speed
-    (grouping by configuration) or per configuration (grouping by speed or Re), so runs of
-    another sweep are never joined across; bars are ±2u (k = 2). Wall-corrected values only.
+    Each group of ``by`` has its colour; within it, each configuration (grouping by speed or
+    Re) or each speed (grouping by configuration) has its marker, and the legend names both.
+    Each sweep leg is joined in order of α, so runs of another sweep are never joined across;
+    flagged runs are ringed and left out of the lines; bars are ±2u (k = 2). Wall-corrected
+    values only.
     """
     ds = results_dataset(results)
     _check_name(ds, name)
-    x, ux = _values(ds, "alpha"), _values(ds, "u_alpha")
-    y, uy = _values(ds, name), _values(ds, f"u_{name}")
-    inner = dict(group_runs(ds, _other_split(by)))
-    handles = []
+    if by not in ("config", "speed", "re"):
+        raise ValueError(f"by must be 'config', 'speed' or 're', not {by!r}")
+    inner = group_runs(ds, "speed" if by == "config" else "config")
+    outer = group_runs(ds, by)
+    groups = []
+    for i, (label, idx) in enumerate(outer):
+        colour = HOUSE_STYLE[i % len(HOUSE_STYLE)]
+        for j, (inner_label, members) in enumerate(inner):
+            part = np.intersect1d(idx, members)
+            if part.size == 0:
+                continue
+            mark = HOUSE_STYLE[j % len(HOUSE_STYLE)].marker
+            text = label if len(inner) < 2 else f"{label}, {inner_label or 'all runs'}"
+            groups.append((text, part, SeriesStyle(colour.color, mark, colour.linestyle)))
     with house_style():
         ax = _new_axes(ax)
-        for i, (label, idx) in enumerate(group_runs(ds, by)):
-            style = HOUSE_STYLE[i % len(HOUSE_STYLE)]
-            # The legend shows marker and dash together, so that it still reads in greyscale.
-            handles.append(
-                Line2D(
-                    [],
-                    [],
-                    color=style.color,
-                    marker=style.marker,
-                    linestyle=style.linestyle,
-                    label=label,
-                )
-            )
-            _error_points(ax, x, y, ux, uy, idx, style, label)
-            for members in inner.values():
-                part = np.intersect1d(idx, members)
-                part = part[np.argsort(x[part])]
-                if part.size > 1:
-                    ax.plot(
-                        x[part],
-                        y[part],
-                        color=style.color,
-                        linestyle=style.linestyle,
-                        linewidth=1.0,
-                        zorder=2,
-                    )
+        _draw_runs(ax, ds, "alpha", name, groups)
         ax.set_xlabel(COEFFICIENT_LABELS["alpha"])
         ax.set_ylabel(COEFFICIENT_LABELS[name])
         title = {"config": "configuration", "speed": "tunnel speed", "re": "Reynolds number"}[by]
         ax.set_title(f"{name} by {title}")
-        ax.legend(handles=handles, title=_K_TEXT, loc="best")
+        _legend(ax)
     return ax
 
 
@@ -818,7 +1141,7 @@ def save_standard_figures(results, out_dir) -> list[Path]:
         ``<X>_alpha.png`` for each of CL, CD, CM, C_power, L_D, CL_p, CD_p with finite values;
         ``<X>_by_speed.png`` and ``<X>_by_re.png`` for CL and CD when the campaign ran more than
         one speed; ``spin_scatter.png`` and ``speed_drift.png`` (:func:`plot_steadiness`);
-        ``cp_<run>.png`` for the :func:`representative_runs`.
+        ``cp_<run>.png`` (:func:`plot_cp_pair`) for the :func:`representative_runs`.
     """
     ds = results_dataset(results)
     folder = Path(out_dir) / "figures"
@@ -829,6 +1152,10 @@ def save_standard_figures(results, out_dir) -> list[Path]:
     for name in present:
         ax = plot_coefficient(ds, name)
         written.append(_save(ax.figure, folder / f"{name}_alpha.png"))
+    if {"CL", "CD"} <= set(present):
+        written.append(_save(plot_drag_polar(ds).figure, folder / "drag_polar.png"))
+    if {"CL", "CL_p"} <= set(present) and _has_both(ds, "CL", "CL_p"):
+        written.append(_save(plot_pressure_lift(ds).figure, folder / "CL_p_CL.png"))
     if len(group_runs(ds, "speed")) > 1:
         for name in [n for n in ("CL", "CD") if n in present]:
             for by in ("speed", "re"):
@@ -839,9 +1166,12 @@ def save_standard_figures(results, out_dir) -> list[Path]:
         written.append(_save(ax.figure, folder / f"{name}.png"))
     if "Cp" in ds:
         for run in representative_runs(ds):
-            ax = plot_cp(ds, run)
-            written.append(_save(ax.figure, folder / f"cp_{run}.png"))
+            written.append(_save(plot_cp_pair(ds, run), folder / f"cp_{run}.png"))
     return written
+
+
+def _has_both(ds: xr.Dataset, a: str, b: str) -> bool:
+    return bool((np.isfinite(_values(ds, a)) & np.isfinite(_values(ds, b))).any())
 
 
 def _has_values(ds: xr.Dataset, name: str) -> bool:
