@@ -1,11 +1,13 @@
 """The PDF test report of a reduced campaign (docs/report.md lists what it holds).
 
 The report is built with reportlab's platypus from an output folder of
-:func:`tunnelred.pipeline.campaign.reduce_campaign`: results.nc, budgets.csv and failures.csv, plus the
-campaign folder when it is known (for campaign.toml and the flag tolerances). Figures are drawn by
-:mod:`tunnelred.products.plotting` and embedded as 200 dpi PNG. Every piece of text that users wrote (titles,
-notes, labels, run ids, file names) is escaped before it enters reportlab's paragraph markup, and
-the file is written atomically.
+:func:`tunnelred.pipeline.campaign.reduce_campaign`: results.nc, budgets.csv and failures.csv,
+plus the campaign folder when it is known (report control, model, instruments, flag
+tolerances). Figures are drawn by :mod:`tunnelred.products.plotting` and embedded as 200 dpi PNG;
+they are the only images a report holds. Every string from a file (results.nc attributes,
+campaign.toml, CSV cells: titles, notes, labels, run ids, file names, hashes) is escaped before it
+enters reportlab's paragraph markup, and the report's own markup is checked to hold only inline
+tags. The file is written atomically.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ import importlib.util
 import io
 import json
 import math
+import re
 from datetime import UTC, datetime
 from pathlib import Path
 from xml.sax.saxutils import escape
@@ -60,13 +63,15 @@ __all__ = ["SECTIONS", "CAUTIONS", "write_report", "format_uncertain"]
 #: campaign has more than one configuration and tunnelred.products.compare is installed).
 SECTIONS = (
     "Summary",
-    "Test conditions",
-    "Wall corrections",
+    "Model",
+    "Test matrix and run log",
+    "Instrumentation",
+    "Procedures",
+    "Data reduction",
+    "Uncertainty statement",
     "Results",
-    "Surface pressure",
-    "Uncertainty budget",
     "Quality flags",
-    "Appendix: configuration and input files",
+    "Appendix: input files",
 )
 _COMPARISON = "Configuration comparison"
 
@@ -87,7 +92,7 @@ _FIGURE_DPI = 200
 _BUDGET_ROWS = 6  # contributors listed per output
 _SECTION_ROOM = 70 * mm  # least room below a section heading for it to start on this page
 _TABLE_ROOM = 35 * mm  # least room for a table's caption and first rows
-_PLOT_SIZE = (6.4, 3.7)  # inches, for figures drawn for the report
+_PLOT_SIZE = (7.4, 3.5)  # inches, for figures drawn for the report
 _GRID = colors.HexColor("#b0b0b0")
 _HEAD_FILL = colors.HexColor("#e4ecf4")
 _STRIPE = colors.HexColor("#f6f6f6")
@@ -184,6 +189,10 @@ def _styles(faces: dict[str, str]) -> dict[str, ParagraphStyle]:
             "mono", parent=body, fontName=faces["mono"], fontSize=6.5, leading=8
         ),
         "toc": ParagraphStyle("toc", parent=body, fontSize=10, leading=15),
+        "formula": ParagraphStyle("formula", parent=body, leftIndent=14, spaceAfter=3),
+        "end": ParagraphStyle(
+            "end", parent=body, fontName=faces["bold"], alignment=TA_CENTER, spaceBefore=6
+        ),
     }
 
 
@@ -191,8 +200,12 @@ def _styles(faces: dict[str, str]) -> dict[str, ParagraphStyle]:
 # Page furniture: running header, "page N of M"
 
 
-def _canvas_class(title: str, date: str, faces: dict[str, str]):
-    """A canvas that holds its pages back until the end, so each can say "page N of M"."""
+def _canvas_class(title: str, footer: str, faces: dict[str, str]):
+    """A canvas that holds its pages back until the end, so each can say "page N of M".
+
+    Every page carries the report's identification (number and revision) and "page N of M"
+    (ISO/IEC 17025:2017 §7.8.2.1 c); pages after the first also the title.
+    """
 
     class _ReportCanvas(Canvas):
         def __init__(self, *args, **kwargs):
@@ -219,13 +232,14 @@ def _canvas_class(title: str, date: str, faces: dict[str, str]):
             if self._pageNumber > 1:
                 self.setFont(faces["body"], 8)
                 top = height - _MARGIN + 6 * mm
-                self.drawString(_MARGIN, top, _clip(title, 90))
-                self.drawRightString(width - _MARGIN, top, f"report of {date}")
+                self.drawString(_MARGIN, top, _clip(title, 80))
+                self.drawRightString(width - _MARGIN, top, _clip(footer, 48))
                 self.line(_MARGIN, top - 2 * mm, width - _MARGIN, top - 2 * mm)
             self.setFont(faces["body"], 8)
             bottom = _MARGIN - 8 * mm
             self.line(_MARGIN, bottom + 4 * mm, width - _MARGIN, bottom + 4 * mm)
-            self.drawString(_MARGIN, bottom, f"tunnelred {__version__}")
+            self.drawString(_MARGIN, bottom, _clip(footer, 60))
+            self.drawCentredString(width / 2, bottom, f"tunnelred {__version__}")
             self.drawRightString(width - _MARGIN, bottom, f"page {self._pageNumber} of {total}")
             self.restoreState()
 
@@ -317,6 +331,17 @@ def _fixed(value, decimals: int) -> str:
 # Building blocks
 
 
+_OWN_TAGS = {"b", "i", "br", "sub", "super"}  # the only tags the report's own markup uses
+_TAG = re.compile(r"<\s*/?\s*([A-Za-z]+)[^>]*>")
+
+
+def _check_markup(text: str) -> None:
+    """Refuse markup with a tag the report never writes itself (a programming error)."""
+    for match in _TAG.finditer(text):
+        if match.group(1).lower() not in _OWN_TAGS:
+            raise ValueError(f"markup with a <{match.group(1)}> tag: escape the text first")
+
+
 class _Builder:
     """Holds the styles and the story while the sections are written."""
 
@@ -336,8 +361,15 @@ class _Builder:
         return f"Figure {self._figures}."
 
     def p(self, text: str, style: str = "body", *, markup: bool = False) -> Paragraph:
-        """A paragraph; ``text`` is escaped unless it is our own markup."""
-        return Paragraph(text if markup else escape(text), self.s[style])
+        """A paragraph; ``text`` is escaped unless it is our own markup.
+
+        Our own markup holds only the inline tags of :data:`_OWN_TAGS`, with every piece of
+        text from a file escaped into it; anything else (an image, a link) is refused, so no
+        string from results.nc, a CSV or campaign.toml can make the report embed or link a file.
+        """
+        if markup:
+            _check_markup(text)
+        return Paragraph(text if markup else escape(str(text)), self.s[style])
 
     def add(self, *flowables) -> None:
         self.story.extend(flowables)
@@ -358,20 +390,28 @@ class _Builder:
         widths: list[float],
         *,
         caption: str = "",
-        numeric_from: int = 1,
+        compact: bool = False,
+        padding: float = 1.5,
     ) -> None:
-        """A table that splits across pages, repeating its header row; cells are escaped."""
+        """A table that splits across pages, repeating its header row; cells are escaped.
+
+        A cell is text (escaped here) or a Paragraph this builder made; nothing else.
+        """
+        cell = "small" if compact else "cell"
         data = [[self.p(h, "head") for h in header]]
         for row in rows:
-            data.append([c if not isinstance(c, str) else self.p(c, "cell") for c in row])
+            for c in row:
+                if not isinstance(c, str | Paragraph):
+                    raise TypeError(f"a table cell must be text or a Paragraph, not {c!r}")
+            data.append([c if not isinstance(c, str) else self.p(c, cell) for c in row])
         scale = _WIDTH / sum(widths)
         table = LongTable(data, colWidths=[w * scale for w in widths], repeatRows=1)
         style = [
             ("GRID", (0, 0), (-1, -1), 0.4, _GRID),
             ("BACKGROUND", (0, 0), (-1, 0), _HEAD_FILL),
             ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
-            ("TOPPADDING", (0, 0), (-1, -1), 1.5),
-            ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
+            ("TOPPADDING", (0, 0), (-1, -1), padding),
+            ("BOTTOMPADDING", (0, 0), (-1, -1), padding),
             ("LEFTPADDING", (0, 0), (-1, -1), 3),
             ("RIGHTPADDING", (0, 0), (-1, -1), 3),
         ]
@@ -385,6 +425,9 @@ class _Builder:
         self.add(Spacer(1, 4 * mm))
 
     def figure(self, fig, caption: str, *, width: float = _WIDTH) -> None:
+        """A figure this report drew (the only images a report holds), with its caption."""
+        if not isinstance(fig, Figure):
+            raise TypeError("the report embeds only the figures it draws")
         buffer = io.BytesIO()
         fig.savefig(buffer, format="png", dpi=_FIGURE_DPI)
         w_in, h_in = fig.get_size_inches()
@@ -409,7 +452,8 @@ class _Inputs:
         self.campaign = _campaign(campaign)
         self.table = store.run_table(self.ds)
         self.methods = _json_attr(self.ds, "methods")
-        self.hashes = _json_attr(self.ds, "input_sha256")
+        self.hashes = {str(k): str(v) for k, v in _json_attr(self.ds, "input_sha256").items()}
+        self.control = _Control(self.campaign)
 
     @property
     def title(self) -> str:
@@ -449,45 +493,125 @@ def _campaign(campaign):
 
 
 # ---------------------------------------------------------------------------------------------
+# Report control: the [report] table of campaign.toml, blank where absent
+
+
+class _Control:
+    """Report number, revision, client, signatories … as campaign.toml states them ('' if not)."""
+
+    FIELDS = (
+        "number",
+        "revision",
+        "client",
+        "client_address",
+        "laboratory_address",
+        "location",
+        "prepared_by",
+        "checked_by",
+        "approved_by",
+        "date_of_issue",
+        "method",
+        "deviations",
+    )
+
+    def __init__(self, campaign):
+        config = campaign.config if campaign is not None else None
+        info = getattr(config, "report", None)
+        for name in self.FIELDS:
+            setattr(self, name, str(getattr(info, name, "") or ""))
+        self.distribution = tuple(str(d) for d in (getattr(info, "distribution", ()) or ()))
+        self.history = tuple(getattr(info, "revision_history", ()) or ())
+
+    @property
+    def footer(self) -> str:
+        number = self.number or "____________"
+        return f"Report number {number}, revision {self.revision or '__'}"
+
+
+# ---------------------------------------------------------------------------------------------
 # Sections
+
+
+_BLANK = "_" * 28  # a line to fill in by hand, where campaign.toml states nothing
+_SIGNATURE = "_" * 30
+
+#: The statements ISO/IEC 17025:2017 §7.8.2.1 asks of every report.
+STATEMENTS = (
+    "The results relate only to the item tested, as received and in the configurations "
+    "described in this report.",
+    "This report shall not be reproduced except in full without the written approval of the "
+    "laboratory.",
+)
+
+
+def _or_blank(text: str) -> str:
+    return text if text else _BLANK
 
 
 def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
     ds = data.ds
+    control = data.control
     info = data.campaign.config.campaign if data.campaign is not None else None
-    b.add(Spacer(1, 30 * mm))
+    b.add(Spacer(1, 8 * mm))
     b.add(b.p("Wind-tunnel test report", "subtitle"))
     b.add(b.p(data.title, "title"))
     facility = str(ds.attrs.get("facility", ""))
-    if facility:
-        b.add(b.p(facility, "subtitle"))
-    if info is not None and info.date:
-        b.add(b.p(f"Test dates: {info.date}", "subtitle"))
-    b.add(b.p(f"Report date: {date}", "subtitle"))
+    b.add(b.p(facility or "(laboratory not stated)", "subtitle"))
+    if control.laboratory_address:
+        b.add(b.p(control.laboratory_address, "subtitle"))
+    b.add(Spacer(1, 4 * mm))
     n_runs = ds.sizes["run"]
     n_failed = data.failures["run"].nunique() if "run" in data.failures else 0
-    n_flagged = int(sum(bool(f) for f in ds["flags"].values)) if "flags" in ds else 0
-    b.add(Spacer(1, 6 * mm))
-    b.add(
-        b.p(
+    n_flagged = int(plotting.flagged_runs(ds).sum())
+    rows = [
+        ["Report number", _or_blank(control.number)],
+        ["Revision", _or_blank(control.revision)],
+        ["Client", _or_blank(control.client)],
+        ["Client address", _or_blank(control.client_address)],
+        ["Place of test", _or_blank(control.location or facility)],
+        ["Dates of test", _or_blank(info.date if info is not None else "")],
+        ["Date of issue", _or_blank(control.date_of_issue)],
+        ["Report generated", date],
+        ["Distribution", _or_blank("; ".join(control.distribution))],
+        [
+            "Runs",
             f"{n_runs} data runs reduced, {n_flagged} flagged, {n_failed} could not be reduced",
-            "subtitle",
+        ],
+    ]
+    b.table(["report control", ""], rows, [1.1, 3.0])
+    b.add(b.p("Signatures", "h2"))
+    rows = [
+        [role, _or_blank(name), _SIGNATURE, "date: ________"]
+        for role, name in (
+            ("Prepared by", control.prepared_by),
+            ("Checked by", control.checked_by),
+            ("Approved by", control.approved_by),
         )
-    )
-    if info is not None and info.notes:
-        b.add(Spacer(1, 4 * mm))
-        b.add(b.p(info.notes, "body"))
-    b.add(Spacer(1, 10 * mm))
+    ]
+    b.table(["", "name", "signature", ""], rows, [0.9, 1.5, 1.5, 0.9], padding=6)
+    b.add(b.p("Approved by: the person who authorises this report for issue.", "small"))
+    for text in STATEMENTS:
+        b.add(b.p(text, "caution"))
     b.add(b.p("Cautions", "h2"))
     for text in CAUTIONS:
         b.add(b.p(f"• {text}", "caution"))
+    b.add(PageBreak())
+    b.add(b.p("Revision history", "h2"))
+    history = [
+        [str(getattr(h, key, "")) for key in ("revision", "date", "change")]
+        for h in control.history
+    ] or [[_or_blank(control.revision), _or_blank(control.date_of_issue), "first issue"]]
+    b.table(["revision", "date", "change"], history, [0.8, 1.0, 4.0])
+    if info is not None and info.notes:
+        b.add(b.p("Campaign notes", "h2"))
+        b.add(b.p(info.notes))
     b.add(b.p("Provenance", "h2"))
     methods = data.methods
     rows = [
         ["tunnelred version", str(ds.attrs.get("tunnelred_version", ""))],
         ["results created (UTC)", str(ds.attrs.get("created", ""))],
         ["campaign.toml SHA-256", str(ds.attrs.get("config_sha256", ""))],
-        ["input files hashed", str(len(data.hashes))],
+        ["input files hashed", f"{len(data.hashes)} (listed in the appendix)"],
         ["blockage method", _blockage_text(methods)],
         ["lift interference", _on_off(methods.get("lift_interference"))],
         ["buoyancy", _on_off(methods.get("buoyancy"))],
@@ -495,7 +619,6 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
         ["results folder", str(data.out)],
     ]
     b.table(["item", "value"], rows, [1, 2.6])
-    b.add(PageBreak())
     b.add(b.p("Contents", "h2"))
     toc = TableOfContents()
     toc.levelStyles = [b.s["toc"]]
@@ -504,12 +627,66 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
     b.add(PageBreak())
 
 
-def _axes():
-    return Figure(figsize=_PLOT_SIZE, layout="constrained").add_subplot()
+def _blockage_text(methods: dict) -> str:
+    """The method applied, and what campaign.toml asked for when config substituted it."""
+    used = str(methods.get("blockage", "–"))
+    requested = methods.get("blockage_requested")
+    return f"{used} (campaign.toml: {requested})" if requested else used
+
+
+def _axes(size=_PLOT_SIZE):
+    return Figure(figsize=size, layout="constrained").add_subplot()
 
 
 def _on_off(value) -> str:
     return "–" if value is None else ("on" if value else "off")
+
+
+def _efficiency_half(alpha: np.ndarray, efficiency: np.ndarray) -> float:
+    """The first α, going up in |α| from 0, where the lift efficiency falls through 50 %.
+
+    Linear between neighbouring runs; NaN when it never reaches 50 % within the sweep.
+    """
+    usable = np.isfinite(alpha) & np.isfinite(efficiency) & (np.abs(alpha) > 0)
+    a, e = np.abs(alpha[usable]), efficiency[usable]
+    order = np.argsort(a)
+    a, e = a[order], e[order] - 0.5
+    cross = np.flatnonzero((e[:-1] > 0) & (e[1:] <= 0))
+    if cross.size == 0:
+        return np.nan
+    i = cross[0]
+    return float(a[i] + (a[i + 1] - a[i]) * e[i] / (e[i] - e[i + 1]))
+
+
+def _findings(data: _Inputs) -> list[list[str]]:
+    """One row per sweep: lift slope, max |CL|, min CD, max |L/D|, α at lift efficiency 50 %."""
+    from tunnelred.products import compare
+
+    rows = []
+    sweeps = compare.find_sweeps(data.ds)
+    for sweep in sweeps:
+        if np.unique(sweep.arrays["spin_point"]).size < 3:
+            continue  # a retake of one or two points is no sweep to characterise
+        c = compare.characteristics(sweep)
+        arrays = sweep.arrays
+        half = _efficiency_half(
+            np.asarray(arrays.get("alpha", []), dtype=float),
+            np.asarray(arrays.get("lift_efficiency", np.full(len(sweep.runs), np.nan)), float),
+        )
+        rows.append(
+            [
+                sweep.key,
+                format_uncertain(c["dCL_dalpha"], _K * c["u_dCL_dalpha"]),
+                format_uncertain(c["CL_peak"], _K * c["u_CL_peak"])
+                + f" at α {_fixed(c['alpha_CL_peak'], 2)}",
+                format_uncertain(c["CD_min"], _K * c["u_CD_min"])
+                + f" at α {_fixed(c['alpha_CD_min'], 2)}",
+                format_uncertain(c["L_D_peak"], _K * c["u_L_D_peak"])
+                + f" at α {_fixed(c['alpha_L_D_peak'], 2)}",
+                _fixed(half, 2),
+            ]
+        )
+    return rows
 
 
 def _summary(b: _Builder, data: _Inputs) -> None:
@@ -527,7 +704,90 @@ def _summary(b: _Builder, data: _Inputs) -> None:
             "intro",
         )
     )
-    header = ["configuration"] + [label for label, _ in speeds]
+    rows = _findings(data)
+    if rows:
+        b.table(
+            ["sweep", "dCL/dα", "max |CL|", "min CD", "max |L/D|", "α at 50 % lift efficiency"],
+            rows,
+            [1.7, 1.2, 1.7, 1.7, 1.7, 0.9],
+            caption=f"{b.next_table()} Findings of each sweep (configuration | speed | "
+            "direction of the spin steps); values ± expanded uncertainty (k = 2). dCL/dα: "
+            "weighted straight line through |α| ≤ 0.5 (potential flow: −2π = −6.283). Lift "
+            "efficiency: CL / (−2πα), the lift as a fraction of potential flow's.",
+        )
+    flagged = [(r, f) for r, f in zip(data.runs, _flags(ds), strict=True) if f]
+    if flagged:
+        b.add(
+            b.p(
+                f"<b>Flags.</b> {len(flagged)} run(s) raised quality flags (reasons under "
+                "Quality flags): "
+                + ", ".join(f"{escape(r)} ({escape(f.replace(';', ', '))})" for r, f in flagged)
+                + ".",
+                markup=True,
+            )
+        )
+    else:
+        b.add(b.p("No run raised a quality flag."))
+
+
+def _flags(ds: xr.Dataset) -> list[str]:
+    if "flags" not in ds:
+        return [""] * ds.sizes["run"]
+    return ["" if not isinstance(f, str) else f for f in ds["flags"].values]
+
+
+def _model(b: _Builder, data: _Inputs) -> None:
+    b.section("Model")
+    cfg = data.campaign.config if data.campaign is not None else None
+    if cfg is None:
+        b.add(b.p("The campaign folder was not given: the model is described by its results only."))
+        return
+    model, tunnel = cfg.model, cfg.tunnel
+    b.add(
+        b.p(
+            "The item tested: a circular cylinder spun about its own axis (z), mounted across the "
+            "test section on the force balance.",
+            "intro",
+        )
+    )
+    surface = str(getattr(model, "surface", "") or "")
+    photo = str(getattr(model, "photo", "") or "")
+    rows = [
+        ["diameter d", f"{format_uncertain(1000 * model.diameter, 2000 * model.u_diameter)} mm"],
+        ["span b", f"{format_uncertain(1000 * model.span, 2000 * model.u_span)} mm"],
+        ["aspect ratio b/d", _fixed(model.span / model.diameter, 2)],
+        ["spans the section", "yes (two-dimensional)" if model.spans_section else "no"],
+        ["surface", _or_blank(surface)],
+        ["photograph (file, not embedded)", _or_blank(photo)],
+        [
+            "test section",
+            f"{tunnel.section}, {_fixed(tunnel.height, 3)} m (y) × {_fixed(tunnel.width, 3)} m (z)",
+        ],  # fmt: skip
+        ["diameter / height d/h", _fixed(model.diameter / tunnel.height, 4)],
+    ]
+    if model.transducer_radius:
+        rows.append(["radius of the on-board transducer", f"{1000 * model.transducer_radius:g} mm"])
+    b.table(["geometry", "value (± U, k = 2)"], rows, [1.4, 2.6],
+            caption=f"{b.next_table()} Model and test section.")  # fmt: skip
+    rows = []
+    for label, c in cfg.configurations.items():
+        plates = "yes" if c.end_plates else "no"
+        if c.end_plates and c.end_plate_diameter:
+            plates += f", diameter {1000 * c.end_plate_diameter:g} mm"
+        rows.append([label, c.description, plates])
+    b.table(["configuration", "description", "end plates"], rows, [1.0, 3.0, 1.6],
+            caption=f"{b.next_table()} Configurations tested.")  # fmt: skip
+
+
+_RPM = 60.0 / (2.0 * math.pi)
+
+
+def _run_log(b: _Builder, data: _Inputs) -> None:
+    ds = data.ds
+    b.section("Test matrix and run log")
+    alpha = data.column("alpha")
+    configs = plotting.group_runs(ds, "config")
+    speeds = plotting.group_runs(ds, "speed")
     rows = []
     for label, idx in configs:
         row = [label or "(none)"]
@@ -541,64 +801,66 @@ def _summary(b: _Builder, data: _Inputs) -> None:
                 f"{both.size} runs, α {_fixed(np.nanmin(a), 2)} to {_fixed(np.nanmax(a), 2)}"
             )
         rows.append(row)
-    b.add(b.p("Test matrix", "h2"))
     b.table(
-        header,
+        ["configuration"] + [label for label, _ in speeds],
         rows,
         [1.2] + [1.6] * len(speeds),
-        caption=f"{b.next_table()} Runs by configuration and tunnel speed, with their "
-        "spin-ratio range.",
+        caption=f"{b.next_table()} Test matrix: runs by configuration and tunnel speed, with "
+        "their spin-ratio range.",
     )
-    flagged = [(r, f) for r, f in zip(data.runs, _flags(ds), strict=True) if f]
-    b.add(b.p("Flagged runs", "h2"))
-    if flagged:
-        b.add(
-            b.p(
-                f"{len(flagged)} run(s) raised quality flags (reasons under Quality flags): "
-                + ", ".join(f"{r} ({f.replace(';', ', ')})" for r, f in flagged)
-                + "."
-            )
-        )
-    else:
-        b.add(b.p("No run raised a quality flag."))
-    b.add(b.p("Lift and drag", "h2"))
-    for name in ("CL", "CD"):
-        if name in ds and np.isfinite(data.column(name)).any():
-            ax = plotting.plot_coefficient(ds, name, ax=_axes())
-            b.figure(
-                ax.figure,
-                f"{b.next_figure()} {name} against spin ratio, wall-corrected (filled) and "
-                "uncorrected (hollow); bars are expanded uncertainties, k = 2."
-                + (" The line is potential flow, CL = −2πα." if name == "CL" else ""),
-                width=0.85 * _WIDTH,
-            )
-
-
-def _flags(ds: xr.Dataset) -> list[str]:
-    if "flags" not in ds:
-        return [""] * ds.sizes["run"]
-    return ["" if not isinstance(f, str) else f for f in ds["flags"].values]
-
-
-def _conditions(b: _Builder, data: _Inputs) -> None:
-    b.section("Test conditions")
-    b.add(
-        b.p(
-            "Run means of the free stream, wall-corrected (q, U, Re), and of the air: temperature "
-            "T, barometric pressure p, relative humidity RH and density ρ (CIPM-2007).",
-            "intro",
-        )
-    )
-    cols = {n: data.column(n) for n in ("U", "q", "Re", "T", "p_baro", "RH", "rho")}
+    b.add(b.p("Run log", "h2"))
+    start = data.table["start"].astype(str) if "start" in data.table else [""] * len(data.runs)
+    omega = data.column("omega")
     rows = []
     for i, run in enumerate(data.runs):
         rows.append(
             [
                 run,
-                str(data.table["config"].iloc[i]) if "config" in data.table else "",
+                str(start[i]).replace("T", " "),
+                _config(data, i),
+                _fixed(data.column("speed_set")[i], 1),
+                _fixed(data.column("spin_set")[i], 0),
+                _fixed(omega[i] * _RPM, 0),
+                _fixed(alpha[i], 3),
+                _flags(ds)[i].replace(";", ", "),
+            ]
+        )
+    b.table(
+        [
+            "run",
+            "start",
+            "config",
+            "set U [m/s]",
+            "set [rpm]",
+            "measured [rpm]",
+            "α",
+            "flags",
+        ],  # fmt: skip
+        rows,
+        [0.6, 1.5, 0.7, 0.7, 0.7, 0.8, 0.6, 2.2],
+        caption=f"{b.next_table()} Run log: every data run in order, its set points, measured "
+        "spin rate and spin ratio (wall-corrected), and the flags it raised.",
+    )
+    _conditions(b, data)
+
+
+def _config(data: _Inputs, i: int) -> str:
+    return str(data.table["config"].iloc[i]) if "config" in data.table else ""
+
+
+def _conditions(b: _Builder, data: _Inputs) -> None:
+    b.add(b.p("Test conditions", "h2"))
+    cols = {n: data.column(n) for n in ("U", "q", "Re", "Mach", "T", "p_baro", "RH", "rho")}
+    rows = []
+    for i, run in enumerate(data.runs):
+        rows.append(
+            [
+                run,
+                _config(data, i),
                 _fixed(cols["U"][i], 2),
                 _fixed(cols["q"][i], 1),
                 _number(cols["Re"][i], 3),
+                _fixed(cols["Mach"][i], 3),
                 _fixed(cols["T"][i] - 273.15, 2),
                 _fixed(cols["p_baro"][i] / 1000, 2),
                 _fixed(100 * cols["RH"][i], 1),
@@ -606,22 +868,143 @@ def _conditions(b: _Builder, data: _Inputs) -> None:
             ]
         )
     b.table(
-        ["run", "config", "U [m/s]", "q [Pa]", "Re", "T [°C]", "p [kPa]", "RH [%]", "ρ [kg/m³]"],
+        [
+            "run",
+            "config",
+            "U [m/s]",
+            "q [Pa]",
+            "Re",
+            "Mach",
+            "T [°C]",
+            "p [kPa]",
+            "RH [%]",
+            "ρ [kg/m³]",
+        ],  # fmt: skip
         rows,
-        [1.3, 1.1, 0.9, 0.9, 1.0, 0.8, 0.9, 0.8, 0.9],
-        caption=f"{b.next_table()} Test conditions, one row a run.",
+        [0.8, 0.8, 0.8, 0.8, 1.0, 0.7, 0.8, 0.8, 0.7, 0.9],
+        caption=f"{b.next_table()} Test conditions, run means: free stream wall-corrected (U, q, "
+        "Re, Mach); air temperature T, barometric pressure p, relative humidity RH and density "
+        "ρ (CIPM-2007).",
     )
 
 
-def _blockage_text(methods: dict) -> str:
-    """The method applied, and what campaign.toml asked for when config substituted it."""
-    used = str(methods.get("blockage", "–"))
-    requested = methods.get("blockage_requested")
-    return f"{used} (campaign.toml: {requested})" if requested else used
+#: Instruments: (name in campaign.toml, what it measures, how its declared uncertainty reads).
+def _instrument_rows(cfg) -> list[list[str]]:
+    ins = cfg.instruments
+    bal = ins.balance
+    calibrations = getattr(ins, "calibrations", {}) or {}
+
+    def cal(name: str) -> list[str]:
+        entry = calibrations.get(name)
+        reference = str(getattr(entry, "reference", "") or "") if entry else ""
+        when = str(getattr(entry, "date", "") or "") if entry else ""
+        return [_or_blank(reference), _or_blank(when)]
+
+    rows = []
+    if bal is not None:
+        fs = ", ".join(f"{_number(f, 3)}" for f in bal.full_scale)
+        u_fs = ", ".join(f"{100 * f:g} %" for f in bal.u_fraction_of_full_scale)
+        text = f"{u_fs} of full scale ({fs} N, N, N·m)"
+        if bal.u_matrix_relative:
+            text += f"; calibration matrix {100 * bal.u_matrix_relative:g} %"
+        if bal.u_alignment_angle:
+            text += f"; alignment {bal.u_alignment_angle:g}°"
+        rows.append(["balance", "Fx, Fy, Mz (channels " + ", ".join(bal.channels) + ")", text,
+                     *cal("balance")])  # fmt: skip
+    if ins.scanner_full_scale is not None or ins.u_scanner:
+        rows.append(["scanner", "surface-tap pressures", f"{_number(ins.u_scanner, 3)} Pa",
+                     *cal("scanner")])  # fmt: skip
+    pitot = f"{_number(ins.u_pitot, 3)} Pa"
+    if ins.u_pitot_relative:
+        pitot += f" + {100 * ins.u_pitot_relative:g} % of reading"
+    rows.append(["pitot", "dynamic pressure", pitot, *cal("pitot")])
+    rows.append(["thermometer", "air temperature", f"{_number(ins.u_thermometer, 3)} K",
+                 *cal("thermometer")])  # fmt: skip
+    rows.append(["barometer", "barometric pressure", f"{_number(ins.u_barometer, 3)} Pa",
+                 *cal("barometer")])  # fmt: skip
+    rows.append(["hygrometer", "relative humidity", f"{100 * ins.u_hygrometer:g} % RH",
+                 *cal("hygrometer")])  # fmt: skip
+    rows.append(["tachometer", "spin rate", f"{100 * ins.u_tachometer_relative:g} % of reading",
+                 *cal("tachometer")])  # fmt: skip
+    if ins.u_encoder:
+        rows.append(["encoder", "model azimuth", f"{ins.u_encoder:g}°", *cal("encoder")])
+    return rows
 
 
-def _corrections(b: _Builder, data: _Inputs) -> None:
-    b.section("Wall corrections")
+def _instrumentation(b: _Builder, data: _Inputs) -> None:
+    b.section("Instrumentation")
+    if data.campaign is None:
+        b.add(b.p("The campaign folder was not given: its instruments are not listed."))
+        return
+    b.add(
+        b.p(
+            "Each instrument with the standard uncertainty campaign.toml declares for it (type B "
+            "in the budgets) and its calibration reference and date.",
+            "intro",
+        )
+    )
+    b.table(
+        [
+            "instrument",
+            "measures",
+            "declared standard uncertainty",
+            "calibration reference",
+            "calibrated",
+        ],  # fmt: skip
+        _instrument_rows(data.campaign.config),
+        [0.9, 1.4, 2.2, 1.3, 0.8],
+        caption=f"{b.next_table()} Instruments.",
+    )
+
+
+def _procedures(b: _Builder, data: _Inputs) -> None:
+    b.section("Procedures")
+    b.add(
+        b.p(
+            "<b>Zeros.</b> Wind-off, not-spinning balance readings (zero runs) are taken before "
+            "and after each block of data runs; a data run subtracts the mean of the zeros it "
+            "names, and the zero_shift flag compares them. <b>Tares.</b> Wind-off readings at "
+            "spin (tare runs) give the spin tare, interpolated in spin rate and subtracted from "
+            "the spinning data runs. <b>Data runs.</b> At each set tunnel speed the spin rate is "
+            "stepped up and back down; each run is averaged over its whole record after the "
+            "steadiness checks of the quality flags.",
+            markup=True,
+        )
+    )
+    b.add(
+        b.p(
+            "<b>Axes and sign conventions.</b> x downstream, y the lift axis, z = x × y along the "
+            "cylinder axis; the spin rate ω is positive counter-clockwise seen from +z; spin ratio "
+            "α = ωR/U is signed with ω; θ is measured on the surface from the windward point, "
+            "increasing in the sense of positive spin. Positive spin gives lift towards −y, so CL "
+            "is negative (CL = −2πα in potential flow); CM is the torque about +z on q·d·b·R and "
+            "C_power the power to spin on q·U·d·b.",
+            markup=True,
+        )
+    )
+    ax = plotting.plot_axes_sketch(_axes((4.6, 3.0)))
+    b.figure(ax.figure, f"{b.next_figure()} Axes and sign conventions, seen from +z.",
+             width=0.55 * _WIDTH)  # fmt: skip
+
+
+def _reduction(b: _Builder, data: _Inputs) -> None:
+    b.section("Data reduction")
+    b.add(
+        b.p(
+            "Forces and torque from the balance, in wind axes after the zero and spin tare are "
+            "removed: L (along y), D (along x), T (about z). With the dynamic pressure q, the "
+            "free-stream speed U = √(2q/ρ), diameter d, span b and radius R = d/2:",
+            "intro",
+        )
+    )
+    for formula in (
+        "CL = L / (q·d·b),   CD = D / (q·d·b),   CM = T / (q·d·b·R),   "
+        "C_power = T·ω / (q·U·d·b),   L/D = CL / CD",
+        "α = ωR / U,   Re = ρ·U·d / μ,   Cp = (p − p∞) / q",
+        "from the surface pressure at mid-span: CL_p = ½∮Cp sin θ dθ,   CD_p = ½∮Cp cos θ dθ",
+    ):
+        b.add(b.p(formula, "formula"))
+    b.add(b.p("Wall corrections", "h2"))
     methods = data.methods
     method = methods.get("blockage")
     if method in corrections.METHODS:
@@ -644,10 +1027,9 @@ def _corrections(b: _Builder, data: _Inputs) -> None:
         header.append("Δα lift")
         names.append("delta_alpha_lift")
     cols = [data.column(n) for n in names]
-    rows = []
-    for i, run in enumerate(data.runs):
-        config = str(data.table["config"].iloc[i]) if "config" in data.table else ""
-        rows.append([run, config, *(_fixed(c[i], 5) for c in cols)])
+    rows = [
+        [run, _config(data, i), *(_fixed(c[i], 5) for c in cols)] for i, run in enumerate(data.runs)
+    ]
     b.table(
         header,
         rows,
@@ -657,18 +1039,153 @@ def _corrections(b: _Builder, data: _Inputs) -> None:
     )
 
 
+#: Readable names and units of the budget inputs (the names the run model gives them).
+BUDGET_INPUTS: dict[str, tuple[str, str]] = {
+    "dp": ("pitot pressure difference, time average", "Pa"),
+    "dp_spec": ("pitot transducer", "Pa"),
+    "T": ("air temperature, time average", "K"),
+    "T_spec": ("thermometer", "K"),
+    "p": ("barometric pressure, time average", "Pa"),
+    "p_spec": ("barometer", "Pa"),
+    "RH": ("relative humidity, time average", "–"),
+    "RH_spec": ("hygrometer", "–"),
+    "omega": ("spin rate, time average", "rad/s"),
+    "omega_spec": ("spin-rate sensor, relative", "–"),
+    "Fx": ("balance Fx, time average", "N"),
+    "Fy": ("balance Fy, time average", "N"),
+    "Mz": ("balance Mz, time average", "N·m"),
+    "Fx_spec": ("balance Fx specification", "N"),
+    "Fy_spec": ("balance Fy specification", "N"),
+    "Mz_spec": ("balance Mz specification", "N·m"),
+    "Fx_tare": ("spin tare Fx", "N"),
+    "Fy_tare": ("spin tare Fy", "N"),
+    "Mz_tare": ("spin tare Mz", "N·m"),
+    "calibration": ("balance calibration factor", "–"),
+    "alignment": ("balance alignment angle", "deg"),
+    "flow_angle": ("flow angularity", "deg"),
+    "height": ("test-section height", "m"),
+    "width": ("test-section width", "m"),
+    "diameter": ("model diameter", "m"),
+    "span": ("model span", "m"),
+    "dpdx": ("empty-tunnel static-pressure gradient", "Pa/m"),
+    "p_bin": ("tap pressure, per azimuth bin", "Pa"),
+    "p_scanner": ("pressure scanner", "Pa"),
+    "theta_offset": ("tap azimuth (offset, delay, encoder)", "deg"),
+}
+
+
+def budget_label(name: str) -> tuple[str, str]:
+    """The readable name and unit of a budget input (its own name, no unit, if unknown)."""
+    if name in BUDGET_INPUTS:
+        return BUDGET_INPUTS[name]
+    base, _, tail = name.partition("_")
+    if tail == "spec" and base in BUDGET_INPUTS:
+        return f"{BUDGET_INPUTS[base][0]} (instrument)", BUDGET_INPUTS[base][1]
+    return name, ""
+
+
+_STATED = ("alpha", "CL", "CD", "CM")
+
+
+def _budget_runs(data: _Inputs) -> list[str]:
+    """A low, a mid and a high spin-ratio run among those with a budget (unflagged preferred)."""
+    have = set(data.budgets["run"].astype(str)) if "run" in data.budgets else set()
+    if not have:
+        return []
+    sub = data.ds.isel(run=[i for i, r in enumerate(data.runs) if r in have])
+    return plotting.representative_runs(sub.drop_vars("Cp", errors="ignore"), 3)
+
+
+def _uncertainty(b: _Builder, data: _Inputs) -> None:
+    b.section("Uncertainty statement")
+    b.add(
+        b.p(
+            "Uncertainties are evaluated by linear propagation of the standard uncertainties of "
+            "every input through the run's reduction model (JCGM 100:2008, the GUM): type A from "
+            "the time series of each run (with the effective number of independent samples), type "
+            "B from the declared uncertainties of the instruments, geometry and tunnel. The "
+            "expanded uncertainty is U = k·u with coverage factor k = 2, which for a normal "
+            "distribution gives a coverage probability of about 95 %. Every tabulated ± and every "
+            "error bar in this report is such an expanded uncertainty.",
+            "intro",
+        )
+    )
+    rows = []
+    for label, idx in plotting.group_runs(data.ds, "config"):
+        row = [label or "(all runs)"]
+        for name in _STATED:
+            u = _K * data.column(f"u_{name}")[idx]
+            u = u[np.isfinite(u)]
+            row.append(f"{_number(u.min(), 2)} to {_number(u.max(), 2)}" if u.size else "–")
+        rows.append(row)
+    b.table(
+        ["configuration", "U(α)", "U(CL)", "U(CD)", "U(CM)"],
+        rows,
+        [1.2, 1.2, 1.2, 1.2, 1.2],
+        caption=f"{b.next_table()} Range of the expanded uncertainty (k = 2) over the runs of "
+        "each configuration.",
+    )
+    for run in _budget_runs(data):
+        _budget_table(b, data, run)
+
+
+def _budget_table(b: _Builder, data: _Inputs, run: str) -> None:
+    """One run's budget: the inputs with the largest shares, their share of each output."""
+    mine = data.budgets[data.budgets["run"].astype(str) == run]
+    if mine.empty:
+        return
+    share = mine.pivot_table(index="input", columns="output", values="share", aggfunc="sum")
+    first = mine.drop_duplicates("input").set_index("input")
+    top = share.max(axis=1).sort_values(ascending=False).head(_BUDGET_ROWS + 2).index
+    i = data.runs.index(run)
+    rows = []
+    for name in top:
+        label, unit = budget_label(str(name))
+        kind = str(first.loc[name, "kind"]) if "kind" in first else ""
+        row = [label, unit, kind if kind != "nan" else "", _number(first.loc[name, "value"]),
+               _number(first.loc[name, "u"], 2)]  # fmt: skip
+        for output in _STATED:
+            value = share.loc[name, output] if output in share else np.nan
+            row.append(_fixed(100 * value, 1))
+        rows.append(row)
+    totals = ["combined: U (k = 2)", "", "", "", ""]
+    totals += [_number(_K * data.column(f"u_{o}")[i], 2) for o in _STATED]
+    rows.append(totals)
+    b.table(
+        [
+            "input",
+            "unit",
+            "type",
+            "value",
+            "u",
+            "share of u²(α) [%]",
+            "CL [%]",
+            "CD [%]",
+            "CM [%]",
+        ],  # fmt: skip
+        rows,
+        [2.4, 0.6, 0.45, 0.9, 0.8, 0.8, 0.6, 0.6, 0.6],
+        caption=f"{b.next_table()} Uncertainty budget of run {escape(run)} (α = "
+        f"{_fixed(data.column('alpha')[i], 2)}, {escape(_config(data, i))}): the inputs that "
+        "contribute most, with their share of the variance of each output; last row: the "
+        "expanded uncertainty of each output.",
+    )
+
+
 def _value_table(b: _Builder, data: _Inputs, names: list[str], caption: str) -> None:
-    """Value ± U (k = 2) of ``names`` for every run that has the last of them."""
-    header = ["run", "config"] + [_HEADS[n] for n in names]
+    """Value ± U (k = 2) of ``names`` for every run that has the last of them; flagged runs †."""
+    header = ["run", "config", "rpm"] + [_HEADS[n] for n in names]
     rows = []
     has = np.isfinite(data.column(names[-1]))
+    flags = _flags(data.ds)
+    rpm = data.column("omega") * _RPM
     for i, run in enumerate(data.runs):
         if not has[i]:
             continue
-        config = str(data.table["config"].iloc[i]) if "config" in data.table else ""
         cells = [format_uncertain(data.column(n)[i], _K * data.column(f"u_{n}")[i]) for n in names]
-        rows.append([run, config, *cells])
-    b.table(header, rows, [0.7, 0.7] + [1.45] * len(names), caption=caption)
+        rows.append([run + (" †" if flags[i] else ""), _config(data, i), _fixed(rpm[i], 0),
+                     *cells])  # fmt: skip
+    b.table(header, rows, [0.75, 0.7, 0.55] + [1.45] * len(names), caption=caption)
 
 
 _HEADS = {
@@ -681,14 +1198,20 @@ _HEADS = {
     "CD_p": "CD_p",
 }
 
+_FIGURE_NOTE = (
+    " Filled: wall-corrected, bars ± U (k = 2); ringed: flagged runs (left out of the lines); "
+    "solid lines join a sweep of increasing spin, dotted ones a sweep of decreasing spin."
+)
 
-def _results(b: _Builder, data: _Inputs) -> None:
+
+def _results(b: _Builder, data: _Inputs, runs: list[str]) -> None:
+    ds = data.ds
     b.section("Results")
     b.add(
         b.p(
-            "Wall-corrected coefficients on q·d·b (CM on q·d·b·R). Each cell is the value and its "
-            "expanded uncertainty U = k·u with k = 2 (about 95 % coverage for a normal "
-            "distribution), rounded to U's second significant digit.",
+            "Wall-corrected coefficients on q·d·b (CM on q·d·b·R), with the measured spin rate. "
+            "Each cell is the value and its expanded uncertainty U = k·u with k = 2, rounded to "
+            "U's second significant digit. † marks a flagged run (see Quality flags).",
             "intro",
         )
     )
@@ -707,16 +1230,38 @@ def _results(b: _Builder, data: _Inputs) -> None:
             f"{b.next_table()} Coefficients from the mid-span surface pressure (∮Cp); "
             "value ± expanded uncertainty (k = 2).",
         )
+    b.add(b.p("Figures", "h2"))
+    for name, what in (
+        ("CL", "Lift coefficient against spin ratio; the line is potential flow, CL = −2πα."),
+        ("CD", "Drag coefficient against spin ratio."),
+        ("CM", "Torque coefficient against spin ratio."),
+        ("C_power", "Power coefficient against spin ratio."),
+        ("L_D", "Lift-to-drag ratio against spin ratio."),
+    ):
+        if name in ds and np.isfinite(data.column(name)).any():
+            ax = plotting.plot_coefficient(ds, name, ax=_axes(), uncorrected=name != "L_D")
+            note = _FIGURE_NOTE + (" Hollow: before wall corrections." if name != "L_D" else "")
+            b.figure(ax.figure, f"{b.next_figure()} {what}{note}")
+    if np.isfinite(data.column("CL")).any() and np.isfinite(data.column("CD")).any():
+        ax = plotting.plot_drag_polar(ds, ax=_axes())
+        b.figure(ax.figure, f"{b.next_figure()} Drag polar, CL against CD.{_FIGURE_NOTE}")
+    if (np.isfinite(data.column("CL")) & np.isfinite(data.column("CL_p"))).any():
+        ax = plotting.plot_pressure_lift(ds, ax=_axes())
+        b.figure(ax.figure, f"{b.next_figure()} Lift from the mid-span surface pressure against "
+                 "lift from the balance; the dashed line is equality. The pressure sees one "
+                 "section, the balance the whole span.")  # fmt: skip
+    _surface_pressure(b, data, runs)
 
 
 def _comparison(b: _Builder, data: _Inputs) -> None:
-    """The configuration comparison of tunnelred.products.compare, when that module is installed."""
+    """The configuration comparison of tunnelred.products.compare, with figures."""
+    ds = data.ds
     if len({str(c) for c in data.table.get("config", [])}) < 2:
         return
     if importlib.util.find_spec("tunnelred.products.compare") is None:
         return
     compare = importlib.import_module("tunnelred.products.compare")
-    table = compare.comparison_section_data(data.ds)
+    table = compare.comparison_section_data(ds)
     if table is None or len(table) == 0:
         return
     b.section(_COMPARISON)
@@ -744,78 +1289,35 @@ def _comparison(b: _Builder, data: _Inputs) -> None:
         caption=f"{b.next_table()} Configuration differences of CL and CD; value ± expanded "
         "uncertainty (k = 2); * marks a difference larger than its expanded uncertainty.",
     )
+    for name in ("CL", "CD"):
+        for by, what in (("speed", "tunnel speed"), ("re", "Reynolds number")):
+            if len(plotting.group_runs(ds, by)) < 2 or not np.isfinite(data.column(name)).any():
+                continue
+            ax = plotting.plot_comparison(ds, name, by=by, ax=_axes())
+            b.figure(ax.figure, f"{b.next_figure()} {name} by {what}: colour the {what}, marker "
+                     f"the configuration.{_FIGURE_NOTE}")  # fmt: skip
 
 
 def _surface_pressure(b: _Builder, data: _Inputs, runs: list[str]) -> None:
-    b.section("Surface pressure")
+    b.add(b.p("Surface pressure", "h2"))
     if "Cp" not in data.ds or not runs:
         b.add(b.p("No run had a pressure log."))
         return
     b.add(
         b.p(
             "Measured Cp(θ) at mid-span of representative runs (the smallest, a middle and the "
-            "largest spin ratio), with the band of expanded uncertainty (k = 2), against potential "
-            "flow Cp = 1 − (α + 2 sin θ)² at the run's corrected α. θ is measured from the "
-            "windward point, positive in the sense of positive spin.",
+            "largest spin ratio), cartesian and polar, against potential flow Cp = 1 − (α + 2 sin "
+            "θ)² at the run's corrected α. θ is measured from the windward point, positive in the "
+            "sense of positive spin. The band Cp ± U (k = 2) is narrow at the scale of Cp; the "
+            "strip below each plot shows its half-width U(Cp).",
             "intro",
         )
     )
     for run in runs:
-        ax = plotting.plot_cp(data.ds, run, ax=_axes())
-        b.figure(
-            ax.figure,
-            f"{b.next_figure()} Surface pressure of run {escape(run)} against potential flow; "
-            "band: expanded uncertainty, k = 2.",
-            width=0.8 * _WIDTH,
-        )
-
-
-def _budget(b: _Builder, data: _Inputs, runs: list[str]) -> None:
-    b.section("Uncertainty budget")
-    budgets = data.budgets
-    if budgets.empty or not runs:
-        b.add(b.p("No uncertainty budget was recorded."))
-        return
-    run = runs[len(runs) // 2]
-    mine = budgets[budgets["run"].astype(str) == run]
-    b.add(
-        b.p(
-            f"Budget of run {run}: the inputs that contribute most to the variance of α, CL, CD "
-            "and CM (linear propagation, JCGM 100:2008). Contribution = sensitivity × standard "
-            "uncertainty; share = its fraction of the output variance.",
-            "intro",
-        )
-    )
-    for output in ("alpha", "CL", "CD", "CM"):
-        part = mine[mine["output"] == output]
-        if part.empty:
-            continue
-        part = part.sort_values("share", ascending=False).head(_BUDGET_ROWS)
-        i = data.runs.index(run) if run in data.runs else None
-        u_total = data.column(f"u_{output}")[i] if i is not None else np.nan
-        rows = []
-        for row in part.itertuples(index=False):
-            kind = str(getattr(row, "kind", "") or "")
-            rows.append(
-                [
-                    str(row.input),
-                    kind if kind != "nan" else "",
-                    _number(row.value),
-                    _number(row.u, 3),
-                    _number(row.sensitivity, 3),
-                    _number(row.contribution, 3),
-                    _fixed(100 * row.share, 1),
-                ]
-            )
-        b.table(
-            ["input", "type", "value", "u", "sensitivity", "contribution", "share [%]"],
-            rows,
-            [2.2, 0.6, 1.0, 1.0, 1.0, 1.0, 0.8],
-            caption=f"{b.next_table()} Largest contributors to u({_HEADS[output]}) of run "
-            f"{escape(run)}; "
-            f"combined standard uncertainty u = {_number(u_total, 3)}, expanded U = "
-            f"{_number(_K * u_total, 3)} (k = 2).",
-        )
+        fig = plotting.plot_cp_pair(data.ds, run, fig=Figure(figsize=(9.6, 4.4),
+                                                            layout="constrained"))  # fmt: skip
+        b.figure(fig, f"{b.next_figure()} Surface pressure of run {escape(run)}: measured with "
+                 "its k = 2 band, potential flow dashed.")  # fmt: skip
 
 
 def _flag_reasons(data: _Inputs, i: int, names: list[str]) -> dict[str, str]:
@@ -838,11 +1340,11 @@ def _quality(b: _Builder, data: _Inputs) -> None:
     for i, (run, flags) in enumerate(zip(data.runs, _flags(data.ds), strict=True)):
         names = [n for n in flags.split(";") if n]
         reasons = _flag_reasons(data, i, names)
-        for name in sorted(names, key=FLAG_NAMES.index):
+        for name in sorted(names, key=lambda n: FLAG_NAMES.index(n) if n in FLAG_NAMES else 99):
             extra = ""
             if name == "dead_tap" and "dead_taps" in data.table:
                 extra = f": {data.table['dead_taps'].iloc[i]}"
-            rows.append([run, name, reasons[name] + extra])
+            rows.append([run, name, reasons.get(name, "") + extra])
     if rows:
         b.table(
             ["run", "flag", "reason"],
@@ -852,6 +1354,10 @@ def _quality(b: _Builder, data: _Inputs) -> None:
         )
     else:
         b.add(b.p("No run raised a quality flag."))
+    if "spin_scatter" in data.ds and np.isfinite(data.column("spin_scatter")).any():
+        ax = plotting.plot_steadiness(data.ds, "spin_scatter", ax=_axes((7.2, 3.0)))
+        b.figure(ax.figure, f"{b.next_figure()} Spin-ratio scatter of every run against its "
+                 "tolerance; flagged runs labelled.")  # fmt: skip
     failures = data.failures
     b.add(b.p("Runs that could not be reduced", "h2"))
     if failures.empty:
@@ -872,53 +1378,60 @@ def _quality(b: _Builder, data: _Inputs) -> None:
     )
 
 
-def _appendix(b: _Builder, data: _Inputs) -> None:
-    b.section("Appendix: configuration and input files")
-    if data.campaign is not None:
-        path = Path(data.campaign.root) / "campaign.toml"
-        b.add(b.p("campaign.toml", "h2"))
-        try:
-            text = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            b.add(b.p(f"campaign.toml could not be read: {exc}"))
-        else:
-            b.add(
-                Preformatted(
-                    text.expandtabs(4), b.s["mono"], maxLineLength=118, newLineChars="  ↪ "
-                )
-            )
-    else:
-        b.add(
-            b.p(
-                "The campaign folder was not given, so campaign.toml is not reproduced here; its "
-                f"SHA-256 is {data.ds.attrs.get('config_sha256', '–')}."
-            )
+def _appendix(b: _Builder, data: _Inputs, full_config: bool) -> None:
+    b.section("Appendix: input files")
+    b.add(
+        b.p(
+            "The SHA-256 of every input file the results were reduced from; a file that hashes "
+            "the same is the file reduced.",
+            "intro",
         )
-    b.add(b.p("SHA-256 of every input file", "h2"))
-    rows = [[path, Paragraph(sha, b.s["mono"])] for path, sha in sorted(data.hashes.items())]
+    )
+    rows = [[path, b.p(str(sha), "mono")] for path, sha in sorted(data.hashes.items())]
     if rows:
-        b.table(["file", "SHA-256"], rows, [1.6, 2.6])
+        b.table(["file", "SHA-256"], rows, [1.5, 2.6], compact=True)
     else:
         b.add(b.p("The results record no input hashes."))
+    if not full_config:
+        b.add(
+            b.p(
+                "The full campaign.toml is not reproduced (write the report with --full-config "
+                f"to include it); its SHA-256 is {data.ds.attrs.get('config_sha256', '–')}."
+            )
+        )
+        return
+    b.add(b.p("campaign.toml", "h2"))
+    if data.campaign is None:
+        b.add(b.p("The campaign folder was not given, so campaign.toml is not reproduced here."))
+        return
+    path = Path(data.campaign.root) / "campaign.toml"
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        b.add(b.p(f"campaign.toml could not be read: {exc}"))
+        return
+    b.add(Preformatted(text.expandtabs(4), b.s["mono"], maxLineLength=118, newLineChars="  ↪ "))
 
 
 # ---------------------------------------------------------------------------------------------
 
 
-def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
+def write_report(out_dir, pdf_path=None, *, campaign=None, full_config: bool = False) -> Path:
     """Write the PDF test report of a reduced campaign.
 
     Parameters
     ----------
     out_dir : str or path-like
-        An output folder of :func:`tunnelred.pipeline.campaign.reduce_campaign` (results.nc, budgets.csv,
-        failures.csv).
+        An output folder of :func:`tunnelred.pipeline.campaign.reduce_campaign` (results.nc,
+        budgets.csv, failures.csv).
     pdf_path : str or path-like, optional
         Where to write; default ``out_dir``/report.pdf. Written atomically.
     campaign : tunnelred.inputs.readers.Campaign or path-like, optional
         The campaign folder (or the opened campaign); default: the folder the results record,
-        if it is still there. Its campaign.toml goes into the appendix
-        and its tolerances into the flag reasons.
+        if it is still there. It gives the report control ([report]), the model, the
+        instruments, and the tolerances behind the flag reasons.
+    full_config : bool
+        Reproduce campaign.toml in the appendix (default: its hash only).
 
     Returns
     -------
@@ -927,14 +1440,17 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
 
     Notes
     -----
-    Sections: title page (cautions, provenance), contents, then those of :data:`SECTIONS`; a
-    configuration comparison follows the results when the campaign has more than one
-    configuration and :mod:`tunnelred.products.compare` is installed. Tabulated uncertainties are
-    expanded, k = 2, rounded per GUM §7.2.6.
+    Title page (report control, signatures, statements, cautions), revision history,
+    provenance and contents, then the sections of :data:`SECTIONS`; a configuration comparison
+    follows the results when the campaign has more than one configuration. Tabulated
+    uncertainties are expanded, k = 2, rounded per GUM §7.2.6. The contents follow ISO/IEC
+    17025:2017 §7.8.2.1 and §7.8.3.1 (docs/report.md maps each item to its place).
 
     References
     ----------
     .. [1] JCGM 100:2008 (GUM), §7.2 (reporting uncertainty).
+    .. [2] ISO/IEC 17025:2017, *General requirements for the competence of testing and
+       calibration laboratories*, §7.8.
     """
     out = Path(out_dir)
     pdf = Path(pdf_path) if pdf_path is not None else out / "report.pdf"
@@ -946,17 +1462,18 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
 
     _title_page(b, data, date)
     _summary(b, data)
-    b.add(PageBreak())
-    _conditions(b, data)
-    _corrections(b, data)
-    _results(b, data)
+    _model(b, data)
+    _run_log(b, data)
+    _instrumentation(b, data)
+    _procedures(b, data)
+    _reduction(b, data)
+    _uncertainty(b, data)
+    _results(b, data, runs)
     _comparison(b, data)
-    b.add(PageBreak())
-    _surface_pressure(b, data, runs)
-    _budget(b, data, runs)
     _quality(b, data)
-    b.add(PageBreak())
-    _appendix(b, data)
+    _appendix(b, data, full_config)
+    b.add(Spacer(1, 6 * mm))
+    b.add(b.p(f"End of report {data.control.number or ''}".rstrip() + ".", "end"))
 
     with store.atomic_path(pdf) as tmp:
         doc = _Document(
@@ -973,5 +1490,5 @@ def write_report(out_dir, pdf_path=None, *, campaign=None) -> Path:
         )
         frame = Frame(_MARGIN, _MARGIN, _WIDTH, _PAGE[1] - 2 * _MARGIN, id="body")
         doc.addPageTemplates([PageTemplate(id="page", frames=[frame])])
-        doc.multiBuild(b.story, canvasmaker=_canvas_class(data.title, date, faces))
+        doc.multiBuild(b.story, canvasmaker=_canvas_class(data.title, data.control.footer, faces))
     return pdf
