@@ -169,3 +169,41 @@ def test_appendix_finds_the_recorded_campaign_folder(built):
     assert ds.attrs["campaign_path"]
     text, _ = _text(report.write_report(out, out / "again.pdf", full_config=True))
     assert "[instruments.balance]" in text
+
+
+def test_crafted_attributes_neither_embed_a_file_nor_break_markup(reduced, tmp_path):
+    """Issue 14 item 9: strings from results.nc are escaped; only figures drawn are embedded."""
+    import json
+
+    from PIL import Image as PILImage
+
+    _, out = reduced
+    planted = tmp_path / "planted.png"
+    PILImage.new("RGB", (7, 5), (255, 0, 0)).save(planted)  # a size no figure has
+    tag = f'<img src="{planted}" width="50" height="50"/><a href="file:///etc">x</a>'
+    ds = store.read_results(out)
+    ds.attrs["title"] = "T " + tag
+    ds.attrs["facility"] = tag
+    ds.attrs["input_sha256"] = json.dumps({"logs/" + tag: tag})
+    ds.attrs["config_sha256"] = tag
+    ds.attrs["campaign_path"] = ""
+    store.write_results(ds, tmp_path, budgets=pd.read_csv(out / "budgets.csv"))
+    pdf = report.write_report(tmp_path, tmp_path / "crafted.pdf")
+    reader = PdfReader(pdf)
+    sizes = []
+    for page in reader.pages:
+        resources = page.get("/Resources") or {}
+        for obj in (resources.get("/XObject") or {}).values():
+            obj = obj.get_object()
+            if obj.get("/Subtype") == "/Image":
+                sizes.append((int(obj["/Width"]), int(obj["/Height"])))
+    assert sizes  # the figures the report drew are there
+    assert (7, 5) not in sizes
+    flat = " ".join(" ".join(p.extract_text() for p in reader.pages).split())
+    assert "<img src=" in flat  # printed as written, not interpreted
+
+
+def test_own_markup_refuses_foreign_tags():
+    with pytest.raises(ValueError, match="img"):
+        report._check_markup('<b>x</b><img src="a.png"/>')
+    report._check_markup("<b>bold</b> and <i>italic</i>")
