@@ -276,6 +276,9 @@ def _add_report(subparsers) -> None:
         type=Path,
         help="the campaign folder, for the configuration appendix (default: as recorded)",
     )
+    p.add_argument(
+        "--full-config", action="store_true", help="reproduce campaign.toml in the appendix"
+    )
     p.set_defaults(run=_run_report)
 
 
@@ -286,7 +289,9 @@ def _run_report(args) -> int:
         return _fail_usage(f"{args.results}: no such folder")
     if args.campaign is not None and not args.campaign.is_dir():
         return _fail_usage(f"{args.campaign}: no such folder")
-    pdf = write_report(args.results, args.out, campaign=args.campaign)
+    pdf = write_report(
+        args.results, args.out, campaign=args.campaign, full_config=args.full_config
+    )
     print(f"report written to {pdf}")
     return 0
 
