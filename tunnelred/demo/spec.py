@@ -281,7 +281,7 @@ class SynthSpec:
         "SDT-1, an invented 1.0 m x 0.75 m closed-section low-speed tunnel (synthetic data)"
     )
     date: str = "2026-03-10"
-    notes: str = "Synthetic demonstration campaign written by tunnelred.demo.synth; see truth.csv."
+    notes: str = "Synthetic demonstration campaign written by tunnelred.demo; see truth.csv."
     start: str = "2026-03-10T08:30:00"
     diameter: float = 0.125
     span: float = 0.74

@@ -24,18 +24,23 @@ import pandas as pd
 
 from tunnelred.demo.forward import (
     Ambient,
+    air_viscosity,
     ar1,
+    channel_signals,
     imbalance_loads,
     in_tunnel,
     knock,
+    moist_air_density,
+    pitot_reading,
     stream_times,
     tare_loads,
+    tubing_head,
     tunnel_cp,
+    wind_to_balance,
     zero_signals,
 )
 from tunnelred.demo.spec import RPM, ScheduledRun, SynthSpec, demo_spec, schedule
 from tunnelred.demo.truth import GRID
-from tunnelred.physics import air, balance, conditions, pressure
 
 __all__ = ["make_campaign", "write_demo_campaign"]
 
@@ -62,9 +67,7 @@ class _Writer:
         self.zero_steps = []
         for r in self.runs:
             if r.fault is not None and r.fault.kind == "zero_shift":
-                volts = balance.signals_from_loads(
-                    r.fault.size * np.asarray(spec.full_scale), self.matrix
-                )
+                volts = channel_signals(r.fault.size * np.asarray(spec.full_scale), self.matrix)
                 self.zero_steps.append((r.start + r.duration + 1.0, np.asarray(volts)))
         self.rows: list[dict] = []
         self.truth: list[dict] = []
@@ -80,7 +83,7 @@ class _Writer:
 
     def _balance_log(self, r: ScheduledRun, t, loads, omega) -> str:
         s = self.spec
-        signals = balance.signals_from_loads(loads, self.matrix)
+        signals = channel_signals(loads, self.matrix)
         signals = signals + zero_signals(s, r.start + t, self.zero_steps)
         signals = signals + s.balance_noise * self.rng.standard_normal(signals.shape)
         cols = {"time [s]": (t, 5)}
@@ -131,8 +134,8 @@ class _Writer:
         T, p, RH = self.ambient(r.start + tb, rng, dt)
         if fault == "temperature_drift":
             T = T + r.fault.size * (tb / r.duration - 0.5)
-        rho = air.density(T, p, RH)
-        mu = air.viscosity(T)
+        rho = moist_air_density(T, p, RH)
+        mu = air_viscosity(T)
         q = 0.5 * rho * U**2
         # A model at rest is indexed at encoder zero, so its taps sit at their azimuths.
         angle0 = rng.uniform(0, 2 * np.pi) if r.spin_set != 0.0 else 0.0
@@ -140,17 +143,17 @@ class _Writer:
 
         # Run-level truth at the record's mean conditions.
         T_m, p_m, RH_m = (float(np.mean(x[inside])) for x in (T, p, RH))
-        rho_m = float(air.density(T_m, p_m, RH_m))
-        mu_m = float(air.viscosity(T_m))
+        rho_m = float(moist_air_density(T_m, p_m, RH_m))
+        mu_m = float(air_viscosity(T_m))
         q_m = float(np.mean(q[inside]))
         omega_m = float(np.mean(omega[inside]))
-        U_m = float(conditions.velocity(q_m, rho_m))
+        U_m = math.sqrt(2.0 * q_m / rho_m)
         state = in_tunnel(s, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m)
 
         # Tunnel log.
         tt = stream_times(rng, s.tunnel_rate, r.duration)
-        q_t, p_t = np.interp(tt, tb, q), np.interp(tt, tb, p)
-        dp = conditions.impact_pressure(q_t, p_t) + s.pitot_noise * rng.standard_normal(tt.size)
+        U_t, rho_t, p_t = (np.interp(tt, tb, x) for x in (U, rho, p))
+        dp = pitot_reading(rho_t, U_t, p_t) + s.pitot_noise * rng.standard_normal(tt.size)
         if fault == "repeat_disagreement":
             dp = dp + r.fault.size
         tunnel_cols = {
@@ -180,7 +183,7 @@ class _Writer:
         lift = (sample["CL_uncorrected"] + cl_rms * math.sqrt(2.0) * np.sin(phase)) * q_b * area
         drag = (sample["CD_uncorrected"] + 0.1 * cl_rms * np.sin(2.0 * phase)) * q_b * area
         torque = sample["CM_uncorrected"] * q_b * area * s.diameter / 2.0
-        fx, fy = balance.balance_to_wind(drag, lift, -(s.alignment_angle - s.flow_angle))
+        fx, fy = wind_to_balance(drag, lift, s.alignment_angle - s.flow_angle)
         loads = np.stack([fx, fy, torque], axis=-1)
         loads = loads + tare_loads(s, w_b) + imbalance_loads(s, w_b, np.interp(t_b, tb, angle))
         if fault == "overload":
@@ -205,7 +208,7 @@ class _Writer:
             "rho": rho_m,
             "mu": mu_m,
             "omega": omega_m,
-            "Gamma": float(conditions.circulation(omega_m, s.diameter / 2.0)),
+            "Gamma": 2.0 * math.pi * omega_m * (s.diameter / 2.0) ** 2,
         }
         # + 0.0 turns the -0.0 of a run at rest into 0.0.
         for k in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
@@ -224,7 +227,7 @@ class _Writer:
         rng = self.rng
         tp = stream_times(rng, s.pressure_rate, r.duration)
         q_p, rho_p, w_p = (np.interp(tp, tb, x) for x in (q, rho, omega))
-        head = pressure.centrifugal_head(rho_p, w_p, s.diameter / 2.0, s.transducer_radius)
+        head = tubing_head(rho_p, w_p, s.diameter / 2.0, s.transducer_radius)
         delayed = tp[:, None] - self.tap_delay[None, :]
         theta = np.interp(delayed, tb, angle) + np.deg2rad(self.tap_azimuth)[None, :]
         cp = tunnel_cp(theta, state)
@@ -292,7 +295,7 @@ def _toml_value(v) -> str:
 def _campaign_toml(w: _Writer) -> str:
     s = w.spec
     lines = [
-        "# Synthetic campaign written by tunnelred.demo.synth (invented scenario, not data).",
+        "# Synthetic campaign written by tunnelred.demo (invented scenario, not data).",
         "",
     ]
 

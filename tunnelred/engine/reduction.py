@@ -486,6 +486,7 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integra
             CL_p=CL_p,
             CD_p=CD_p,
             Cp=cp_u,
+            truncation=x["wall_truncation"],
         )
         for name in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
             out[name] = np.broadcast_to(corrected[name], q_u.shape)
@@ -534,6 +535,9 @@ def _geometry_inputs(cfg) -> dict:
             "B",
             "static-pressure gradient",
         ),
+        # The first-order wall correction's own uncertainty, in units of its second-order
+        # residue (corrections.drag_factor_residue).
+        "wall_truncation": Input(0.0, 1.0, "B", "wall correction, second-order terms"),
     }
 
 

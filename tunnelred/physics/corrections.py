@@ -46,6 +46,7 @@ __all__ = [
     "buoyancy_drag",
     "wall_correction",
     "apply_wall_correction",
+    "drag_factor_residue",
     "correction_summary",
 ]
 
@@ -632,6 +633,21 @@ def wall_correction(
     )
 
 
+def drag_factor_residue(corr: WallCorrection):
+    """How far a first-order drag factor lies from its unlinearised form (an uncertainty).
+
+    Allen & Vincenti's ``1 − 3 eps_sb − 2 eps_wb`` linearises ``(1 − eps_sb)/(1 + eps)²``: the
+    wake-gradient buoyancy ``eps_sb CD_u`` removed, then the q scaling. Both are first-order
+    theory, so neither is the truth; their difference, ``3 eps² + …`` (0.7 % of CD at
+    eps = 0.047), is the method's own standard uncertainty. Zero for the methods whose factor is
+    ``q/q_c`` itself.
+    """
+    if corr.method.name == "allen-vincenti":
+        exact = (1.0 - corr.eps_solid) / (1.0 + corr.eps) ** 2
+        return exact - corr.method.drag_factor(corr.eps_solid, corr.eps_wake)
+    return np.zeros_like(np.asarray(corr.eps, dtype=float))
+
+
 def apply_wall_correction(
     corr: WallCorrection,
     *,
@@ -646,6 +662,7 @@ def apply_wall_correction(
     CL_p=None,
     CD_p=None,
     Cp=None,
+    truncation=0.0,
 ) -> dict:
     """Turn a run's uncorrected free-stream values and coefficients into wall-corrected ones.
 
@@ -663,6 +680,9 @@ def apply_wall_correction(
         Coefficients from the surface-pressure integral. [-]
     Cp : array_like, optional
         Pressure coefficients, shape ``[..., n_theta]`` broadcasting with ``corr.eps`` ``[...]``.
+    truncation : float or array_like, optional
+        Multiple of :func:`drag_factor_residue` added to the drag factor: an uncertainty input
+        (value 0, standard uncertainty 1); 0 gives the published form.
 
     Returns
     -------
@@ -710,6 +730,7 @@ def apply_wall_correction(
     q_ratio = speed**-2
     lift_factor = q_ratio / (1.0 + corr.lift_curvature)
     drag_factor = corr.method.drag_factor(corr.eps_solid, corr.eps_wake)
+    drag_factor = drag_factor + truncation * drag_factor_residue(corr)
     out = {
         "U": U * speed,
         "q": q * speed**2,
