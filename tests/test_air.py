@@ -134,7 +134,7 @@ def test_density_falls_with_humidity_and_rises_with_co2():
 
 
 def test_density_broadcasts_over_monte_carlo_draws():
-    # A run-level model evaluates over a batch of draws in one call (DESIGN.md, conventions).
+    # A run-level model evaluates over a batch of draws in one call (docs/conventions.md).
     draws = T0 + np.linspace(-1.0, 1.0, 7)[:, None]
     out = air.density(draws, np.array([P0, 0.9 * P0]), 0.5)
     assert out.shape == (7, 2)

@@ -380,7 +380,7 @@ def test_lift_to_drag_is_nan_at_zero_drag():
 
 def test_kutta_joukowski_through_the_balance_recovers_minus_two_pi_alpha():
     # Anderson, Fundamentals of Aerodynamics, 6th ed., §3.16: L' = −ρ U Γ per unit span on a
-    # spinning cylinder in potential flow (sign for our axes: DESIGN.md §4), Γ = 2π ω R², hence
+    # spinning cylinder in potential flow (sign for our axes: docs/conventions.md), Γ = 2π ω R², hence
     # CL = −2π ωR/U. Batch of B = 7 runs, α of both signs, through a second-order balance
     # turned 1.5° from the tunnel with a 0.3° flow angle.
     rho, diameter, span = 1.2, 0.12, 0.6
@@ -418,7 +418,7 @@ def test_kutta_joukowski_through_the_balance_recovers_minus_two_pi_alpha():
     # Newton to a relative step of 1e-12 plus a few dozen flops: rel 1e-12 holds on CL.
     np.testing.assert_allclose(c["CL"], -2.0 * np.pi * alpha, rtol=1e-12, atol=0)
     np.testing.assert_allclose(c["CD"], 0.3, rtol=1e-10)
-    # C_power = CM α (DESIGN.md §4), independently of the torque assumed.
+    # C_power = CM α (docs/conventions.md), independently of the torque assumed.
     np.testing.assert_allclose(c["C_power"], c["CM"] * alpha, rtol=1e-12)
 
 

@@ -58,7 +58,7 @@ def test_dynamic_pressure_against_scipy_root(mach):
 
 
 def test_dynamic_pressure_inverts_impact_pressure_over_a_batch():
-    # q -> qc -> q over a batch broadcast against two static pressures (DESIGN.md: run-level
+    # q -> qc -> q over a batch broadcast against two static pressures (docs/conventions.md: run-level
     # models are evaluated over Monte Carlo draws); float64 round trip -> rtol 1e-12.
     q = np.linspace(10.0, 6000.0, 50)[:, None]
     p = np.array([P0, 0.8 * P0])
@@ -180,14 +180,14 @@ def test_encoder_slope_with_wraps(omega, wrap):
 
 
 def test_spin_ratio_sign_both_directions():
-    # DESIGN.md section 4: alpha = omega R / U, signed with omega (positive counter-clockwise
+    # docs/conventions.md: alpha = omega R / U, signed with omega (positive counter-clockwise
     # seen from +z). omega = +-100 rad/s, R = 0.05 m, U = 10 m/s -> alpha = +-0.5 (by hand).
     assert conditions.spin_ratio(100.0, 0.05, 10.0) == pytest.approx(0.5, rel=1e-14)
     assert conditions.spin_ratio(-100.0, 0.05, 10.0) == pytest.approx(-0.5, rel=1e-14)
 
 
 def test_circulation_hand_worked():
-    # Gamma = 2 pi omega R^2 (DESIGN.md section 4): 2 pi * 10 * 0.01 = 0.6283185 m^2/s.
+    # Gamma = 2 pi omega R^2 (docs/conventions.md): 2 pi * 10 * 0.01 = 0.6283185 m^2/s.
     assert conditions.circulation(10.0, 0.1) == pytest.approx(0.2 * np.pi, rel=1e-14)
     assert conditions.circulation(-10.0, 0.1) == pytest.approx(-0.2 * np.pi, rel=1e-14)
 

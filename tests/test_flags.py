@@ -54,7 +54,7 @@ FAULTS = {
 #: Flags a fault cannot help raising besides its own, and why.
 RELATED = {
     # alpha = omega R / U: a 5 % drift of U over the record is a 5 % drift of alpha, beyond the
-    # 2 % spin_drift tolerance (DESIGN.md §4 definition of alpha).
+    # 2 % spin_drift tolerance (docs/conventions.md definition of alpha).
     "speed_drift": {"spin_drift"},
     # The AR(1) rpm scatter has a slow part: the least-squares slope of a 5 % AR(1) record with
     # a 50 ms correlation time over 4 s has a standard deviation of about 0.05 sqrt(24 tau / T)
@@ -241,7 +241,7 @@ def _cl_disagreement(c, run, reason):
     assert CL_p == pytest.approx(table.loc[run, "CL_p"], abs=5e-4)
     # Planted: a 15 % scanner span error on a model with end plates, whose mid-span CL_p equals
     # its balance CL (true_pressure_coefficients); the span error multiplies ∮Cp sin θ dθ
-    # (CL = ½∮Cp sin θ dθ, DESIGN.md §4) and its uniform part (the centrifugal head) integrates
+    # (CL = ½∮Cp sin θ dθ, docs/conventions.md) and its uniform part (the centrifugal head) integrates
     # to nothing. The two lifts' own uncertainties are under 1 % → abs 0.03 on the ratio.
     assert CL_p / CL == pytest.approx(1 + FAULTS["cl_disagreement"].size, abs=0.03)
 
@@ -258,7 +258,7 @@ def _repeat_disagreement(c, run, reason):
     ]
     assert others in group and others != run
     # Planted: the pitot reads 3 Pa high, so q is 3 Pa high and the in-tunnel drag coefficient
-    # D/(q d b) falls by q/(q + 3 Pa) (the definition of CD, DESIGN.md §4; q from the impact
+    # D/(q d b) falls by q/(q + 3 Pa) (the definition of CD, docs/conventions.md; q from the impact
     # pressure, NACA Report 1135, moves by the offset to 1e-4 at this Mach number); within twice
     # the run's own u (JCGM 100:2008 §6, k = 2).
     q = truth.loc[run, "q_uncorrected"]

@@ -512,7 +512,7 @@ def test_live_figure_draws_lift_drag_and_the_ideal_line():
     lift, drag = fig.axes
     ideal = next(line for line in lift.get_lines() if "potential flow" in line.get_label())
     x, y = ideal.get_data()
-    # DESIGN.md §4, Kutta-Joukowski: CL = -2 pi alpha; drawn from theory.lift_coefficient.
+    # docs/conventions.md, Kutta-Joukowski: CL = -2 pi alpha; drawn from theory.lift_coefficient.
     np.testing.assert_allclose(y, -2 * np.pi * np.asarray(x), rtol=1e-12)
     for ax in (lift, drag):
         circled = [line for line in ax.get_lines() if line.get_label() == "flagged run"]

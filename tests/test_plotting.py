@@ -63,7 +63,7 @@ def test_coefficient_error_bars_carry_the_results_and_k2(results, name):
         # The drawn points are the results' values, exactly (same floats).
         np.testing.assert_array_equal(line.get_xdata(), mine["alpha"].values)
         np.testing.assert_array_equal(line.get_ydata(), mine[name].values)
-        # Bars are expanded uncertainties k = 2 (DESIGN.md §4); segment ends are float sums,
+        # Bars are expanded uncertainties k = 2 (docs/conventions.md); segment ends are float sums,
         # so compare to 1e-12 relative.
         np.testing.assert_allclose(
             _segment_half_lengths(xbars, 0), 2 * mine["u_alpha"].values, rtol=1e-12
@@ -146,7 +146,7 @@ def test_cp_band_and_theory(results, polar):
     x_deg = np.degrees(x) if polar else x
     alpha = float(row["alpha"])
     # Potential flow about a spinning cylinder, Cp = 1 - (alpha + 2 sin theta)^2 (Anderson §3.15,
-    # in the azimuth of DESIGN.md §4), written out here independently of tunnelred.physics.theory.
+    # in the azimuth of docs/conventions.md), written out here independently of tunnelred.physics.theory.
     expected = 1 - (alpha + 2 * np.sin(np.radians(x_deg))) ** 2
     np.testing.assert_allclose(ideal.get_ydata(), expected, rtol=1e-12, atol=1e-12)
     band = ax.collections[0]
@@ -306,7 +306,7 @@ def test_cp_pair_shows_the_band_width(results):
     strip = ax_u.lines[0]
     wrapped = (results["theta"].values + 180.0) % 360.0 - 180.0
     order = np.argsort(wrapped)
-    # The strip is the band's half-width, k u(Cp) with k = 2 (DESIGN.md §4).
+    # The strip is the band's half-width, k u(Cp) with k = 2 (docs/conventions.md).
     np.testing.assert_allclose(
         strip.get_ydata(), 2 * results.sel(run=run)["u_Cp"].values[order], rtol=1e-12
     )

@@ -104,7 +104,7 @@ def test_every_result_has_its_uncertainty(demo_results):
 
 
 def test_theory_comparison_carries_its_uncertainty(table, demo_truth, clean):
-    # CL_ideal = -2 pi alpha (Kutta-Joukowski, DESIGN.md §4): its u is 2 pi u(alpha) exactly, a
+    # CL_ideal = -2 pi alpha (Kutta-Joukowski, docs/conventions.md): its u is 2 pi u(alpha) exactly, a
     # linear function of one input (JCGM 100:2008 eq. 10).
     spinning = [r for r in clean if abs(table.loc[r, "alpha"]) > 0.1]
     assert np.allclose(table.loc[spinning, "CL_ideal"], -2 * np.pi * table.loc[spinning, "alpha"])

@@ -99,7 +99,7 @@ def test_lift_below_potential_flow_and_saturating(end_plates, reynolds):
     # the slope over 4-5 is under a quarter of the steepest slope.
     slope = np.gradient(-cl, ALPHA)
     assert slope[ALPHA > 4.0].max() < 0.25 * slope.max()
-    # Sign convention, DESIGN.md §4: lift is odd in the spin.
+    # Sign convention, docs/conventions.md: lift is odd in the spin.
     assert true_lift_coefficient(-ALPHA, reynolds, end_plates=end_plates) == (
         pytest.approx(-cl, abs=1e-15)
     )
@@ -139,7 +139,7 @@ def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
     cl_p, cd_p = true_pressure_coefficients(alpha, 1e5, end_plates=end_plates)
     theta = np.arange(72) * 5.0 + 2.5
     cp = true_surface_cp(theta, alpha, 1e5, end_plates=end_plates)
-    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (DESIGN.md §4); tunnelred.physics.pressure.integrate_cp on
+    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (docs/conventions.md); tunnelred.physics.pressure.integrate_cp on
     # 72 bins: its periodic trapezoid is spectrally accurate on this smooth profile → abs 2e-3.
     cl, cd = pressure.integrate_cp(theta, cp)
     assert cl == pytest.approx(cl_p, abs=2e-3)

@@ -3,7 +3,7 @@
 Main source: J. D. Anderson, Fundamentals of Aerodynamics, 6th ed. (2017), §3.15 (lifting flow
 over a cylinder: surface speed 2U sin θ + Γ/(2πR), Cp = 1 − (V/U)², stagnation points where the
 speed vanishes) and §3.16 (Kutta–Joukowski L′ = ρUΓ). The azimuth and sign convention is
-DESIGN.md §4: θ from the windward point, positive with positive spin, L′ = −ρUΓ along +y.
+docs/conventions.md: θ from the windward point, positive with positive spin, L′ = −ρUΓ along +y.
 """
 
 import numpy as np
@@ -30,7 +30,7 @@ def _centres(bins):
 
 @pytest.mark.parametrize("alpha", ALPHAS)
 def test_cp_integrates_to_kutta_joukowski_lift_and_no_drag(alpha):
-    # Anderson §3.15-3.16: CL = -2 pi alpha (sign of DESIGN.md §4), d'Alembert CD = 0. Cp sin θ is
+    # Anderson §3.15-3.16: CL = -2 pi alpha (sign of docs/conventions.md), d'Alembert CD = 0. Cp sin θ is
     # a trigonometric polynomial of degree 3, which the 36-point periodic trapezoid rule integrates
     # exactly, so only rounding is left: 1e-12 absolute.
     theta = np.arange(36) * 10.0
@@ -60,7 +60,7 @@ def test_cp_non_spinning_cylinder():
 
 
 def test_cp_spin_speeds_the_positive_theta_side():
-    # Anderson §3.15 with DESIGN.md §4: positive spin adds speed where θ > 0 (the surface moves
+    # Anderson §3.15 with docs/conventions.md: positive spin adds speed where θ > 0 (the surface moves
     # with the flow there), hand-worked: alpha = 0.5, θ = 90° → 1 − 2.5² = −5.25; θ = −90° → 1 −
     # 1.5² = −1.25. Exact arithmetic → 1e-14.
     assert cp_surface(np.array([90.0, -90.0]), 0.5) == pytest.approx([-5.25, -1.25], abs=1e-14)
@@ -115,7 +115,7 @@ def test_stagnation_points_leave_the_surface_beyond_two():
 
 
 def test_broadcasting():
-    # DESIGN.md §2/STYLE: physics functions broadcast (a grid of theta against a batch of alpha).
+    # docs/conventions.md: physics functions broadcast (a grid of theta against a batch of alpha).
     theta = np.linspace(0.0, 350.0, 36)
     alpha = np.array([[0.0], [0.5], [1.0]])
     assert cp_surface(theta, alpha).shape == (3, 36)

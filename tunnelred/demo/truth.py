@@ -7,7 +7,7 @@ at rest, falling to a minimum near ``alpha`` ≈ 1.5-2 and rising again; a torqu
 spin ratio; a weak Reynolds-number dependence throughout. :func:`true_surface_cp` gives the
 mid-span Cp(θ) whose integrals are exactly :func:`true_pressure_coefficients`.
 
-Conventions are those of DESIGN.md §4. In particular ``Mz`` is the aerodynamic torque on the model
+Conventions are those of docs/conventions.md. In particular ``Mz`` is the aerodynamic torque on the model
 about +z: it opposes the spin, so ``CM`` has the sign opposite to ``alpha`` and
 ``C_power = CM alpha`` is negative (power taken from the drive).
 """
@@ -57,7 +57,7 @@ def true_lift_coefficient(alpha, reynolds, *, end_plates):
     Returns
     -------
     float or ndarray
-        ``CL`` on ``q d b``; negative for positive spin (DESIGN.md §4). [-]
+        ``CL`` on ``q d b``; negative for positive spin (docs/conventions.md). [-]
 
     Notes
     -----

@@ -443,7 +443,7 @@ def live_figure(results):
     Notes
     -----
     The potential-flow line is the Kutta–Joukowski lift of a spinning cylinder, CL = −2πα
-    (DESIGN.md §4); it holds while the stagnation points stay on the surface, |α| ≤ 2.
+    (docs/conventions.md); it holds while the stagnation points stay on the surface, |α| ≤ 2.
 
     References
     ----------

@@ -239,7 +239,7 @@ def spin_ratio(omega, radius, velocity):
 
     Notes
     -----
-    With the axes of DESIGN.md §4 (x downstream, y the lift axis, z = x × y), a positive alpha
+    With the axes of docs/conventions.md (x downstream, y the lift axis, z = x × y), a positive alpha
     moves the surface at the top (+y) upstream, and potential flow gives CL = −2 pi alpha.
 
     References

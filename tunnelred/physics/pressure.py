@@ -4,7 +4,7 @@ A tap on a spinning model sweeps the whole circle once a revolution, so every ta
 Cp(θ); binning its record by azimuth gives Cp(θ) with as many samples per bin as revolutions
 allow. A stationary model is covered by taps at fixed azimuths, and by several runs at different
 index angles merged with :func:`merge_indexed`. Angles are in degrees (θ from the windward point,
-positive with positive spin, DESIGN.md §4), pressures in Pa.
+positive with positive spin, docs/conventions.md), pressures in Pa.
 """
 
 from __future__ import annotations

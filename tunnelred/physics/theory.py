@@ -1,6 +1,6 @@
 """Potential flow about a spinning circular cylinder, and the features of a measured Cp(θ).
 
-Conventions (DESIGN.md §4): θ is measured from the windward point (θ = 0 faces the oncoming flow)
+Conventions (docs/conventions.md): θ is measured from the windward point (θ = 0 faces the oncoming flow)
 and increases in the sense of positive spin (ω > 0 counter-clockwise seen from +z); the spin ratio
 α = ωR/U is signed. Angles are in degrees at every public surface.
 """
@@ -54,7 +54,7 @@ def cp_surface(theta, alpha):
     References
     ----------
     .. [1] J. D. Anderson, *Fundamentals of Aerodynamics*, 6th ed., McGraw-Hill, 2017, §3.15
-       (lifting flow over a cylinder), written here in the azimuth of DESIGN.md §4.
+       (lifting flow over a cylinder), written here in the azimuth of docs/conventions.md.
 
     Examples
     --------

@@ -57,7 +57,7 @@ __all__ = [
     "save_standard_figures",
 ]
 
-#: Coverage factor of every error bar and band drawn (DESIGN.md §4: reports show k = 2).
+#: Coverage factor of every error bar and band drawn (docs/conventions.md: reports show k = 2).
 COVERAGE_FACTOR = 2.0
 
 
@@ -594,7 +594,7 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
         Where to draw (a polar Axes when ``polar``); a new one when None.
     polar : bool
         Draw Cp as the radius about the section, the flow arriving from the left and θ increasing
-        counter-clockwise (the sense of positive spin, DESIGN.md §4).
+        counter-clockwise (the sense of positive spin, docs/conventions.md).
 
     Returns
     -------

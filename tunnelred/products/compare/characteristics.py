@@ -24,7 +24,7 @@ __all__ = ["COMPARED", "FIGURES", "characteristics", "characteristics_table", "r
 #: The coefficients compared by default.
 COMPARED: tuple[str, ...] = ("CL", "CD", "CM", "C_power")
 
-_IDEAL_SLOPE = -2.0 * math.pi  # dCL/dα in potential flow (Kutta–Joukowski, DESIGN.md §4)
+_IDEAL_SLOPE = -2.0 * math.pi  # dCL/dα in potential flow (Kutta–Joukowski, docs/conventions.md)
 
 # The figures of characteristics() that carry an uncertainty `u_<figure>` and so can be differenced.
 FIGURES = (
