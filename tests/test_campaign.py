@@ -8,11 +8,14 @@ the engine. Executors are compared with xarray.testing.assert_identical.
 
 from __future__ import annotations
 
+import json
+import os
 import pickle
 import sys
 import time
 from dataclasses import replace
 
+import numpy as np
 import pandas as pd
 import pytest
 import xarray as xr
@@ -20,7 +23,6 @@ import xarray as xr
 from tunnelred.demo.spec import demo_spec
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine import reduction
-from tunnelred.engine.reduction import RunResult
 from tunnelred.pipeline import campaign as engine
 
 OUTPUT_FILES = {
@@ -162,10 +164,10 @@ def test_dask_missing_says_how_to_install(campaign_dir, monkeypatch):
 
 
 def test_unchanged_rerun_reduces_nothing(campaign_dir, tmp_path, calls):
-    first = _reduce(campaign_dir, tmp_path)
+    first = _reduce(campaign_dir, tmp_path / "out")
     assert sorted(calls) == DATA_RUNS
     calls.clear()
-    again = _reduce(campaign_dir, tmp_path)
+    again = _reduce(campaign_dir, tmp_path / "out")
     assert calls == []
     assert (again.reduced, again.from_cache) == (5, 5)
     xr.testing.assert_identical(_without_time(again.dataset), _without_time(first.dataset))
@@ -182,10 +184,10 @@ def test_unchanged_rerun_reduces_nothing(campaign_dir, tmp_path, calls):
     ],
 )
 def test_changed_log_rereduces_the_runs_that_use_it(campaign_dir, tmp_path, calls, log, run):
-    _reduce(campaign_dir, tmp_path)
+    _reduce(campaign_dir, tmp_path / "out")
     calls.clear()
     _nudge(campaign_dir / log)
-    res = _reduce(campaign_dir, tmp_path)
+    res = _reduce(campaign_dir, tmp_path / "out")
     expected = _users_of(campaign_dir, run)
     assert expected  # every log here is used by some data run
     assert sorted(calls) == sorted(expected)
@@ -193,26 +195,67 @@ def test_changed_log_rereduces_the_runs_that_use_it(campaign_dir, tmp_path, call
 
 
 def test_fresh_rereduces_all_and_rewrites_cache(campaign_dir, tmp_path, calls):
-    _reduce(campaign_dir, tmp_path)
+    _reduce(campaign_dir, tmp_path / "out")
     calls.clear()
-    res = _reduce(campaign_dir, tmp_path, fresh=True)
+    res = _reduce(campaign_dir, tmp_path / "out", fresh=True)
     assert sorted(calls) == DATA_RUNS and res.from_cache == 0
     calls.clear()
-    _reduce(campaign_dir, tmp_path)
+    _reduce(campaign_dir, tmp_path / "out")
     assert calls == []
 
 
 def test_corrupt_cache_entry_is_a_miss(campaign_dir, tmp_path, calls):
-    _reduce(campaign_dir, tmp_path)
-    entries = sorted((tmp_path / ".cache").glob("*.pkl"))
+    _reduce(campaign_dir, tmp_path / "out")
+    entries = sorted((tmp_path / "out" / ".cache").glob("*.npz"))
     assert len(entries) == len(DATA_RUNS)
-    entries[0].write_bytes(b"not a pickle")
+    entries[0].write_bytes(b"not an archive")
     entries[1].write_bytes(entries[1].read_bytes()[:100])  # truncated
     calls.clear()
-    res = _reduce(campaign_dir, tmp_path)
+    res = _reduce(campaign_dir, tmp_path / "out")
     assert len(calls) == 2 and res.reduced == len(DATA_RUNS)
     for entry in entries[:2]:
-        assert isinstance(pickle.loads(entry.read_bytes()).result, RunResult)  # rewritten
+        assert _entry_is_whole(entry)  # rewritten
+
+
+class _Planted:
+    """An object whose unpickling runs code: it creates the file named in its argument."""
+
+    def __init__(self, path):
+        self.path = str(path)
+
+    def __reduce__(self):
+        return (os.system, (f"touch {self.path}",))
+
+
+def test_planted_pickle_entry_never_runs(campaign_dir, tmp_path, calls):
+    out = tmp_path / "out"
+    _reduce(campaign_dir, out)
+    proof = tmp_path / "code-ran"
+    payload = pickle.dumps(_Planted(proof))
+    entries = sorted((out / ".cache").glob("*.npz"))
+    # As the entry itself, under the old suffix, and inside an .npz as an object array.
+    entries[0].write_bytes(payload)
+    (out / ".cache" / (entries[1].stem + ".pkl")).write_bytes(payload)
+    with open(entries[2], "wb") as handle:
+        np.savez(handle, meta=np.array([_Planted(proof)], dtype=object))
+    calls.clear()
+    res = _reduce(campaign_dir, out)
+    assert not proof.exists()
+    assert res.reduced == len(DATA_RUNS)
+    assert len(calls) == 2  # the two planted .npz entries were misses; the .pkl is ignored
+    assert not (out / ".cache" / (entries[1].stem + ".pkl")).exists()  # pruned
+
+
+def test_cache_entry_of_another_key_is_a_miss(campaign_dir, tmp_path, calls):
+    out = tmp_path / "out"
+    _reduce(campaign_dir, out)
+    entries = sorted((out / ".cache").glob("*.npz"))
+    entries[1].write_bytes(entries[0].read_bytes())  # a whole entry, but for another run
+    entries[2].unlink()
+    entries[2].symlink_to("/dev/zero")  # never opened
+    calls.clear()
+    res = _reduce(campaign_dir, out)
+    assert len(calls) == 2 and res.reduced == len(DATA_RUNS)
 
 
 def test_monte_carlo_setting_is_part_of_the_key(campaign_dir):
@@ -239,11 +282,11 @@ def test_broken_runs_fail_alone_with_file_and_line(campaign_dir, tmp_path, calls
     # R004: its balance log is missing (found when the campaign is opened: never reduced).
     (campaign_dir / "logs/R004_balance.csv").unlink()
 
-    res = _reduce(campaign_dir, tmp_path)
+    res = _reduce(campaign_dir, tmp_path / "out")
     assert res.dataset["run"].values.tolist() == ["R001", "R003", "R005"]
     assert (res.reduced, res.failed) == (3, 2)
     assert "R004" not in calls
-    failures = pd.read_csv(tmp_path / "failures.csv")
+    failures = pd.read_csv(tmp_path / "out" / "failures.csv")
     assert list(failures.columns) == ["run", "file", "line", "reason"]
     bad_cell = failures[failures.run == "R002"]
     assert bad_cell[["file", "line"]].values.tolist() == [["logs/R002_tunnel.csv", 5]]
@@ -265,12 +308,12 @@ def test_internal_error_is_isolated_and_not_cached(campaign_dir, tmp_path, monke
         return real(campaign, run_id, **kwargs)
 
     monkeypatch.setattr(reduction, "reduce_run", fails_on_r002)
-    res = _reduce(campaign_dir, tmp_path)
+    res = _reduce(campaign_dir, tmp_path / "out")
     assert "R002" not in res.dataset["run"].values and res.reduced == 4
     reason = res.failures.set_index("run").loc["R002", "reason"]
     assert reason == "internal error: ZeroDivisionError: float division by zero"
     monkeypatch.setattr(reduction, "reduce_run", real)
-    again = _reduce(campaign_dir, tmp_path)
+    again = _reduce(campaign_dir, tmp_path / "out")
     assert (again.reduced, again.from_cache, again.failed) == (5, 4, 0)
 
 
@@ -301,12 +344,17 @@ def _interrupt_after(monkeypatch, k):
     monkeypatch.setattr(reduction, "reduce_run", stops)
 
 
+def _entry_is_whole(entry) -> bool:
+    with np.load(entry, allow_pickle=False) as archive:
+        meta = json.loads(archive["meta"].tobytes().decode("utf-8"))
+    return meta["run"] in DATA_RUNS and meta["result"] is not None
+
+
 def _check_cache_whole(cache, count):
     entries = list(cache.iterdir())
-    assert all(e.suffix == ".pkl" for e in entries)  # no temporary file left behind
+    assert all(e.suffix == ".npz" for e in entries)  # no temporary file left behind
     assert len(entries) == count
-    for entry in entries:
-        assert isinstance(pickle.loads(entry.read_bytes()).result, RunResult)
+    assert all(_entry_is_whole(entry) for entry in entries)
 
 
 def test_interrupt_leaves_no_partial_output(campaign_dir, tmp_path, monkeypatch):
@@ -314,19 +362,30 @@ def test_interrupt_leaves_no_partial_output(campaign_dir, tmp_path, monkeypatch)
     _interrupt_after(monkeypatch, 2)
     with pytest.raises(KeyboardInterrupt):
         _reduce(campaign_dir, out)
-    assert [p.name for p in out.iterdir()] == [".cache"]
+    names = sorted(p.name for p in out.iterdir())
+    assert names == [".cache", ".generations", ".lock", ".tunnelred"]
+    assert list((out / ".generations").iterdir()) == []
     _check_cache_whole(out / ".cache", 2)
 
 
+def _published(out):
+    """Every file users see in OUT (through the links), with its bytes."""
+    return {
+        p.relative_to(out).as_posix(): p.read_bytes()
+        for p in [*out.iterdir(), *out.glob("figures/*")]
+        if p.is_file()
+    }
+
+
 def test_interrupt_keeps_previous_outputs(campaign_dir, tmp_path, monkeypatch):
-    _reduce(campaign_dir, tmp_path)
-    before = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
+    _reduce(campaign_dir, tmp_path / "out")
+    before = _published(tmp_path / "out")
+    assert {"results.nc", "figures/CL_alpha.png"} <= set(before)
     _interrupt_after(monkeypatch, 2)
     with pytest.raises(KeyboardInterrupt):
-        _reduce(campaign_dir, tmp_path, fresh=True)
-    after = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
-    assert after == before
-    _check_cache_whole(tmp_path / ".cache", len(DATA_RUNS))
+        _reduce(campaign_dir, tmp_path / "out", fresh=True)
+    assert _published(tmp_path / "out") == before
+    _check_cache_whole(tmp_path / "out" / ".cache", len(DATA_RUNS))
 
 
 def test_run_ids_select_data_runs(campaign_dir):

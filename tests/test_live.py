@@ -230,7 +230,7 @@ def _closure(campaign: Path) -> dict[str, set[str]]:
 
 
 def _cache_entries(out: Path) -> dict[str, int]:
-    return {p.name: p.stat().st_mtime_ns for p in (out / ".cache").glob("*.pkl")}
+    return {p.name: p.stat().st_mtime_ns for p in (out / ".cache").glob("*.npz")}
 
 
 def _settled_campaign(source: Path, dest: Path) -> Path:

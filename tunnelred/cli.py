@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from tunnelred import __version__
-from tunnelred.common.errors import InputError, TunnelredError
+from tunnelred.common.errors import InputError, OutputFolderError, TunnelredError
 
 __all__ = ["main"]
 
@@ -222,6 +222,11 @@ def _add_reduce(subparsers) -> None:
     )
     p.add_argument("--report", action="store_true", help="also write OUT/report.pdf")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument(
+        "--force",
+        action="store_true",
+        help="write into a non-empty OUT that is not a tunnelred results folder",
+    )
     p.set_defaults(run=_run_reduce)
 
 
@@ -232,23 +237,26 @@ def _run_reduce(args) -> int:
         return _fail_usage(f"{args.campaign}: no such folder")
     if args.out.exists() and not args.out.is_dir():
         return _fail_usage(f"{args.out} exists and is not a folder")
-    results = reduce_campaign(
-        args.campaign,
-        args.out,
-        workers=args.workers,
-        dask=args.dask,
-        fresh=args.fresh,
-        monte_carlo=args.monte_carlo,
-        progress=not args.quiet,
-    )
-    if args.report:
-        from tunnelred.products.report import write_report
-
-        pdf = write_report(args.out, campaign=args.campaign)
-        results.outputs["report"] = pdf
+    try:
+        results = reduce_campaign(
+            args.campaign,
+            args.out,
+            workers=args.workers,
+            dask=args.dask,
+            fresh=args.fresh,
+            monte_carlo=args.monte_carlo,
+            progress=not args.quiet,
+            report=args.report,
+            force=args.force,
+        )
+    except InputError as exc:
+        # Every run would fail the same way: stop once, write nothing.
+        print("the campaign cannot be reduced as it is (nothing was written):")
+        _print_problems(exc.problems)
+        return 2
     print(results.summary())
     if args.report:
-        print(f"  report   {pdf}")
+        print(f"  report   {results.outputs['report.pdf']}")
     return 1 if results.failed else 0
 
 
@@ -427,6 +435,8 @@ def main(argv=None) -> int:
     except InputError as exc:
         print("the input cannot be used as it is:")
         return _print_problems(exc.problems)
+    except OutputFolderError as exc:
+        return _fail_usage(str(exc))
     except TunnelredError as exc:
         print(f"tunnelred: {exc}", file=sys.stderr)
         return 1

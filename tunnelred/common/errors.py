@@ -117,3 +117,16 @@ class ReductionError(TunnelredError):
         self.line = line
         where = f" ({file}" + (f":{line}" if line is not None else "") + ")" if file else ""
         super().__init__(f"run {run}: {reason}{where}")
+
+
+class OutputFolderError(TunnelredError):
+    """The output folder cannot be used as asked; nothing in it was changed.
+
+    Examples: another reduction holds its lock, it lies inside the campaign folder, it is a
+    non-empty folder that tunnelred did not make, it cannot be written, or the disk filled up
+    while a new set of results was being written (the previous set stays in force).
+    """
+
+
+class OutsideError(OutputFolderError):
+    """A path to be written resolves outside the folder it must stay in."""

@@ -21,9 +21,10 @@ import html
 import json
 import multiprocessing
 import os
-import pickle
 import secrets
+import stat
 import sys
+import tempfile
 import threading
 import time
 from collections import deque
@@ -32,6 +33,7 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import xarray as xr
 from threadpoolctl import threadpool_limits
@@ -45,7 +47,7 @@ from tunnelred.products import store
 __all__ = ["CampaignResults", "reduce_campaign", "cache_key"]
 
 _CACHE_DIR = ".cache"
-_CACHE_SUFFIX = ".pkl"
+_CACHE_SUFFIX = ".npz"
 _DASK_HINT = 'dask is not installed; install it with: pip install "tunnelred[dask]"'
 # Lines of each list in the one-screen summary before "and N more".
 _SUMMARY_LINES = 12
@@ -111,7 +113,7 @@ class CampaignResults:
         )
         if self.outputs:
             folder = next(iter(self.outputs.values())).parent
-            files = [name for name in self.outputs if "/" not in name and name != "report"]
+            files = [name for name in self.outputs if "/" not in name and name != "report.pdf"]
             figures = sum(1 for name in self.outputs if name.startswith("figures/"))
             if figures:
                 files.append(f"figures/ ({figures} PNG)")
@@ -319,27 +321,128 @@ def _key(campaign, run_id: str, monte_carlo: int, rows: dict[str, str]) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
+# An entry is an .npz archive read with allow_pickle=False: arrays of numbers and one JSON
+# document (``meta``), so that nothing in OUT can make tunnelred run code. Anything that does
+# not parse, is not a regular file, is too large or names another key or run is a miss.
+_CACHE_FORMAT = 1
+_CACHE_MAX_BYTES = 256 * 2**20
+
+
+def _plain(value):
+    """JSON's fallback for numpy scalars and pandas' missing values."""
+    if hasattr(value, "item"):
+        return value.item()
+    if value is pd.NA or value is None:
+        return None
+    raise TypeError(f"{type(value).__name__} is not cached")
+
+
+def _entry(key: str, outcome: _Outcome) -> dict[str, np.ndarray]:
+    meta: dict = {"format": _CACHE_FORMAT, "key": key, "run": outcome.run}
+    meta["failures"] = outcome.failures
+    arrays: dict[str, np.ndarray] = {}
+    r = outcome.result
+    if r is not None:
+        record = {
+            "run": r.run,
+            "config": r.config,
+            "values": r.values,
+            "flags": [[f.name, f.value, f.tolerance, f.reason] for f in r.flags],
+            "inputs": r.inputs,
+            "profiles": list(r.profiles),
+            "theta": r.theta is not None,
+            "budgets": None,
+        }
+        if r.theta is not None:
+            arrays["theta"] = np.asarray(r.theta)
+        for i, array in enumerate(r.profiles.values()):
+            arrays[f"profile_{i}"] = np.asarray(array)
+        if r.budgets is not None:
+            columns = []
+            for i, name in enumerate(r.budgets.columns):
+                column = r.budgets[name]
+                if pd.api.types.is_numeric_dtype(column) and not pd.api.types.is_bool_dtype(column):
+                    arrays[f"budget_{i}"] = column.to_numpy()
+                    columns.append([str(name), None])
+                else:
+                    columns.append([str(name), column.tolist()])
+            record["budgets"] = columns
+        meta["result"] = record
+    else:
+        meta["result"] = None
+    text = json.dumps(meta, default=_plain, allow_nan=True)
+    arrays["meta"] = np.frombuffer(text.encode("utf-8"), dtype=np.uint8)
+    return arrays
+
+
+def _outcome_from(entry, key: str, run_id: str) -> _Outcome | None:
+    meta = json.loads(entry["meta"].tobytes().decode("utf-8"))
+    if meta.get("format") != _CACHE_FORMAT or meta.get("key") != key or meta.get("run") != run_id:
+        return None
+    record = meta["result"]
+    if record is None:
+        return _Outcome(run_id, failures=list(meta["failures"]))
+    budgets = None
+    if record["budgets"] is not None:
+        budgets = pd.DataFrame(
+            {
+                name: entry[f"budget_{i}"] if values is None else pd.Series(values, dtype=object)
+                for i, (name, values) in enumerate(record["budgets"])
+            }
+        )
+    result = reduction.RunResult(
+        run=str(record["run"]),
+        config=str(record["config"]),
+        values=dict(record["values"]),
+        theta=entry["theta"] if record["theta"] else None,
+        profiles={name: entry[f"profile_{i}"] for i, name in enumerate(record["profiles"])},
+        flags=tuple(
+            quality.Flag(str(n), float(v), float(t), str(w)) for n, v, t, w in record["flags"]
+        ),
+        budgets=budgets,
+        inputs={str(k): str(v) for k, v in record["inputs"].items()},
+    )
+    if result.run != run_id:
+        return None
+    return _Outcome(run_id, result=result, failures=list(meta["failures"]))
+
+
 def _cache_read(folder: Path, key: str, run_id: str) -> _Outcome | None:
+    path = folder / f"{key}{_CACHE_SUFFIX}"
     try:
-        outcome = pickle.loads((folder / f"{key}{_CACHE_SUFFIX}").read_bytes())
-    except FileNotFoundError:
-        return None
+        # lstat, not open: a link, FIFO or device planted in the cache is never opened.
+        info = os.lstat(path)
+        if not stat.S_ISREG(info.st_mode) or info.st_size > _CACHE_MAX_BYTES:
+            return None
+        with np.load(path, allow_pickle=False) as entry:
+            return _outcome_from(entry, key, run_id)
     except Exception:
-        # A corrupt or foreign entry is a miss; the fresh outcome overwrites it.
+        # Missing, torn, corrupt or foreign: a miss; the fresh outcome overwrites it.
         return None
-    if not isinstance(outcome, _Outcome) or outcome.run != run_id:
-        return None
-    return outcome
 
 
 def _cache_write(folder: Path, key: str, outcome: _Outcome) -> None:
-    data = pickle.dumps(outcome, protocol=pickle.HIGHEST_PROTOCOL)
-    store.atomic_write_bytes(folder / f"{key}{_CACHE_SUFFIX}", data)
+    """Write one entry: a temporary file renamed into place, not synced (a torn entry is a miss)."""
+    try:
+        arrays = _entry(key, outcome)
+    except (TypeError, ValueError):
+        return  # an outcome JSON cannot hold is simply not cached
+    target = store.contained(folder, folder / f"{key}{_CACHE_SUFFIX}")
+    fd, name = tempfile.mkstemp(dir=folder, prefix=f".{key}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            np.savez(handle, **arrays)
+        os.replace(name, target)
+    except BaseException:
+        Path(name).unlink(missing_ok=True)
+        raise
 
 
 def _cache_prune(folder: Path, keep: set[str]) -> None:
-    for entry in folder.glob(f"*{_CACHE_SUFFIX}"):
-        if entry.stem not in keep:
+    """Remove every entry not in ``keep``, and anything else found in the cache folder."""
+    names = {f"{key}{_CACHE_SUFFIX}" for key in keep}
+    for entry in folder.iterdir():
+        if entry.name not in names and not entry.is_dir():
             entry.unlink(missing_ok=True)
 
 
@@ -568,6 +671,9 @@ def reduce_campaign(
     progress: bool = True,
     run_ids=None,
     figures: bool = True,
+    report: bool = False,
+    extras=None,
+    force: bool = False,
 ) -> CampaignResults:
     """Reduce every data run of a campaign folder and write the results.
 
@@ -575,9 +681,11 @@ def reduce_campaign(
     ----------
     path : str or path-like
         The campaign folder (opened read-only).
-    out : str or path-like, optional
+    out : str, path-like or tunnelred.products.results_folder.ResultsFolder, optional
         Output folder: results.nc, results.csv, provenance.json, failures.csv, budgets.csv,
-        figures/ and the cache .cache/. None: nothing is written and nothing is cached.
+        figures/ (and report.pdf) as one new generation (docs/results.md), and the cache
+        .cache/. It is locked for the reduction; a ResultsFolder is one the caller holds. None:
+        nothing is written and nothing is cached.
     workers : int, optional
         Processes to reduce with; default ``os.cpu_count()``. 1 reduces in this process.
     dask : str, optional
@@ -595,6 +703,14 @@ def reduce_campaign(
     figures : bool
         Write the standard figures into OUT/figures
         (:func:`tunnelred.products.plotting.save_standard_figures`).
+    report : bool
+        Also write OUT/report.pdf (:func:`tunnelred.products.report.write_report`), part of the
+        same generation.
+    extras : callable, optional
+        ``extras(staging, dataset)`` writes more files into the new generation before it is
+        switched to (``staging.file(name)`` gives each path); returns a dict name → path or None.
+    force : bool
+        Write into a non-empty folder that is not a tunnelred results folder.
 
     Returns
     -------
@@ -603,12 +719,17 @@ def reduce_campaign(
     Raises
     ------
     InputError
-        campaign.toml or runs.csv is unusable as a whole (every run would fail).
+        campaign.toml or runs.csv is unusable as a whole (every run would fail); nothing is
+        written.
+    OutputFolderError
+        ``out`` cannot be used (inside the campaign, locked by another process, not writable,
+        a foreign non-empty folder) or the new results could not be written (a full disk): the
+        previous results stay in force.
     ValueError
         ``run_ids`` names a run that is not a data run of the campaign.
     KeyboardInterrupt
-        Re-raised after cancelling the pending runs; no output file is touched and every cache
-        entry written is whole.
+        Re-raised after cancelling the pending runs; the previous results stay in force and
+        every cache entry written is whole.
 
     Notes
     -----
@@ -616,12 +737,21 @@ def reduce_campaign(
     A run with problems in its inputs, or that cannot be reduced, becomes a row of failures.csv
     and the others go on. The campaign-level repeat-run check runs once all runs are in.
     """
+    from tunnelred.products.results_folder import (
+        ResultsFolder,
+        check_location,
+        open_results_folder,
+    )
+
     started = time.perf_counter()
     if dask is not None:
         _distributed()
+    path = Path(path).resolve()
+    held = isinstance(out, ResultsFolder)
+    if out is not None and not held:
+        check_location(out, path, force=force)  # before anything is opened or reduced
     settings = _Settings(
-        path=Path(path).resolve(),
-        out=None if out is None else Path(out),
+        path=path,
         workers=max(1, int(workers or os.cpu_count() or 1)),
         dask=dask,
         fresh=fresh,
@@ -629,8 +759,16 @@ def reduce_campaign(
         progress=progress,
         run_ids=None if run_ids is None else tuple(run_ids),
         figures=figures,
+        report=report,
     )
-    return _reduce(settings, started)
+    campaign = open_campaign(path, check_logs=False)
+    plan = _plan(campaign, settings)  # an unknown run id is refused before OUT is touched
+    folder = out if held or out is None else open_results_folder(out, path, force=force)
+    try:
+        return _reduce(campaign, plan, folder, settings, started, extras)
+    finally:
+        if folder is not None and not held:
+            folder.close()
 
 
 @dataclass(frozen=True)
@@ -638,7 +776,6 @@ class _Settings:
     """How :func:`reduce_campaign` was asked to reduce (its arguments, normalised)."""
 
     path: Path  # the campaign folder, absolute
-    out: Path | None  # the output folder; None: nothing written, nothing cached
     workers: int
     dask: str | None
     fresh: bool
@@ -646,10 +783,7 @@ class _Settings:
     progress: bool
     run_ids: tuple[str, ...] | None  # None: every data run
     figures: bool
-
-    @property
-    def cache(self) -> Path | None:
-        return self.out / _CACHE_DIR if self.out is not None else None
+    report: bool
 
 
 @dataclass
@@ -681,22 +815,23 @@ def _plan(campaign, settings: _Settings) -> _Plan:
     return _Plan(selected, unreadable, failures, keys)
 
 
-def _cached_outcomes(plan: _Plan, settings: _Settings) -> dict[str, _Outcome]:
+def _cached_outcomes(plan: _Plan, cache: Path | None, settings: _Settings) -> dict[str, _Outcome]:
     outcomes: dict[str, _Outcome] = {}
-    if settings.cache is not None and not settings.fresh:
+    if cache is not None and not settings.fresh:
         for rid, key in plan.keys.items():
-            hit = _cache_read(settings.cache, key, rid)
+            hit = _cache_read(cache, key, rid)
             if hit is not None:
                 outcomes[rid] = hit
     return outcomes
 
 
-def _reduce_pending(campaign, plan: _Plan, settings: _Settings, outcomes: dict) -> None:
+def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes: dict) -> None:
     """Reduce the runs the cache did not answer, on the executor asked for, caching each."""
     todo = [rid for rid in plan.keys if rid not in outcomes]
     mc = settings.monte_carlo
     bar = _progress_bar(len(plan.failures) + len(plan.keys), settings.progress)
     bar.update(len(plan.failures) + len(outcomes))
+    caching = cache is not None
     try:
         if settings.dask is not None:
             token = _token(campaign, plan.keys)
@@ -712,38 +847,21 @@ def _reduce_pending(campaign, plan: _Plan, settings: _Settings, outcomes: dict) 
         with contextlib.closing(stream), _blas_one_thread():
             for outcome in stream:
                 outcomes[outcome.run] = outcome
-                if settings.cache is not None and outcome.cacheable:
-                    _cache_write(settings.cache, plan.keys[outcome.run], outcome)
+                if caching and outcome.cacheable:
+                    try:
+                        _cache_write(cache, plan.keys[outcome.run], outcome)
+                    except OSError:
+                        caching = False  # a full disk: reduce on; the results say so later
                 bar.update(1)
     finally:
         bar.close()
 
 
-def _write_outputs(ds, failures_table, budgets, plan: _Plan, settings: _Settings) -> dict:
-    """results.nc and its companions, the figures, and the cache pruned to this campaign."""
-    if settings.out is None:
-        return {}
-    out = settings.out
-    outputs = store.write_results(ds, out, failures=failures_table, budgets=budgets)
-    (out / "figures").mkdir(exist_ok=True)
-    if settings.figures and ds.sizes.get("run", 0):
-        from tunnelred.products.plotting import (
-            save_standard_figures,  # matplotlib only where figures are made
-        )
-
-        for path in save_standard_figures(ds, out):
-            outputs[f"figures/{path.name}"] = path
-    if settings.run_ids is None:
-        _cache_prune(settings.cache, set(plan.keys.values()))
-    return outputs
-
-
-def _reduce(settings: _Settings, started: float) -> CampaignResults:
-    campaign = open_campaign(settings.path, check_logs=False)
-    plan = _plan(campaign, settings)
-    outcomes = _cached_outcomes(plan, settings)
+def _reduce(campaign, plan: _Plan, folder, settings: _Settings, started: float, extras):
+    cache = folder.inside(folder.cache) if folder is not None else None
+    outcomes = _cached_outcomes(plan, cache, settings)
     from_cache = sum(1 for o in outcomes.values() if o.result is not None)
-    _reduce_pending(campaign, plan, settings, outcomes)
+    _reduce_pending(campaign, plan, cache, settings, outcomes)
 
     failures = plan.failures
     results = []
@@ -760,7 +878,16 @@ def _reduce(settings: _Settings, started: float) -> CampaignResults:
     runs = [*plan.selected, *plan.unreadable]
     failures_table = _failures_table([row for rid in runs for row in failures.get(rid, [])])
     budgets = _budgets_table(results)
-    outputs = _write_outputs(ds, failures_table, budgets, plan, settings)
+
+    outputs: dict[str, Path] = {}
+    if folder is not None:
+        with folder.stage() as staging:
+            written = _write_generation(staging, ds, failures_table, budgets, settings)
+            if extras is not None:
+                written.update(extras(staging, ds) or {})
+        outputs = {name: folder.root / name for name in written}
+        if settings.run_ids is None:
+            _cache_prune(cache, set(plan.keys.values()))
     return CampaignResults(
         dataset=ds,
         failures=failures_table,
@@ -778,6 +905,26 @@ def _reduce(settings: _Settings, started: float) -> CampaignResults:
 
 def _notice_text(notice: Problem) -> str:
     return f"{notice.location()}: {notice.hint or notice.found}"
+
+
+def _write_generation(staging, ds, failures_table, budgets, settings: _Settings) -> dict:
+    """Every output of one reduction, into its new generation; name → path inside it."""
+    written = dict(store.write_results(ds, staging.path, failures=failures_table, budgets=budgets))
+    staging.file("figures").mkdir(exist_ok=True)
+    if settings.figures and ds.sizes.get("run", 0):
+        from tunnelred.products.plotting import (
+            save_standard_figures,  # matplotlib only where figures are made
+        )
+
+        for figure in save_standard_figures(ds, staging.path):
+            written[f"figures/{figure.name}"] = figure
+    if settings.report:
+        from tunnelred.products.report import write_report
+
+        written["report.pdf"] = write_report(
+            staging.path, staging.file("report.pdf"), campaign=settings.path
+        )
+    return written
 
 
 def _methods(campaign, monte_carlo: int) -> dict:

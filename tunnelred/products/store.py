@@ -26,6 +26,7 @@ import pandas as pd
 import xarray as xr
 
 from tunnelred import __version__
+from tunnelred.common.errors import OutsideError
 from tunnelred.engine.quality import FLAG_NAMES, flag_columns
 
 if TYPE_CHECKING:
@@ -44,6 +45,7 @@ __all__ = [
     "read_results",
     "atomic_path",
     "atomic_write_bytes",
+    "contained",
     "write_csv",
 ]
 
@@ -551,6 +553,45 @@ def _fsync_dir(path: Path) -> None:
         pass
     finally:
         os.close(fd)
+
+
+def contained(root, path) -> Path:
+    """``path`` with its folder resolved (links followed), checked to lie inside ``root``.
+
+    The one containment test every write into an output folder goes through: a path built from
+    names a user wrote (a log path with a link and ``..`` in it, a run id) may point anywhere
+    once links are followed, so the check is made on the resolved path, and the resolved path is
+    what gets written. The last name is kept as it is, not followed: every write renames a
+    finished file into place, which replaces a link there instead of writing through it.
+
+    Raises
+    ------
+    OutsideError
+        ``path`` resolves outside ``root``.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> root = Path(tempfile.mkdtemp())
+    >>> contained(root, root / "a" / ".." / "b.txt") == root.resolve() / "b.txt"
+    True
+    >>> contained(root, root / ".." / "b.txt")
+    Traceback (most recent call last):
+    ...
+    tunnelred.common.errors.OutsideError: ../b.txt is outside the output folder
+    """
+    base = Path(os.path.realpath(root))
+    path = Path(path)
+    resolved = Path(os.path.realpath(path))
+    if path.name not in ("", ".", "..") and resolved != base:
+        resolved = Path(os.path.realpath(path.parent)) / path.name
+    if resolved != base and not resolved.is_relative_to(base):
+        try:
+            shown = os.path.relpath(resolved, base)
+        except ValueError:
+            shown = str(resolved)
+        raise OutsideError(f"{shown} is outside the output folder")
+    return resolved
 
 
 @contextmanager

@@ -1,0 +1,288 @@
+"""OUT as one generation, its lock and its location rules, under kills and concurrent reducers.
+
+`python -m tunnelred reduce` runs as a subprocess on a small synthetic campaign
+(tunnelred.demo) and is killed (SIGKILL, SIGINT, SIGTERM) at random moments; after each
+kill OUT must hold one whole generation (every published file from the same reduction) or none,
+and the next reduction must still work and use the cache.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import random
+import signal
+import subprocess
+import sys
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import xarray as xr
+
+from tunnelred.demo.spec import demo_spec
+from tunnelred.demo.writer import make_campaign
+from tunnelred.products import results_folder
+
+REPO = Path(__file__).resolve().parents[1]
+PUBLISHED = ("results.nc", "results.csv", "budgets.csv", "failures.csv", "provenance.json")
+
+
+def _small_spec():
+    demo = demo_spec()
+    return replace(
+        demo,
+        configurations=demo.configurations[:1],
+        speeds=(9.0,),
+        spin_ratios_up=(0.0, 1.0, 2.0),
+        spin_ratios_down=(),
+        tare_rpms=(1000.0, 3000.0, 4000.0),
+        repeat_point=(demo.configurations[0].label, 9.0, 2.0),
+        repeat_count=1,
+        faults=(),
+        pressure_speeds=(9.0,),
+        pressure_spin_ratios=(2.0,),
+        data_duration=2.0,
+        wind_off_duration=1.0,
+    )
+
+
+@pytest.fixture(scope="module")
+def campaign(tmp_path_factory) -> Path:
+    root = tmp_path_factory.mktemp("integrity") / "campaign"
+    make_campaign(root, _small_spec())
+    return root
+
+
+def _command(campaign, out, *extra):
+    return [sys.executable, "-m", "tunnelred", "reduce", str(campaign), "-o", str(out), "--quiet"]
+
+
+def _env():
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(REPO) + os.pathsep + env.get("PYTHONPATH", "")
+    return env
+
+
+def _reduce(campaign, out, *extra, timeout=300):
+    return subprocess.run(
+        [*_command(campaign, out), "--workers", "1", *extra],
+        capture_output=True,
+        text=True,
+        env=_env(),
+        timeout=timeout,
+    )
+
+
+def assert_one_generation(out: Path) -> Path | None:
+    """OUT holds one whole generation (returned), or none at all and no published file."""
+    current = out / "current"
+    if not current.is_symlink():
+        assert not any((out / name).exists() for name in PUBLISHED)
+        return None
+    generation = Path(os.path.realpath(current))
+    assert generation.parent == (out / ".generations").resolve()
+    for name in [*PUBLISHED, "figures"]:
+        # Every published path resolves into the one generation in force.
+        assert Path(os.path.realpath(out / name)).parent == generation, name
+    with xr.open_dataset(out / "results.nc", engine="netcdf4") as ds:
+        created, runs = ds.attrs["created"], [str(r) for r in ds["run"].values]
+    provenance = json.loads((out / "provenance.json").read_text(encoding="utf-8"))
+    assert provenance["created"] == created
+    table = pd.read_csv(out / "results.csv", dtype={"run": str})
+    assert table["run"].tolist() == runs
+    return generation
+
+
+def _entries_parse(cache: Path) -> int:
+    whole = 0
+    for entry in cache.glob("*.npz"):
+        with np.load(entry, allow_pickle=False) as archive:
+            json.loads(archive["meta"].tobytes().decode("utf-8"))
+        whole += 1
+    return whole
+
+
+def _kill_loop(campaign, tmp_path, iterations, seed):
+    rng = random.Random(seed)
+    out = tmp_path / "out"
+    first = _reduce(campaign, out)
+    assert first.returncode == 0, first.stderr
+    reference = assert_one_generation(out)
+    assert reference is not None
+    kills = 0
+    hangs: list = []
+    for i in range(iterations):
+        sig = (signal.SIGKILL, signal.SIGINT, signal.SIGTERM)[i % 3]
+        extra = ["--fresh"] if i % 2 == 0 else []
+        proc = subprocess.Popen(
+            [*_command(campaign, out), "--workers", "2", *extra],
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.PIPE,
+            env=_env(),
+        )
+        time.sleep(rng.uniform(0.2, 8.0))
+        proc.send_signal(sig)
+        try:
+            _, err = proc.communicate(timeout=60)
+        except subprocess.TimeoutExpired:
+            hangs.append(sig)  # did not stop after the signal: killed, OUT must still be whole
+            proc.kill()
+            _, err = proc.communicate()
+        kills += proc.returncode != 0
+        if sig == signal.SIGINT and proc.returncode == 130:
+            assert b"Traceback" not in err  # workers silent, one message
+        assert assert_one_generation(out) is not None
+        _entries_parse(out / ".cache")
+    last = _reduce(campaign, out)
+    assert last.returncode == 0, last.stderr
+    assert "from cache" in last.stdout
+    assert assert_one_generation(out) is not None
+    assert len(list((out / ".generations").iterdir())) == 1  # leftovers cleaned
+    assert not list(out.glob(".*.tmp")) and not list((out / ".cache").glob(".*.tmp"))
+    assert hangs == []
+    return kills
+
+
+def test_kills_at_random_moments_leave_one_generation(campaign, tmp_path):
+    _kill_loop(campaign, tmp_path, iterations=3, seed=14)
+
+
+@pytest.mark.slow
+def test_many_kills_leave_one_generation(campaign, tmp_path):
+    _kill_loop(campaign, tmp_path, iterations=24, seed=1414)
+
+
+def test_second_reducer_on_a_locked_out_exits_2_at_once(campaign, tmp_path):
+    out = tmp_path / "out"
+    held = results_folder.open_results_folder(out, campaign)
+    try:
+        started = time.monotonic()
+        second = _reduce(campaign, out)
+        assert second.returncode == 2
+        assert f"in use by process {os.getpid()}" in second.stderr
+        assert "Traceback" not in second.stderr
+        assert time.monotonic() - started < 60  # stops before reducing anything
+        assert not (out / "current").exists()
+    finally:
+        held.close()
+
+
+def test_two_concurrent_reducers_one_wins_one_generation(campaign, tmp_path):
+    out = tmp_path / "out"
+    procs = [
+        subprocess.Popen(
+            [*_command(campaign, out), "--workers", "1"],
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            env=_env(),
+        )
+        for _ in range(2)
+    ]
+    codes = sorted(p.wait(timeout=300) for p in procs)
+    for p in procs:
+        p.stdout.close()
+        p.stderr.close()
+    # Either one waited out the other's lock (0, 2), or they ran one after the other (0, 0).
+    assert codes in ([0, 2], [0, 0])
+    assert assert_one_generation(out) is not None
+
+
+def test_stale_lock_of_a_dead_process_is_taken(campaign, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / results_folder.MARKER).write_text("{}\n")
+    (out / ".lock").write_text("999999999\n")  # a pid no process has
+    done = _reduce(campaign, out)
+    assert done.returncode == 0, done.stderr
+    assert (out / ".lock").read_text() == ""  # released
+
+
+def test_out_inside_the_campaign_is_refused(campaign, tmp_path):
+    for out in (campaign, campaign / "out", campaign / "logs" / "x"):
+        done = _reduce(campaign, out)
+        assert done.returncode == 2 and "inside the campaign folder" in done.stderr
+        assert "Traceback" not in done.stderr
+    assert not (campaign / "out").exists() and not (campaign / ".cache").exists()
+
+
+def test_foreign_non_empty_out_needs_force(campaign, tmp_path):
+    out = tmp_path / "mine"
+    out.mkdir()
+    (out / "notes.txt").write_text("mine")
+    done = _reduce(campaign, out)
+    assert done.returncode == 2 and "--force" in done.stderr
+    assert sorted(p.name for p in out.iterdir()) == ["notes.txt"]
+    forced = _reduce(campaign, out, "--force")
+    assert forced.returncode == 0, forced.stderr
+    assert (out / "notes.txt").read_text() == "mine"
+
+
+@pytest.mark.parametrize("make", ["file", "parent-file", "read-only"])
+def test_unusable_out_is_found_before_reducing(campaign, tmp_path, make):
+    if make == "file":
+        out = tmp_path / "out"
+        out.write_text("x")
+    elif make == "parent-file":
+        (tmp_path / "f").write_text("x")
+        out = tmp_path / "f" / "out"
+    else:
+        if os.geteuid() == 0:
+            pytest.skip("root writes into read-only folders")
+        out = tmp_path / "ro"
+        out.mkdir(mode=0o500)
+    done = _reduce(campaign, out)
+    assert done.returncode == 2, done.stdout + done.stderr
+    assert "Traceback" not in done.stderr and "reduced" not in done.stdout
+
+
+def test_report_of_older_results_does_not_survive(campaign, tmp_path):
+    out = tmp_path / "out"
+    assert _reduce(campaign, out, "--report").returncode == 0
+    assert (out / "report.pdf").is_file()
+    assert _reduce(campaign, out).returncode == 0
+    assert not (out / "report.pdf").exists() and not (out / "report.pdf").is_symlink()
+    assert_one_generation(out)
+
+
+def test_folder_of_the_older_layout_is_taken_over(campaign, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    for name in ("results.nc", "provenance.json", "report.pdf", ".results.csv.abc.tmp"):
+        (out / name).write_text("old")
+    (out / "figures").mkdir()
+    (out / "figures" / "CL_alpha.png").write_text("old")
+    done = _reduce(campaign, out)
+    assert done.returncode == 0, done.stderr
+    assert assert_one_generation(out) is not None
+    assert not (out / "report.pdf").exists() and not (out / ".results.csv.abc.tmp").exists()
+    assert (out / "figures").is_symlink()
+
+
+def test_staging_carry_brings_a_file_from_the_previous_generation(tmp_path):
+    out = tmp_path / "out"
+    with results_folder.open_results_folder(out) as folder:
+        with folder.stage() as staging:
+            staging.file("figures").mkdir()
+            staging.file("figures/a.png").write_bytes(b"png")
+        with folder.stage() as staging:
+            assert staging.carry("figures/a.png")
+            assert not staging.carry("figures/missing.png")
+        assert (out / "figures" / "a.png").read_bytes() == b"png"
+        assert len(list((out / ".generations").iterdir())) == 1
+
+
+def test_a_failing_write_keeps_the_previous_generation(tmp_path):
+    out = tmp_path / "out"
+    with results_folder.open_results_folder(out) as folder:
+        with folder.stage() as staging:
+            staging.file("results.csv").write_text("old")
+        with pytest.raises(results_folder.OutputFolderError, match="previous results are kept"):
+            with folder.stage() as staging:
+                staging.file("results.csv").write_text("new")
+                raise OSError(28, "No space left on device")
+        assert (out / "results.csv").read_text() == "old"
+        assert len(list((out / ".generations").iterdir())) == 1
