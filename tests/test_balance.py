@@ -380,8 +380,8 @@ def test_lift_to_drag_is_nan_at_zero_drag():
 
 def test_kutta_joukowski_through_the_balance_recovers_minus_two_pi_alpha():
     # Anderson, Fundamentals of Aerodynamics, 6th ed., §3.16: L' = −ρ U Γ per unit span on a
-    # spinning cylinder in potential flow (sign for our axes: docs/conventions.md), Γ = 2π ω R², hence
-    # CL = −2π ωR/U. Batch of B = 7 runs, α of both signs, through a second-order balance
+    # spinning cylinder in potential flow (sign for our axes: docs/conventions.md), Γ = 2π ω R²,
+    # hence CL = −2π ωR/U. Batch of B = 7 runs, α of both signs, through a second-order balance
     # turned 1.5° from the tunnel with a 0.3° flow angle.
     rho, diameter, span = 1.2, 0.12, 0.6
     radius = diameter / 2.0

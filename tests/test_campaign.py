@@ -1,4 +1,5 @@
-"""tunnelred.pipeline.campaign: failure isolation, parallel executors, the per-run cache, interruption.
+"""tunnelred.pipeline.campaign: failure isolation, parallel executors, the per-run cache,
+interruption.
 
 The campaign is a small synthetic one (tunnelred.demo): three zeros, three spin tares and five
 data runs at one speed, one of them with a pressure log, the last three repeats of one set point.

@@ -1,4 +1,5 @@
-"""Tests of tunnelred.products.compare against hand-worked cases, numpy, statistics, scipy and uncertainties.
+"""Tests of tunnelred.products.compare against hand-worked cases, numpy, statistics, scipy and
+uncertainties.
 
 Synthetic results are DataFrames built here with the names of docs/results.md; their "truth" is a
 stated formula (potential flow CL = −2πα, or a chosen curve plus a known increment) and their

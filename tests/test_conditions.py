@@ -58,8 +58,8 @@ def test_dynamic_pressure_against_scipy_root(mach):
 
 
 def test_dynamic_pressure_inverts_impact_pressure_over_a_batch():
-    # q -> qc -> q over a batch broadcast against two static pressures (docs/conventions.md: run-level
-    # models are evaluated over Monte Carlo draws); float64 round trip -> rtol 1e-12.
+    # q -> qc -> q over a batch broadcast against two static pressures (docs/conventions.md:
+    # run-level models are evaluated over Monte Carlo draws); float64 round trip -> rtol 1e-12.
     q = np.linspace(10.0, 6000.0, 50)[:, None]
     p = np.array([P0, 0.8 * P0])
     back = conditions.dynamic_pressure(conditions.impact_pressure(q, p), p)

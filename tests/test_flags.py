@@ -1,12 +1,12 @@
 """Every quality flag, raised end to end by a synthetic run built to trip it, and by no clean run.
 
-One small synthetic campaign (tunnelred.demo; one configuration, three speeds, spin ratios 0 to
-4, short wind-off records) plants each fault kind of FAULT_KINDS in its own up-sweep run;
-every faulty run is followed by a clean retake at its set point, and the rest of the sweep, a
-down-sweep point per speed and one repeat are clean as well. The campaign is written and reduced
-once for the module (tunnelred.pipeline.campaign.reduce_campaign, two worker processes). Each planted run
-must raise its own flag and, besides it, only the flags its fault makes inevitable; its reason
-must quote the value the fault produced; and no clean run may raise anything.
+One small synthetic campaign (tunnelred.demo; one configuration, three speeds, spin ratios 0 to 4,
+short wind-off records) plants each fault kind of FAULT_KINDS in its own up-sweep run; every faulty
+run is followed by a clean retake at its set point, and the rest of the sweep, a down-sweep point
+per speed and one repeat are clean as well. The campaign is written and reduced once for the module
+(tunnelred.pipeline.campaign.reduce_campaign, two worker processes). Each planted run must raise its
+own flag and, besides it, only the flags its fault makes inevitable; its reason must quote the value
+the fault produced; and no clean run may raise anything.
 
 Tolerances are the defaults of docs/input-format.md [reduction.tolerances] (the campaign sets
 none). Each fault is planted at a size a few times its tolerance, so the flag does not hinge on
@@ -239,10 +239,10 @@ def _cl_disagreement(c, run, reason):
     CL, CL_p = _numbers(reason)[:2]
     assert CL == pytest.approx(table.loc[run, "CL"], abs=5e-4)
     assert CL_p == pytest.approx(table.loc[run, "CL_p"], abs=5e-4)
-    # Planted: a 15 % scanner span error on a model with end plates, whose mid-span CL_p equals
-    # its balance CL (true_pressure_coefficients); the span error multiplies ∮Cp sin θ dθ
-    # (CL = ½∮Cp sin θ dθ, docs/conventions.md) and its uniform part (the centrifugal head) integrates
-    # to nothing. The two lifts' own uncertainties are under 1 % → abs 0.03 on the ratio.
+    # Planted: a 15 % scanner span error on a model with end plates, whose mid-span CL_p equals its
+    # balance CL (true_pressure_coefficients); the span error multiplies ∮Cp sin θ dθ (CL = ½∮Cp sin
+    # θ dθ, docs/conventions.md) and its uniform part (the centrifugal head) integrates to nothing.
+    # The two lifts' own uncertainties are under 1 % → abs 0.03 on the ratio.
     assert CL_p / CL == pytest.approx(1 + FAULTS["cl_disagreement"].size, abs=0.03)
 
 

@@ -96,7 +96,8 @@ def test_cl_theory_line_and_prandtl_bound(results):
     theory = next(line for line in ax.lines if "potential flow" in line.get_label())
     alpha = np.asarray(theory.get_xdata())
     # Kutta-Joukowski with Gamma = 2 pi omega R^2: CL = -2 pi alpha (Anderson, Fundamentals of
-    # Aerodynamics, 6th ed., §3.16); computed here from the formula, not from tunnelred.physics.theory.
+    # Aerodynamics, 6th ed., §3.16); computed here from the formula, not from
+    # tunnelred.physics.theory.
     np.testing.assert_allclose(theory.get_ydata(), -2 * np.pi * alpha, rtol=1e-12)
     # The line stops where the stagnation points leave the surface, |alpha| = 2 (Anderson §3.15).
     assert alpha.max() == pytest.approx(2.0)
@@ -145,8 +146,9 @@ def test_cp_band_and_theory(results, polar):
     x = np.asarray(ideal.get_xdata())
     x_deg = np.degrees(x) if polar else x
     alpha = float(row["alpha"])
-    # Potential flow about a spinning cylinder, Cp = 1 - (alpha + 2 sin theta)^2 (Anderson §3.15,
-    # in the azimuth of docs/conventions.md), written out here independently of tunnelred.physics.theory.
+    # Potential flow about a spinning cylinder, Cp = 1 - (alpha + 2 sin theta)^2 (Anderson §3.15, in
+    # the azimuth of docs/conventions.md), written out here independently of
+    # tunnelred.physics.theory.
     expected = 1 - (alpha + 2 * np.sin(np.radians(x_deg))) ** 2
     np.testing.assert_allclose(ideal.get_ydata(), expected, rtol=1e-12, atol=1e-12)
     band = ax.collections[0]

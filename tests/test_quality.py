@@ -1,4 +1,5 @@
-"""Tests of tunnelred.engine.quality: every check trips on a value built to trip it, never on a clean one.
+"""Tests of tunnelred.engine.quality: every check trips on a value built to trip it, never on a
+clean one.
 
 The tolerances are the defaults of tunnelred.inputs.config.Tolerances (docs/input-format.md); their
 values are the project's choice (common practice), so the tests build measures on either side

@@ -1,10 +1,10 @@
 """End to end: the demo campaign, reduced, recovers the truth synth built it from.
 
-tunnelred.demo runs a forward model of the test (free stream, spin, balance channels through the inverse
-calibration, zero drift, spin tares, rotating taps with tubing delay and centrifugal head, and the
-wall interference of the configured method applied forward). The reduction must undo all of it.
-The tolerance of every comparison is the result's own expanded uncertainty, U = 2u (JCGM 100:2008
-§6.2, k = 2), plus nothing: a result outside it is a defect of the reduction or of its u.
+tunnelred.demo runs a forward model of the test (free stream, spin, balance channels through the
+inverse calibration, zero drift, spin tares, rotating taps with tubing delay and centrifugal head,
+and the wall interference of the configured method applied forward). The reduction must undo all of
+it. The tolerance of every comparison is the result's own expanded uncertainty, U = 2u (JCGM
+100:2008 §6.2, k = 2), plus nothing: a result outside it is a defect of the reduction or of its u.
 """
 
 from __future__ import annotations
@@ -104,8 +104,8 @@ def test_every_result_has_its_uncertainty(demo_results):
 
 
 def test_theory_comparison_carries_its_uncertainty(table, demo_truth, clean):
-    # CL_ideal = -2 pi alpha (Kutta-Joukowski, docs/conventions.md): its u is 2 pi u(alpha) exactly, a
-    # linear function of one input (JCGM 100:2008 eq. 10).
+    # CL_ideal = -2 pi alpha (Kutta-Joukowski, docs/conventions.md): its u is 2 pi u(alpha) exactly,
+    # a linear function of one input (JCGM 100:2008 eq. 10).
     spinning = [r for r in clean if abs(table.loc[r, "alpha"]) > 0.1]
     assert np.allclose(table.loc[spinning, "CL_ideal"], -2 * np.pi * table.loc[spinning, "alpha"])
     assert np.allclose(

@@ -139,8 +139,9 @@ def test_cp_integrates_to_pressure_coefficients(alpha, end_plates):
     cl_p, cd_p = true_pressure_coefficients(alpha, 1e5, end_plates=end_plates)
     theta = np.arange(72) * 5.0 + 2.5
     cp = true_surface_cp(theta, alpha, 1e5, end_plates=end_plates)
-    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (docs/conventions.md); tunnelred.physics.pressure.integrate_cp on
-    # 72 bins: its periodic trapezoid is spectrally accurate on this smooth profile → abs 2e-3.
+    # CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ (docs/conventions.md);
+    # tunnelred.physics.pressure.integrate_cp on 72 bins: its periodic trapezoid is spectrally
+    # accurate on this smooth profile → abs 2e-3.
     cl, cd = pressure.integrate_cp(theta, cp)
     assert cl == pytest.approx(cl_p, abs=2e-3)
     assert cd == pytest.approx(cd_p, abs=2e-3)

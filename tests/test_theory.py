@@ -30,9 +30,9 @@ def _centres(bins):
 
 @pytest.mark.parametrize("alpha", ALPHAS)
 def test_cp_integrates_to_kutta_joukowski_lift_and_no_drag(alpha):
-    # Anderson §3.15-3.16: CL = -2 pi alpha (sign of docs/conventions.md), d'Alembert CD = 0. Cp sin θ is
-    # a trigonometric polynomial of degree 3, which the 36-point periodic trapezoid rule integrates
-    # exactly, so only rounding is left: 1e-12 absolute.
+    # Anderson §3.15-3.16: CL = -2 pi alpha (sign of docs/conventions.md), d'Alembert CD = 0. Cp sin
+    # θ is a trigonometric polynomial of degree 3, which the 36-point periodic trapezoid rule
+    # integrates exactly, so only rounding is left: 1e-12 absolute.
     theta = np.arange(36) * 10.0
     CL, CD = integrate_cp(theta, cp_surface(theta, alpha))
     assert CL == pytest.approx(-2 * np.pi * alpha, abs=1e-12)
@@ -60,9 +60,9 @@ def test_cp_non_spinning_cylinder():
 
 
 def test_cp_spin_speeds_the_positive_theta_side():
-    # Anderson §3.15 with docs/conventions.md: positive spin adds speed where θ > 0 (the surface moves
-    # with the flow there), hand-worked: alpha = 0.5, θ = 90° → 1 − 2.5² = −5.25; θ = −90° → 1 −
-    # 1.5² = −1.25. Exact arithmetic → 1e-14.
+    # Anderson §3.15 with docs/conventions.md: positive spin adds speed where θ > 0 (the surface
+    # moves with the flow there), hand-worked: alpha = 0.5, θ = 90° → 1 − 2.5² = −5.25; θ = −90° → 1
+    # − 1.5² = −1.25. Exact arithmetic → 1e-14.
     assert cp_surface(np.array([90.0, -90.0]), 0.5) == pytest.approx([-5.25, -1.25], abs=1e-14)
 
 
@@ -134,7 +134,8 @@ def test_broadcasting():
     ids=["list", "ndarray", "Series", "DataArray"],
 )
 def test_input_kinds(kind):
-    # The array adapter keeps the input's kind (tunnelred.common._arraylike); values as the α = 0 case.
+    # The array adapter keeps the input's kind (tunnelred.common._arraylike); values as the α = 0
+    # case.
     cp = cp_surface(kind([0.0, 90.0]), 0.0)
     assert np.asarray(cp) == pytest.approx([1.0, -3.0], abs=1e-14)
     if isinstance(kind([0.0]), pd.Series | xr.DataArray):

@@ -1,4 +1,5 @@
-"""Tests of tunnelred.physics.uncertainty against published examples and the `uncertainties` package."""
+"""Tests of tunnelred.physics.uncertainty against published examples and the `uncertainties`
+package."""
 
 from __future__ import annotations
 

@@ -358,8 +358,8 @@ def _run_compare(args) -> int:
 # watch
 
 
-# The defaults themselves live in tunnelred.live.watcher (a test keeps these texts in step); importing
-# it here would make every `tunnelred --help` load the whole pipeline.
+# The defaults themselves live in tunnelred.live.watcher (a test keeps these texts in step);
+# importing it here would make every `tunnelred --help` load the whole pipeline.
 _SETTLE_HELP = "2"
 _POLL_HELP = "0.5"
 

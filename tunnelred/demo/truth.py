@@ -7,9 +7,9 @@ at rest, falling to a minimum near ``alpha`` ≈ 1.5-2 and rising again; a torqu
 spin ratio; a weak Reynolds-number dependence throughout. :func:`true_surface_cp` gives the
 mid-span Cp(θ) whose integrals are exactly :func:`true_pressure_coefficients`.
 
-Conventions are those of docs/conventions.md. In particular ``Mz`` is the aerodynamic torque on the model
-about +z: it opposes the spin, so ``CM`` has the sign opposite to ``alpha`` and
-``C_power = CM alpha`` is negative (power taken from the drive).
+Conventions are those of docs/conventions.md. In particular ``Mz`` is the aerodynamic torque on the
+model about +z: it opposes the spin, so ``CM`` has the sign opposite to ``alpha`` and ``C_power = CM
+alpha`` is negative (power taken from the drive).
 """
 
 from __future__ import annotations

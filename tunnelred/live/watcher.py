@@ -1,15 +1,15 @@
 """Live mode: reduce and flag each run while the test is still running.
 
-:func:`watch` polls a campaign folder that the data acquisition is writing into. A run is
-*complete* when its row is in runs.csv (whole lines only), every log it names and every log of
-its zero and tare runs exists, ends with a line break, and none of them (nor campaign.toml and
-runs.csv) has changed size or modification time for ``settle`` seconds. Complete inputs are
-copied into a snapshot folder, ``OUT/.live/campaign``, which holds only complete runs; the
-snapshot is reduced by :func:`tunnelred.pipeline.campaign.reduce_campaign`, whose per-run cache (keyed on
-each run's inputs and those of its zero and tare runs) reduces only the runs that are new or
-whose inputs changed, and which writes OUT atomically. The engine never reads a file the
-acquisition is still writing: it reads the snapshot, and a file is copied into it only when it
-has settled and has not changed while it was copied.
+:func:`watch` polls a campaign folder that the data acquisition is writing into. A run is *complete*
+when its row is in runs.csv (whole lines only), every log it names and every log of its zero and
+tare runs exists, ends with a line break, and none of them (nor campaign.toml and runs.csv) has
+changed size or modification time for ``settle`` seconds. Complete inputs are copied into a snapshot
+folder, ``OUT/.live/campaign``, which holds only complete runs; the snapshot is reduced by
+:func:`tunnelred.pipeline.campaign.reduce_campaign`, whose per-run cache (keyed on each run's inputs
+and those of its zero and tare runs) reduces only the runs that are new or whose inputs changed, and
+which writes OUT atomically. The engine never reads a file the acquisition is still writing: it
+reads the snapshot, and a file is copied into it only when it has settled and has not changed while
+it was copied.
 
 The state of the watch (:class:`Status`) goes to a view after every change: :class:`TerminalView`
 (redrawn in place on a terminal, appended lines otherwise), :class:`LiveView` for a notebook, or
@@ -438,7 +438,8 @@ def live_figure(results):
     -------
     matplotlib.figure.Figure
         Two Axes: CL with the potential-flow line −2πα, and CD; wall-corrected values with
-        expanded-uncertainty bars (k = 2), drawn by :func:`tunnelred.products.plotting.plot_coefficient`.
+        expanded-uncertainty bars (k = 2), drawn by
+        :func:`tunnelred.products.plotting.plot_coefficient`.
 
     Notes
     -----
@@ -944,10 +945,10 @@ def watch(
       server's clock does not matter).
 
     A log that has settled without a line break at its end is *truncated* (the logger stopped
-    mid-line): it is shown as such and waited for, never read as data. Complete inputs are
-    copied into ``OUT/.live/campaign`` and that snapshot is reduced by
-    :func:`tunnelred.pipeline.campaign.reduce_campaign`: its cache re-reduces exactly the runs whose row,
-    logs or zero and tare runs changed (all of them when campaign.toml changes). Every output
+    mid-line): it is shown as such and waited for, never read as data. Complete inputs are copied
+    into ``OUT/.live/campaign`` and that snapshot is reduced by
+    :func:`tunnelred.pipeline.campaign.reduce_campaign`: its cache re-reduces exactly the runs whose
+    row, logs or zero and tare runs changed (all of them when campaign.toml changes). Every output
     is written atomically, so stopping at any moment leaves OUT whole.
 
     Examples

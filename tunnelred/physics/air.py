@@ -1,7 +1,7 @@
 """Properties of the test-section air: moist-air density, viscosity, speed of sound.
 
-Every function takes Python scalars, numpy arrays (broadcasting), pandas Series or xarray
-DataArrays and returns the same kind (see tunnelred.common._arraylike). Temperatures are absolute [K],
+Every function takes Python scalars, numpy arrays (broadcasting), pandas Series or xarray DataArrays
+and returns the same kind (see tunnelred.common._arraylike). Temperatures are absolute [K],
 pressures [Pa], relative humidity a fraction 0–1.
 """
 

@@ -1,8 +1,8 @@
 """Free stream and spin: q, U, Re, Mach; spin rate, spin ratio, circulation; time-series statistics.
 
-The formulas take scalars, ndarrays, Series or DataArrays (tunnelred.common._arraylike) and broadcast,
-so a run-level model can be evaluated over a batch of Monte Carlo draws in one call. The stream
-functions (:func:`free_stream`, :func:`spin_rate`) work on the per-stream xarray Datasets of
+The formulas take scalars, ndarrays, Series or DataArrays (tunnelred.common._arraylike) and
+broadcast, so a run-level model can be evaluated over a batch of Monte Carlo draws in one call. The
+stream functions (:func:`free_stream`, :func:`spin_rate`) work on the per-stream xarray Datasets of
 docs/input-format.md: dimension ``time`` in seconds from the run's start, variables in SI.
 """
 
@@ -237,10 +237,9 @@ def spin_ratio(omega, radius, velocity):
     float or array_like
         alpha, the surface speed over the free-stream speed. [-]
 
-    Notes
-    -----
-    With the axes of docs/conventions.md (x downstream, y the lift axis, z = x × y), a positive alpha
-    moves the surface at the top (+y) upstream, and potential flow gives CL = −2 pi alpha.
+    Notes ----- With the axes of docs/conventions.md (x downstream, y the lift axis, z = x × y), a
+    positive alpha moves the surface at the top (+y) upstream, and potential flow gives CL = −2 pi
+    alpha.
 
     References
     ----------
@@ -445,15 +444,14 @@ def free_stream(tunnel: xr.Dataset, config: CampaignConfig) -> xr.Dataset:
         When a column the configuration needs is missing (the run id and file are read from the
         Dataset's ``run`` and ``file`` attributes where present).
 
-    Notes
-    -----
-    qc = dp_pitot, or contraction_factor × dp_contraction (the contraction calibrated against a
-    pitot-static probe, so it stands for what that probe reads). The barometric pressure stands
-    for the static pressure in :func:`dynamic_pressure` and :func:`tunnelred.physics.air.density`; the
-    test-section static pressure sits below it by a fraction of q, which shifts rho by about
-    q/p (0.5 % at 30 m/s): a tunnel that measures the test-section static pressure can supply it
-    as ``p_baro``. T is taken as the static temperature (the recovery difference is U²/(2 cp),
-    0.4 K at 30 m/s, below a typical thermometer's uncertainty at low speed).
+    Notes ----- qc = dp_pitot, or contraction_factor × dp_contraction (the contraction calibrated
+    against a pitot-static probe, so it stands for what that probe reads). The barometric pressure
+    stands for the static pressure in :func:`dynamic_pressure` and
+    :func:`tunnelred.physics.air.density`; the test-section static pressure sits below it by a
+    fraction of q, which shifts rho by about q/p (0.5 % at 30 m/s): a tunnel that measures the
+    test-section static pressure can supply it as ``p_baro``. T is taken as the static temperature
+    (the recovery difference is U²/(2 cp), 0.4 K at 30 m/s, below a typical thermometer's
+    uncertainty at low speed).
 
     References
     ----------

@@ -1,8 +1,8 @@
 """Potential flow about a spinning circular cylinder, and the features of a measured Cp(θ).
 
-Conventions (docs/conventions.md): θ is measured from the windward point (θ = 0 faces the oncoming flow)
-and increases in the sense of positive spin (ω > 0 counter-clockwise seen from +z); the spin ratio
-α = ωR/U is signed. Angles are in degrees at every public surface.
+Conventions (docs/conventions.md): θ is measured from the windward point (θ = 0 faces the oncoming
+flow) and increases in the sense of positive spin (ω > 0 counter-clockwise seen from +z); the spin
+ratio α = ωR/U is signed. Angles are in degrees at every public surface.
 """
 
 from __future__ import annotations
