@@ -215,3 +215,107 @@ def test_maskell_factor_only_with_a_method_that_has_one(tmp_path):
     text = CAMPAIGN_TOML + '\n[reduction]\nblockage = "allen-vincenti"\nmaskell_factor = 1.0\n'
     config, problems = load(tmp_path, text)
     assert [p.column for p in problems] == ["reduction.maskell_factor"]
+
+
+# [report], calibration references and the model photograph (docs/input-format.md)
+REPORT_TABLE = """
+[report]
+number = "LAB-TR-1"
+revision = "B"
+client = "A client"
+prepared_by = "P. One"
+distribution = ["client", "file"]
+method = "procedure P-7"
+deviations = "none"
+
+[[report.revision_history]]
+revision = "A"
+date = "2026-01-02"
+change = "first issue"
+
+[[report.revision_history]]
+revision = "B"
+change = "second"
+"""
+
+
+def test_report_table_is_read_and_optional(tmp_path):
+    config, problems = load(tmp_path, CAMPAIGN_TOML)
+    assert problems == [] and config.report.number == "" and config.report.revision_history == ()
+    config, problems = load(tmp_path, CAMPAIGN_TOML + REPORT_TABLE)
+    assert problems == []
+    r = config.report
+    assert (r.number, r.revision, r.client, r.prepared_by) == (
+        "LAB-TR-1",
+        "B",
+        "A client",
+        "P. One",
+    )
+    assert r.distribution == ("client", "file")
+    assert (r.method, r.deviations, r.approved_by) == ("procedure P-7", "none", "")
+    assert [(h.revision, h.date, h.change) for h in r.revision_history] == [
+        ("A", "2026-01-02", "first issue"),
+        ("B", "", "second"),
+    ]
+
+
+def test_report_table_misspelt_key_is_reported(tmp_path):
+    text = CAMPAIGN_TOML + REPORT_TABLE.replace("client =", "cliant =")
+    config, problems = load(tmp_path, text)
+    assert config is not None  # an optional table: reported, the rest still usable
+    assert [p.column for p in problems] == ["report.cliant"]
+    assert problems[0].line == line_of(text, "cliant")
+
+
+def test_calibration_reference_and_date_per_instrument(tmp_path):
+    text = replaced(
+        'full_scale = [100.0, 100.0, "5 N*m"]',
+        'full_scale = [100.0, 100.0, "5 N*m"]\ncalibration_reference = "CAL-B-1"\n'
+        "calibration_date = 2026-02-20\n\n[instruments.pitot]\nu = 0.1\n"
+        'calibration_reference = "CAL-P-9"',
+    )
+    config, problems = load(tmp_path, text)
+    assert problems == []
+    cal = config.instruments.calibrations
+    # A bare TOML date (TOML 1.0 §Local Date) is kept as its ISO text.
+    assert (cal["balance"].reference, cal["balance"].date) == ("CAL-B-1", "2026-02-20")
+    assert (cal["pitot"].reference, cal["pitot"].date) == ("CAL-P-9", "")
+    assert "thermometer" not in cal
+
+
+PNG_HEAD = b"\x89PNG\r\n\x1a\n"  # the PNG signature (ISO/IEC 15948, §5.2)
+
+
+@pytest.mark.parametrize(
+    ("photo", "make", "ok"),
+    [
+        ("model.png", {"model.png": PNG_HEAD + b"rest"}, True),
+        ("pics/m.jpg", {"pics/m.jpg": b"\xff\xd8\xff\xe0rest"}, True),  # JPEG SOI + marker
+        ("model.png", {"model.png": b"not an image"}, False),
+        ("missing.png", {}, False),
+        ("pics", {"pics/m.png": PNG_HEAD}, False),  # a folder, not a regular file
+        ("../outside.png", {"../outside.png": PNG_HEAD}, False),
+    ],
+)
+def test_model_photo_must_be_an_image_inside_the_campaign(tmp_path, photo, make, ok):
+    root = tmp_path / "campaign"
+    root.mkdir()
+    for name, data in make.items():
+        (root / name).parent.mkdir(parents=True, exist_ok=True)
+        (root / name).write_bytes(data)
+    text = replaced("span = 0.8\n", f'span = 0.8\nsurface = "painted"\nphoto = "{photo}"\n')
+    config, problems = load(root, text)
+    assert config is not None and config.model.surface == "painted"
+    if ok:
+        assert problems == [] and config.model.photo == photo
+    else:
+        assert [p.column for p in problems] == ["model.photo"] and config.model.photo == ""
+
+
+def test_model_photo_link_out_of_the_campaign_is_refused(tmp_path):
+    root = tmp_path / "campaign"
+    root.mkdir()
+    (tmp_path / "elsewhere.png").write_bytes(PNG_HEAD)
+    (root / "model.png").symlink_to(tmp_path / "elsewhere.png")
+    config, problems = load(root, replaced("span = 0.8\n", 'span = 0.8\nphoto = "model.png"\n'))
+    assert [p.column for p in problems] == ["model.photo"] and config.model.photo == ""

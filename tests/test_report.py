@@ -207,3 +207,41 @@ def test_own_markup_refuses_foreign_tags():
     with pytest.raises(ValueError, match="img"):
         report._check_markup('<b>x</b><img src="a.png"/>')
     report._check_markup("<b>bold</b> and <i>italic</i>")
+
+
+def test_lift_efficiency_half_crossing_either_way():
+    import numpy as np
+
+    # Worked by hand: linear between (1.0, 0.4) and (1.5, 0.6) reaches 0.5 at α = 1.25; the
+    # efficiency rises through 50 % there (the old helper saw only a falling crossing).
+    alpha = np.array([0.5, 1.0, 1.5, 2.0])
+    assert report._efficiency_half(alpha, np.array([0.3, 0.4, 0.6, 0.7])) == pytest.approx(1.25)
+    # Falling through: (1.0, 0.6) to (2.0, 0.4) gives 1.5; the sign of α does not matter.
+    assert report._efficiency_half(np.array([-1.0, -2.0]), np.array([0.6, 0.4])) == pytest.approx(
+        1.5
+    )
+    below = np.array([0.2, 0.35, 0.46, 0.44])
+    assert np.isnan(report._efficiency_half(alpha, below))
+    assert report._efficiency_text(alpha, below) == "below 50 % throughout; peak 46 % at α 1.50"
+
+
+def test_report_control_and_method_from_campaign_toml(built, reduced):
+    from tunnelred.inputs.config import load_config
+
+    campaign_dir, _ = reduced
+    config, _ = load_config(campaign_dir / "campaign.toml")
+    control = config.report
+    assert control.number  # the demo scenario fills [report] (tunnelred.demo.spec)
+    _, text, pages, _ = built
+    flat = " ".join(text.split())
+    for value in (control.client, control.prepared_by, control.checked_by, control.approved_by,
+                  control.laboratory_address, control.date_of_issue, control.method):  # fmt: skip
+        assert " ".join(value.split()) in flat, value
+    assert f"Additions to or deviations from the method. {control.deviations}" in flat
+    for page in pages:  # the report's identification on every page (ISO/IEC 17025 §7.8.2.1 c)
+        assert f"Report number {control.number}, revision {control.revision}" in page
+    for entry in control.revision_history:
+        assert entry.change in flat
+    for name, calibration in config.instruments.calibrations.items():
+        assert calibration.reference in flat, name
+    assert config.model.surface in flat and config.model.photo in flat

@@ -273,6 +273,12 @@ class SynthSpec:
         [deg], tubing delay [s], calibration relative [-].
     faults : tuple of Fault
         Flaws to plant.
+    report, revision_history : tuple
+        The [report] table's keys and values, and its revision history (revision, date, change).
+    calibrations : tuple of (str, str, str)
+        (instrument, calibration reference, date) written into [instruments.NAME].
+    surface, photo : str
+        [model] surface finish and photograph path (a drawing written beside campaign.toml).
     """
 
     seed: int = 2026
@@ -367,6 +373,41 @@ class SynthSpec:
     u_tubing_delay: float = 5e-5
     u_matrix_relative: float = 0.001
     faults: tuple[Fault, ...] = ()
+    # The report's control block and the instruments' certificates (campaign.toml [report] and
+    # calibration_* keys): an invented laboratory, client and staff.
+    report: tuple[tuple[str, object], ...] = (
+        ("number", "SDT-TR-2026-014"),
+        ("revision", "B"),
+        ("client", "Example Sail Systems (an invented client)"),
+        ("client_address", "1 Harbour Row, Exampleport (invented)"),
+        ("prepared_by", "A. Tester (invented)"),
+        ("checked_by", "B. Reviewer (invented)"),
+        ("approved_by", "C. Manager (invented)"),
+        ("date_of_issue", "2026-03-24"),
+        ("distribution", ["client (1 copy)", "laboratory file"]),
+        ("laboratory", "Synthetic Demonstration Tunnel Laboratory (invented)"),
+        ("laboratory_address", "Building 3, 10 Example Road, Sampletown (invented)"),
+        ("location", "SDT-1 test section, Building 3 (invented)"),
+        (
+            "method",
+            "Laboratory procedure SDT-P-07 rev. 3, spin-ratio sweeps of a rotating "
+            "cylinder on the strain-gauge balance (invented)",
+        ),  # fmt: skip
+        ("deviations", "None."),
+    )
+    revision_history: tuple[tuple[str, str, str], ...] = (
+        ("A", "2026-03-17", "first issue"),
+        ("B", "2026-03-24", "calibration references added to the instrument list"),
+    )
+    calibrations: tuple[tuple[str, str, str], ...] = (
+        ("balance", "SDT-CAL-B-2026-02 (invented)", "2026-02-20"),
+        ("scanner", "SDT-CAL-S-2026-01 (invented)", "2026-01-12"),
+        ("pitot", "SDT-CAL-P-2025-11 (invented)", "2025-11-05"),
+        ("thermometer", "SDT-CAL-T-2025-09 (invented)", "2025-09-30"),
+        ("barometer", "SDT-CAL-A-2025-09 (invented)", "2025-09-30"),
+    )
+    surface: str = "anodised aluminium, polished, Ra about 0.4 µm (invented)"
+    photo: str = "model.png"  # a drawing of the model written beside campaign.toml
 
 
 # ---------------------------------------------------------------------------------------------

@@ -273,6 +273,8 @@ class _Writer:
                 self.data(r)
             else:
                 self.wind_off(r)
+        if self.spec.photo:
+            (self.dest / self.spec.photo).write_bytes(model_drawing())
         (self.dest / "campaign.toml").write_text(_campaign_toml(self), encoding="utf-8")
         pd.DataFrame(self.rows).to_csv(self.dest / "runs.csv", index=False, lineterminator="\n")
         truth = pd.DataFrame(self.truth)
@@ -292,6 +294,35 @@ def _toml_value(v) -> str:
     return "[" + ", ".join(_toml_value(x) for x in v) + "]"
 
 
+def model_drawing(width: int = 240, height: int = 120) -> bytes:
+    """A PNG drawing of the demo model (a cylinder between two end plates), standing in for the
+    photograph a facility would file; written with zlib so that it is byte-identical each time."""
+    import struct
+    import zlib
+
+    image = np.full((height, width), 255, dtype=np.uint8)
+    image[height // 2 - 14 : height // 2 + 14, 30 : width - 30] = 150  # the cylinder, side on
+    image[height // 2 - 28 : height // 2 + 28, 24:30] = 40  # end plates (2 d)
+    image[height // 2 - 28 : height // 2 + 28, width - 30 : width - 24] = 40
+    raw = b"".join(b"\x00" + row.tobytes() for row in image)
+
+    def chunk(kind: bytes, body: bytes) -> bytes:
+        return (
+            struct.pack(">I", len(body))
+            + kind
+            + body
+            + struct.pack(">I", zlib.crc32(kind + body) & 0xFFFFFFFF)
+        )
+
+    header = struct.pack(">IIBBBBB", width, height, 8, 0, 0, 0, 0)  # 8-bit greyscale
+    return (
+        b"\x89PNG\r\n\x1a\n"
+        + chunk(b"IHDR", header)
+        + chunk(b"IDAT", zlib.compress(raw, 9))
+        + chunk(b"IEND", b"")
+    )
+
+
 def _campaign_toml(w: _Writer) -> str:
     s = w.spec
     lines = [
@@ -299,8 +330,14 @@ def _campaign_toml(w: _Writer) -> str:
         "",
     ]
 
-    def table(name, items):
-        lines.append(f"[{name}]")
+    calibrated = {name: (ref, date) for name, ref, date in s.calibrations}
+
+    def table(name, items, *, array=False):
+        lines.append(f"[[{name}]]" if array else f"[{name}]")
+        instrument = name.removeprefix("instruments.")
+        if name.startswith("instruments.") and instrument in calibrated:
+            reference, date = calibrated[instrument]
+            items = [*items, ("calibration_reference", reference), ("calibration_date", date)]
         lines.extend(f"{k} = {_toml_value(v)}" for k, v in items)
         lines.append("")
 
@@ -308,6 +345,10 @@ def _campaign_toml(w: _Writer) -> str:
         "campaign",
         [("title", s.title), ("facility", s.facility), ("date", s.date), ("notes", s.notes)],
     )
+    table("report", list(s.report))
+    for revision, date, change in s.revision_history:
+        items = [("revision", revision), ("date", date), ("change", change)]
+        table("report.revision_history", items, array=True)
     table(
         "tunnel",
         [
@@ -332,6 +373,8 @@ def _campaign_toml(w: _Writer) -> str:
             ("u_span", s.u_span),
             ("spans_section", True),
             ("transducer_radius", f"{s.transducer_radius * 1000:g} mm"),
+            ("surface", s.surface),
+            *([("photo", s.photo)] if s.photo else []),
         ],
     )
     for c in s.configurations:

@@ -12,7 +12,7 @@ import math
 import re
 import tomllib
 from dataclasses import dataclass, field, replace
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 
 from tunnelred.common.errors import InputError, Problem
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
@@ -20,6 +20,9 @@ from tunnelred.inputs.units import parse_quantity
 
 __all__ = [
     "CampaignInfo",
+    "ReportInfo",
+    "RevisionEntry",
+    "Calibration",
     "TunnelConfig",
     "ModelConfig",
     "Configuration",
@@ -59,6 +62,45 @@ class CampaignInfo:
 
 
 @dataclass(frozen=True)
+class RevisionEntry:
+    """One line of the report's revision history."""
+
+    revision: str
+    date: str = ""
+    change: str = ""
+
+
+@dataclass(frozen=True)
+class ReportInfo:
+    """The [report] table: report control and what ISO/IEC 17025:2017 §7.8.2.1 asks a report to
+    state. Every field is optional free text; the report prints a blank line where one is empty."""
+
+    number: str = ""  # the report's unique identification
+    revision: str = ""
+    revision_history: tuple[RevisionEntry, ...] = ()
+    client: str = ""
+    client_address: str = ""
+    prepared_by: str = ""
+    checked_by: str = ""
+    approved_by: str = ""  # who authorises the report for issue
+    date_of_issue: str = ""
+    distribution: tuple[str, ...] = ()
+    laboratory: str = ""  # the laboratory's name; [campaign] facility when empty
+    laboratory_address: str = ""
+    location: str = ""  # where the work was done, when not at the laboratory's address
+    method: str = ""  # the test method (procedure reference), printed under Procedures
+    deviations: str = ""  # additions to, deviations from or exclusions of the method
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """An instrument's calibration certificate: its reference and date (free text)."""
+
+    reference: str = ""
+    date: str = ""
+
+
+@dataclass(frozen=True)
 class TunnelConfig:
     """The test section. Lengths [m], angles [deg], gradient [Pa/m]."""
 
@@ -88,6 +130,8 @@ class ModelConfig:
     transducer_radius: float = 0.0  # radius of the pressure transducer on the spinning model
     # the highest spin rate the model and its drive are rated for [rad/s]; None: not stated
     max_spin_rate: float | None = None
+    surface: str = ""  # finish of the model's surface, free text
+    photo: str = ""  # a photograph of the model: an image file, relative to the campaign folder
 
     @property
     def radius(self) -> float:
@@ -140,6 +184,8 @@ class InstrumentsConfig:
     u_hygrometer: float = 0.0  # [-]
     u_tachometer_relative: float = 0.0  # [-]
     u_encoder: float = 0.0  # [deg]
+    # calibration reference and date of each instrument that states one, by its table's name
+    calibrations: dict[str, Calibration] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -200,6 +246,7 @@ class CampaignConfig:
     instruments: InstrumentsConfig
     taps: tuple[TapConfig, ...]
     reduction: ReductionConfig
+    report: ReportInfo = field(default_factory=ReportInfo)
     sha256: str = ""  # of campaign.toml's bytes
     # Things worth saying that do not stop a run (a substituted correction method, say).
     notices: tuple[Problem, ...] = ()
@@ -235,8 +282,31 @@ _FRACTION = (lambda v: 0 <= v <= 1, "a fraction from 0 to 1")
 # kind → how to say it; kinds other than these are units.DIMENSIONS keys.
 _PLAIN_KINDS = {"str": "a string", "bool": "true or false", "int": "an integer"}
 
+#: Keys every [instruments.NAME] table may carry besides its uncertainties.
+_CALIBRATION_KEYS = ("calibration_reference", "calibration_date")
+#: Image files a model photograph may be (by their first bytes, not their name).
+_IMAGE_SIGNATURES = {b"\x89PNG\r\n\x1a\n": "PNG", b"\xff\xd8\xff": "JPEG"}
+
 _KEYS = {
     "campaign": ("title", "facility", "date", "notes"),
+    "report": (
+        "number",
+        "revision",
+        "revision_history",
+        "client",
+        "client_address",
+        "prepared_by",
+        "checked_by",
+        "approved_by",
+        "date_of_issue",
+        "distribution",
+        "laboratory",
+        "laboratory_address",
+        "location",
+        "method",
+        "deviations",
+    ),
+    "revision": ("revision", "date", "change"),
     "tunnel": (
         "section",
         "height",
@@ -259,6 +329,8 @@ _KEYS = {
         "spans_section",
         "transducer_radius",
         "max_spin_rate",
+        "surface",
+        "photo",
     ),
     "configuration": ("description", "end_plates", "end_plate_diameter", "tolerances"),
     "balance": (
@@ -270,14 +342,15 @@ _KEYS = {
         "u_matrix_relative",
         "alignment_angle",
         "u_alignment_angle",
+        *_CALIBRATION_KEYS,
     ),
-    "scanner": ("full_scale", "u"),
-    "pitot": ("u", "u_relative"),
-    "thermometer": ("u",),
-    "barometer": ("u",),
-    "hygrometer": ("u",),
-    "tachometer": ("u_relative",),
-    "encoder": ("u",),
+    "scanner": ("full_scale", "u", *_CALIBRATION_KEYS),
+    "pitot": ("u", "u_relative", *_CALIBRATION_KEYS),
+    "thermometer": ("u", *_CALIBRATION_KEYS),
+    "barometer": ("u", *_CALIBRATION_KEYS),
+    "hygrometer": ("u", *_CALIBRATION_KEYS),
+    "tachometer": ("u_relative", *_CALIBRATION_KEYS),
+    "encoder": ("u", *_CALIBRATION_KEYS),
     "tap": ("name", "azimuth", "u_azimuth", "tubing_delay", "u_tubing_delay"),
     "reduction": (
         "blockage",
@@ -291,7 +364,16 @@ _KEYS = {
         "tolerances",
     ),
 }
-_TOP = ("campaign", "tunnel", "model", "configurations", "instruments", "taps", "reduction")
+_TOP = (
+    "campaign",
+    "report",
+    "tunnel",
+    "model",
+    "configurations",
+    "instruments",
+    "taps",
+    "reduction",
+)
 
 _TOLERANCE_KINDS = {"temperature_drift": "temperature_difference"}
 
@@ -563,7 +645,7 @@ def load_config(path) -> tuple[CampaignConfig | None, list[Problem]]:
     for key in data:
         if key not in _TOP:
             r.problem(key, f"a table of {', '.join(_TOP)}", repr(key), "Check the spelling.")
-    config = _build(r, data)
+    config = _build(r, data, path.parent)
     if r.fatal or config is None:
         return None, r.problems
     return _replace_sha(config, hashlib.sha256(raw_bytes).hexdigest()), r.problems
@@ -575,7 +657,7 @@ def _replace_sha(config: CampaignConfig, sha: str) -> CampaignConfig:
     return replace(config, sha256=sha)
 
 
-def _build(r: _Reader, data: dict) -> CampaignConfig | None:
+def _build(r: _Reader, data: dict, root: Path) -> CampaignConfig | None:
     t = r.table(data, "campaign", "campaign", _KEYS["campaign"], required=True)
     nonempty = (lambda v: bool(v.strip()), "a non-empty string")
     info = CampaignInfo(
@@ -585,11 +667,12 @@ def _build(r: _Reader, data: dict) -> CampaignConfig | None:
         notes=r.get(t, "campaign", "notes", "str", ""),
     )
     tunnel = _tunnel(r, data)
-    model = _model(r, data, tunnel)
+    model = _model(r, data, tunnel, root)
     configurations = _configurations(r, data, model)
     instruments = _instruments(r, data)
     taps = _taps(r, data)
     reduction = _reduction(r, data, model)
+    report = _report(r, data)
     if r.fatal:
         return None
     return CampaignConfig(
@@ -600,8 +683,76 @@ def _build(r: _Reader, data: dict) -> CampaignConfig | None:
         instruments,
         taps,
         reduction,
+        report=report,
         notices=tuple(r.notices),
     )
+
+
+def _report(r: _Reader, data: dict) -> ReportInfo:
+    """[report]: report control, every key optional free text (a list for distribution)."""
+    p = "report"
+    t = r.table(data, p, p, _KEYS[p])
+    texts = {
+        key: r.get(t, p, key, "str", "")
+        for key in _KEYS[p]
+        if key not in ("revision_history", "distribution")
+    }
+    distribution = t.get("distribution", [])
+    if isinstance(distribution, str):
+        distribution = [distribution]
+    if not isinstance(distribution, list) or not all(isinstance(d, str) for d in distribution):
+        r.problem(f"{p}.distribution", "a list of strings", repr(distribution))
+        distribution = []
+    history = []
+    raw = t.get("revision_history", [])
+    if not isinstance(raw, list) or not all(isinstance(h, dict) for h in raw):
+        r.problem(f"{p}.revision_history", "[[report.revision_history]] tables", repr(raw)[:60])
+        raw = []
+    for i, h in enumerate(raw):
+        path = f"{p}.revision_history[{i}]"
+        r.check_keys(h, path, _KEYS["revision"])
+        revision = r.get(h, path, "revision", "str", "")
+        if not revision:
+            r.problem(f"{path}.revision", "revision (a string)", "nothing", "Add revision = ….")
+            continue
+        history.append(
+            RevisionEntry(
+                revision, r.get(h, path, "date", "str", ""), r.get(h, path, "change", "str", "")
+            )
+        )
+    return ReportInfo(**texts, revision_history=tuple(history), distribution=tuple(distribution))
+
+
+def _photo(r: _Reader, t: dict, path: str, root: Path) -> str:
+    """The model photograph's path when it names an image file inside the campaign folder."""
+    text = r.get(t, path, "photo", "str", "")
+    if not text:
+        return ""
+    pure = PurePosixPath(text.replace("\\", "/"))
+    full = root / pure
+    try:
+        inside = not pure.is_absolute() and full.resolve().is_relative_to(root.resolve())
+    except (OSError, RuntimeError):
+        inside = False
+    if not inside:
+        r.problem(f"{path}.photo", "a path inside the campaign folder", repr(text),
+                  "Copy it into the campaign folder and name it relative to it.")  # fmt: skip
+        return ""
+    if not full.is_file():
+        r.problem(f"{path}.photo", "an existing image file", f"no regular file {text!r}",
+                  "Check the path and its spelling (paths are case-sensitive).")  # fmt: skip
+        return ""
+    try:
+        with open(full, "rb") as stream:
+            head = stream.read(8)
+    except OSError as exc:
+        r.problem(f"{path}.photo", "a readable image file", exc.strerror or str(exc))
+        return ""
+    if not any(head.startswith(sig) for sig in _IMAGE_SIGNATURES):
+        r.problem(f"{path}.photo", f"an image file ({', '.join(_IMAGE_SIGNATURES.values())})",
+                  f"{text!r}, which is not one", "Save the photograph as PNG or JPEG.")  # fmt: skip
+        return ""
+    return pure.as_posix()
 
 
 def _tunnel(r: _Reader, data: dict) -> TunnelConfig | None:
@@ -632,7 +783,7 @@ def _tunnel(r: _Reader, data: dict) -> TunnelConfig | None:
     )
 
 
-def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None) -> ModelConfig | None:
+def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None, root: Path) -> ModelConfig | None:
     p = "model"
     t = r.table(data, p, p, _KEYS[p], required=True)
     diameter = r.get(t, p, "diameter", "length", check=_POSITIVE)
@@ -664,6 +815,8 @@ def _model(r: _Reader, data: dict, tunnel: TunnelConfig | None) -> ModelConfig |
         spans_section=r.get(t, p, "spans_section", "bool", True),
         transducer_radius=r.get(t, p, "transducer_radius", "length", 0.0, within),
         max_spin_rate=r.get(t, p, "max_spin_rate", "rotation_rate", None, _POSITIVE),
+        surface=r.get(t, p, "surface", "str", ""),
+        photo=_photo(r, t, p, root),
     )
 
 
@@ -746,7 +899,22 @@ def _instruments(r: _Reader, data: dict) -> InstrumentsConfig:
         u_hygrometer=u("hygrometer", "u", "fraction", _FRACTION),
         u_tachometer_relative=u("tachometer", "u_relative", "fraction"),
         u_encoder=u("encoder", "u", "angle"),
+        calibrations=_calibrations(r, sub),
     )
+
+
+def _calibrations(r: _Reader, tables: dict[str, dict]) -> dict[str, Calibration]:
+    """Calibration reference and date of each [instruments.NAME] table that gives one."""
+    out = {}
+    for name, t in tables.items():
+        path = f"instruments.{name}"
+        reference = r.get(t, path, "calibration_reference", "str", "")
+        when = t.get("calibration_date", "")
+        if not isinstance(when, str):  # a bare TOML date (2026-01-15) reads as a date object
+            when = str(when)
+        if reference or when:
+            out[name] = Calibration(reference, when)
+    return out
 
 
 def _balance(r: _Reader, instruments: dict) -> BalanceConfig | None:

@@ -92,6 +92,7 @@ _FIGURE_DPI = 200
 _BUDGET_ROWS = 6  # contributors listed per output
 _SECTION_ROOM = 70 * mm  # least room below a section heading for it to start on this page
 _TABLE_ROOM = 35 * mm  # least room for a table's caption and first rows
+_FIGURE_ROOM = 95 * mm  # least room below a heading for the figure that follows it
 _PLOT_SIZE = (7.4, 3.5)  # inches, for figures drawn for the report
 _GRID = colors.HexColor("#b0b0b0")
 _HEAD_FILL = colors.HexColor("#e4ecf4")
@@ -383,6 +384,14 @@ class _Builder:
         heading._toc_entry = (text, f"section{self._sections}")
         self.add(heading)
 
+    def subsection(self, title: str, room: float = _TABLE_ROOM) -> None:
+        """A second-level heading with room below it for what follows, or a new page.
+
+        keepWithNext cannot reach past the CondPageBreak a captioned table or a figure starts
+        with, so the room is asked for here.
+        """
+        self.add(CondPageBreak(room), self.p(title, "h2"))
+
     def table(
         self,
         header: list[str],
@@ -502,6 +511,7 @@ class _Control:
     FIELDS = (
         "number",
         "revision",
+        "laboratory",
         "client",
         "client_address",
         "laboratory_address",
@@ -556,7 +566,7 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
     b.add(b.p("Wind-tunnel test report", "subtitle"))
     b.add(b.p(data.title, "title"))
     facility = str(ds.attrs.get("facility", ""))
-    b.add(b.p(facility or "(laboratory not stated)", "subtitle"))
+    b.add(b.p(control.laboratory or facility or "(laboratory not stated)", "subtitle"))
     if control.laboratory_address:
         b.add(b.p(control.laboratory_address, "subtitle"))
     b.add(Spacer(1, 4 * mm))
@@ -568,6 +578,8 @@ def _title_page(b: _Builder, data: _Inputs, date: str) -> None:
         ["Revision", _or_blank(control.revision)],
         ["Client", _or_blank(control.client)],
         ["Client address", _or_blank(control.client_address)],
+        ["Laboratory", _or_blank(control.laboratory or facility)],
+        ["Laboratory address", _or_blank(control.laboratory_address)],
         ["Place of test", _or_blank(control.location or facility)],
         ["Dates of test", _or_blank(info.date if info is not None else "")],
         ["Date of issue", _or_blank(control.date_of_issue)],
@@ -643,19 +655,37 @@ def _on_off(value) -> str:
 
 
 def _efficiency_half(alpha: np.ndarray, efficiency: np.ndarray) -> float:
-    """The first α, going up in |α| from 0, where the lift efficiency falls through 50 %.
+    """The first |α|, going up from 0, where the lift efficiency passes through 50 %.
 
-    Linear between neighbouring runs; NaN when it never reaches 50 % within the sweep.
+    Lift efficiency is CL / (−2πα), the lift as a fraction of potential flow's. The crossing is
+    taken either way (rising or falling), linear between neighbouring runs, and NaN when the
+    efficiency stays on one side of 50 % over the whole sweep.
     """
     usable = np.isfinite(alpha) & np.isfinite(efficiency) & (np.abs(alpha) > 0)
     a, e = np.abs(alpha[usable]), efficiency[usable]
-    order = np.argsort(a)
+    order = np.argsort(a, kind="stable")
     a, e = a[order], e[order] - 0.5
-    cross = np.flatnonzero((e[:-1] > 0) & (e[1:] <= 0))
+    cross = np.flatnonzero(np.sign(e[:-1]) * np.sign(e[1:]) <= 0)
     if cross.size == 0:
         return np.nan
     i = cross[0]
+    if e[i] == e[i + 1]:
+        return float(a[i])
     return float(a[i] + (a[i + 1] - a[i]) * e[i] / (e[i] - e[i + 1]))
+
+
+def _efficiency_text(alpha: np.ndarray, efficiency: np.ndarray) -> str:
+    """The summary's lift-efficiency cell: the |α| of 50 %, or why there is none, and the peak."""
+    usable = np.isfinite(alpha) & np.isfinite(efficiency) & (np.abs(alpha) > 0)
+    if not usable.any():
+        return "–"
+    peak = int(np.argmax(np.where(usable, efficiency, -np.inf)))
+    peak_text = f"peak {100 * efficiency[peak]:.0f} % at α {_fixed(abs(alpha[peak]), 2)}"
+    half = _efficiency_half(alpha, efficiency)
+    if np.isfinite(half):
+        return f"50 % at |α| {_fixed(half, 2)}; {peak_text}"
+    side = "below" if efficiency[peak] < 0.5 else "above"
+    return f"{side} 50 % throughout; {peak_text}"
 
 
 def _findings(data: _Inputs) -> list[list[str]]:
@@ -669,7 +699,7 @@ def _findings(data: _Inputs) -> list[list[str]]:
             continue  # a retake of one or two points is no sweep to characterise
         c = compare.characteristics(sweep)
         arrays = sweep.arrays
-        half = _efficiency_half(
+        efficiency = _efficiency_text(
             np.asarray(arrays.get("alpha", []), dtype=float),
             np.asarray(arrays.get("lift_efficiency", np.full(len(sweep.runs), np.nan)), float),
         )
@@ -683,7 +713,7 @@ def _findings(data: _Inputs) -> list[list[str]]:
                 + f" at α {_fixed(c['alpha_CD_min'], 2)}",
                 format_uncertain(c["L_D_peak"], _K * c["u_L_D_peak"])
                 + f" at α {_fixed(c['alpha_L_D_peak'], 2)}",
-                _fixed(half, 2),
+                efficiency,
             ]
         )
     return rows
@@ -707,13 +737,14 @@ def _summary(b: _Builder, data: _Inputs) -> None:
     rows = _findings(data)
     if rows:
         b.table(
-            ["sweep", "dCL/dα", "max |CL|", "min CD", "max |L/D|", "α at 50 % lift efficiency"],
+            ["sweep", "dCL/dα", "max |CL|", "min CD", "max |L/D|", "lift efficiency"],
             rows,
-            [1.7, 1.2, 1.7, 1.7, 1.7, 0.9],
+            [1.5, 1.1, 1.6, 1.6, 1.6, 1.5],
             caption=f"{b.next_table()} Findings of each sweep (configuration | speed | "
             "direction of the spin steps); values ± expanded uncertainty (k = 2). dCL/dα: "
             "weighted straight line through |α| ≤ 0.5 (potential flow: −2π = −6.283). Lift "
-            "efficiency: CL / (−2πα), the lift as a fraction of potential flow's.",
+            "efficiency: CL / (−2πα), the lift as a fraction of potential flow's; the |α| where it "
+            "passes 50 %, or the side of 50 % it stays on, and its peak.",
         )
     flagged = [(r, f) for r, f in zip(data.runs, _flags(ds), strict=True) if f]
     if flagged:
@@ -808,7 +839,7 @@ def _run_log(b: _Builder, data: _Inputs) -> None:
         caption=f"{b.next_table()} Test matrix: runs by configuration and tunnel speed, with "
         "their spin-ratio range.",
     )
-    b.add(b.p("Run log", "h2"))
+    b.subsection("Run log")
     start = data.table["start"].astype(str) if "start" in data.table else [""] * len(data.runs)
     omega = data.column("omega")
     rows = []
@@ -849,7 +880,7 @@ def _config(data: _Inputs, i: int) -> str:
 
 
 def _conditions(b: _Builder, data: _Inputs) -> None:
-    b.add(b.p("Test conditions", "h2"))
+    b.subsection("Test conditions")
     cols = {n: data.column(n) for n in ("U", "q", "Re", "Mach", "T", "p_baro", "RH", "rho")}
     rows = []
     for i, run in enumerate(data.runs):
@@ -959,6 +990,20 @@ def _instrumentation(b: _Builder, data: _Inputs) -> None:
 
 def _procedures(b: _Builder, data: _Inputs) -> None:
     b.section("Procedures")
+    control = data.control
+    version = str(data.ds.attrs.get("tunnelred_version", ""))
+    method = control.method or (
+        "the zero, tare and data-run procedure described in this section, reduced as Data "
+        f"reduction states (tunnelred {version})"
+    )
+    b.add(b.p(f"<b>Method.</b> {escape(method)}", markup=True))
+    b.add(
+        b.p(
+            "<b>Additions to or deviations from the method.</b> "
+            + escape(control.deviations or _BLANK),
+            markup=True,
+        )
+    )
     b.add(
         b.p(
             "<b>Zeros.</b> Wind-off, not-spinning balance readings (zero runs) are taken before "
@@ -1004,7 +1049,7 @@ def _reduction(b: _Builder, data: _Inputs) -> None:
         "from the surface pressure at mid-span: CL_p = ½∮Cp sin θ dθ,   CD_p = ½∮Cp cos θ dθ",
     ):
         b.add(b.p(formula, "formula"))
-    b.add(b.p("Wall corrections", "h2"))
+    b.subsection("Wall corrections")
     methods = data.methods
     method = methods.get("blockage")
     if method in corrections.METHODS:
@@ -1230,7 +1275,7 @@ def _results(b: _Builder, data: _Inputs, runs: list[str]) -> None:
             f"{b.next_table()} Coefficients from the mid-span surface pressure (∮Cp); "
             "value ± expanded uncertainty (k = 2).",
         )
-    b.add(b.p("Figures", "h2"))
+    b.subsection("Figures", _FIGURE_ROOM)
     for name, what in (
         ("CL", "Lift coefficient against spin ratio; the line is potential flow, CL = −2πα."),
         ("CD", "Drag coefficient against spin ratio."),
@@ -1299,7 +1344,7 @@ def _comparison(b: _Builder, data: _Inputs) -> None:
 
 
 def _surface_pressure(b: _Builder, data: _Inputs, runs: list[str]) -> None:
-    b.add(b.p("Surface pressure", "h2"))
+    b.subsection("Surface pressure", _FIGURE_ROOM)
     if "Cp" not in data.ds or not runs:
         b.add(b.p("No run had a pressure log."))
         return
@@ -1359,7 +1404,7 @@ def _quality(b: _Builder, data: _Inputs) -> None:
         b.figure(ax.figure, f"{b.next_figure()} Spin-ratio scatter of every run against its "
                  "tolerance; flagged runs labelled.")  # fmt: skip
     failures = data.failures
-    b.add(b.p("Runs that could not be reduced", "h2"))
+    b.subsection("Runs that could not be reduced")
     if failures.empty:
         b.add(b.p("Every data run was reduced."))
         return
@@ -1387,9 +1432,19 @@ def _appendix(b: _Builder, data: _Inputs, full_config: bool) -> None:
             "intro",
         )
     )
-    rows = [[path, b.p(str(sha), "mono")] for path, sha in sorted(data.hashes.items())]
+    # Two files a row, each digest on two lines of 32 hex digits: the whole list in half the
+    # pages of one file a row, every digest still printed in full.
+    cells = [
+        [path, b.p(f"{sha[:32]}<br/>{sha[32:]}", "mono", markup=True)]
+        for path, sha in sorted((str(k), escape(str(v))) for k, v in data.hashes.items())
+    ]
+    rows = [
+        cells[i] + (cells[i + 1] if i + 1 < len(cells) else ["", ""])
+        for i in range(0, len(cells), 2)
+    ]
     if rows:
-        b.table(["file", "SHA-256"], rows, [1.5, 2.6], compact=True)
+        b.table(["file", "SHA-256", "file", "SHA-256"], rows, [1.25, 1.45, 1.25, 1.45],
+                compact=True)  # fmt: skip
     else:
         b.add(b.p("The results record no input hashes."))
     if not full_config:
