@@ -49,6 +49,8 @@ FAULTS = {
     "speed_drift": F("speed_drift", CONFIG, 12.0, 1.0, 0.05),  # 5 × the 1 %
     "spin_scatter": F("spin_scatter", CONFIG, 12.0, 2.0, 0.05),  # 2.5 × the 2 %
     "tare_extrapolated": F("tare_extrapolated", CONFIG, 12.0, 3.0, 0.9),  # 5500 rpm, tares ≤ 4950
+    "speed_setpoint": F("speed_setpoint", CONFIG, 12.0, 0.0, 0.25),  # listed 15 m/s, 2.5 × 10 %
+    "spin_setpoint": F("spin_setpoint", CONFIG, 12.0, 4.0, 0.25),  # listed 1.25 × its rpm
 }
 
 #: Flags a fault cannot help raising besides its own, and why.
@@ -286,7 +288,29 @@ def _stagnation_cp(c, run, reason):
     assert cp_max == pytest.approx(expected, abs=0.01)
 
 
+def _setpoint(measured, listed, truth_name, rounding):
+    def check(c, run, reason):
+        _, table, truth, runs = c
+        value, set_point = _numbers(reason)[0], _numbers(reason)[2]
+        # The measured value quoted is the run's own result (rounded as the reason prints it).
+        assert value == pytest.approx(measured(table.loc[run]), abs=rounding)
+        # The set point quoted is the one runs.csv lists: the planted 1.25 × the true set point
+        # (synth's truth.csv keeps the set point the tunnel ran at).
+        assert set_point == pytest.approx(float(runs.loc[run, listed]))
+        fault = FAULTS[reason_kind[listed]]
+        assert set_point == pytest.approx(truth.loc[run, truth_name] * (1 + fault.size), rel=1e-3)
+        # The miss: the measurement holds the true set point within synth's 0.3 % set-point
+        # error (the rpm within its 0.2 % jitter), so |x - 1.25 x0| / (1.25 x0) = 20 % ± 1 %.
+        assert _numbers(reason)[1] == pytest.approx(100 * fault.size / (1 + fault.size), abs=1.0)
+
+    reason_kind = {"speed_set [m/s]": "speed_setpoint", "spin_set [rpm]": "spin_setpoint"}
+    return check
+
+
 QUOTED = {
+    # rounding of the quoted value: U to 0.01 m/s, rpm to 1 rpm
+    "speed_setpoint": _setpoint(lambda r: r["U_uncorrected"], "speed_set [m/s]", "speed_set", 6e-3),
+    "spin_setpoint": _setpoint(lambda r: abs(r["omega"]) * RPM, "spin_set [rpm]", "spin_set", 0.6),
     "spin_scatter": _spin_scatter,
     "spin_drift": _drift("spin_drift", "spin ratio drift"),
     "speed_drift": _drift("speed_drift", "tunnel speed drift"),

@@ -124,6 +124,25 @@ def test_stagnation_cp_only_on_non_spinning_runs():
     assert _judge("stagnation_cp", alpha=1.2, Cp_max=0.5) is None
 
 
+def test_set_point_agreement():
+    # The case: dp_pitot logged in Pa under an [mbar] header reads 100 times high, so
+    # U = sqrt(2 q / rho) comes out 10 times the set 6 m/s (Bernoulli, U ~ sqrt(q)).
+    flag = _judge("speed_setpoint", speed_set=6.0, U_measured=60.0)
+    assert flag.value == pytest.approx(9.0) and "60.00 m/s" in flag.reason
+    assert "900.0 %" in flag.reason and "10 %" in flag.reason
+    assert _judge("speed_setpoint", speed_set=6.0, U_measured=6.5) is None  # 8 %
+    assert _judge("speed_setpoint", speed_set=math.nan, U_measured=60.0) is None
+    assert _judge("speed_setpoint", speed_set=0.0, U_measured=6.0) is None  # no fraction
+    # |rpm| against |spin_set|: the sign of the spin is the run's business, not the set point's.
+    assert _judge("spin_setpoint", spin_set=1000.0, spin_rpm=1120.0).value == pytest.approx(0.12)
+    assert _judge("spin_setpoint", spin_set=-1000.0, spin_rpm=1050.0) is None
+    # A run set to rest: it misses when it spins (|alpha| >= SPINNING_ALPHA), not otherwise.
+    assert _judge("spin_setpoint", spin_set=0.0, spin_rpm=300.0, alpha=0.5) is not None
+    assert _judge("spin_setpoint", spin_set=0.0, spin_rpm=0.3, alpha=0.001) is None
+    tight = replace(T, spin_setpoint=0.01)
+    assert q.judge("spin_setpoint", M(spin_set=1000.0, spin_rpm=1020.0), tight) is not None
+
+
 def test_one_definition_of_spinning():
     # The front stagnation point of potential flow sits at theta = asin(alpha/2) (Anderson,
     # Fundamentals of Aerodynamics, §3.15): at the threshold it has moved less than a 5° bin.
@@ -173,6 +192,10 @@ CLEAN = {
     "corr_CL_CL_p": 0.2,
     "alpha": 0.0,
     "Cp_max": 1.01,
+    "speed_set": 20.0,
+    "U_measured": 20.3,
+    "spin_set": 0.0,
+    "spin_rpm": 0.4,
 }
 
 BAD = {
@@ -194,6 +217,10 @@ BAD = {
     "u_CL_p": 0.01,
     "alpha": 0.0,
     "Cp_max": 0.8,
+    "speed_set": 6.0,
+    "U_measured": 60.0,
+    "spin_set": 1000.0,
+    "spin_rpm": 1500.0,
 }
 
 

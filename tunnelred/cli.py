@@ -112,7 +112,9 @@ def _run_check(args) -> int:
     for notice in campaign.notices:
         out.append(f"notice: {notice.location()}: {notice.hint}")
     print("\n".join(out))
-    return _print_problems(campaign.problems)
+    from tunnelred.engine.plausibility import campaign_problems
+
+    return _print_problems(campaign.problems + campaign_problems(campaign))
 
 
 def _print_problems(problems) -> int:

@@ -32,6 +32,8 @@ FAULT_KINDS = (
     "cl_disagreement",
     "repeat_disagreement",
     "stagnation_cp",
+    "speed_setpoint",
+    "spin_setpoint",
 )
 
 #: Faults whose run carries a pressure log whatever the spec's pressure set points say.
@@ -87,6 +89,9 @@ class Fault:
         - ``stagnation_cp``: the scanner's reference port sees ``size`` above the tunnel static
           pressure (a leaking or misplaced reference tube), so every tap reads that much low;
           the run is at rest (``spin_ratio`` 0) and carries a pressure log.
+        - ``speed_setpoint``, ``spin_setpoint``: runs.csv lists a set speed, or a set rpm,
+          ``1 + size`` times the one the tunnel ran at (the set point mistyped in the run
+          sheet); the measurements are clean. A ``spin_setpoint`` run must spin.
     config : str
         Configuration label of the run.
     speed : float
@@ -104,7 +109,8 @@ class Fault:
         (0 to 1) [-]; ``overload`` the peak of the knock as a fraction of the Fy full scale [-];
         ``few_revolutions`` the record length [s]; ``cl_disagreement`` the scanner's relative
         span error [-]; ``repeat_disagreement`` the pitot zero offset [Pa]; ``stagnation_cp``
-        the reference-pressure offset [Pa].
+        the reference-pressure offset [Pa]; ``speed_setpoint``, ``spin_setpoint`` the relative
+        error of the listed set point [-].
 
     Raises
     ------
@@ -140,8 +146,8 @@ class Fault:
             raise ValueError(f"a few_revolutions fault takes a positive length; got {self.size}")
         if self.kind == "stagnation_cp" and self.spin_ratio != 0.0:
             raise ValueError("a stagnation_cp fault needs a run at rest (spin_ratio 0)")
-        if self.kind == "tare_extrapolated" and self.spin_ratio == 0.0:
-            raise ValueError("a tare_extrapolated fault needs a spinning run")
+        if self.kind in ("tare_extrapolated", "spin_setpoint") and self.spin_ratio == 0.0:
+            raise ValueError(f"a {self.kind} fault needs a spinning run")
 
 
 def _default_configurations():

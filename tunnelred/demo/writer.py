@@ -250,6 +250,10 @@ class _Writer:
 
     def _row(self, r: ScheduledRun, *, balance_log="", tunnel_log="", pressure_log="") -> None:
         start = self.t0 + timedelta(seconds=round(r.start))
+        # A mistyped set point: the run sheet lists what the tunnel did not run at.
+        fault = r.fault.kind if r.fault is not None else ""
+        speed_set = r.speed_set * (1.0 + r.fault.size) if fault == "speed_setpoint" else r.speed_set
+        spin_set = r.spin_set * (1.0 + r.fault.size) if fault == "spin_setpoint" else r.spin_set
         self.rows.append(
             {
                 "run": r.run,
@@ -261,8 +265,8 @@ class _Writer:
                 "pressure_log": pressure_log,
                 "zero": ";".join(r.zero),
                 "tare": ";".join(r.tare),
-                "speed_set [m/s]": "" if math.isnan(r.speed_set) else f"{r.speed_set:g}",
-                "spin_set [rpm]": "" if math.isnan(r.spin_set) else f"{r.spin_set:g}",
+                "speed_set [m/s]": "" if math.isnan(speed_set) else f"{speed_set:g}",
+                "spin_set [rpm]": "" if math.isnan(spin_set) else f"{spin_set:g}",
                 "notes": r.notes,
             }
         )

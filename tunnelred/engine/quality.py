@@ -48,7 +48,7 @@ __all__ = [
 #: too small to divide by (std/mean of alpha) is not.
 SPINNING_ALPHA = 0.01
 
-_RPM = 60.0 / (2.0 * math.pi)  # rad/s → rpm, for reasons people read
+RPM_PER_RAD_S = 60.0 / (2.0 * math.pi)  # rad/s → rpm, for reasons people read
 
 
 def is_spinning(alpha: float) -> bool:
@@ -100,6 +100,10 @@ class RunMeasures:
     alpha: float = _NAN  # spin ratio (corrected) [-]
     Cp_max: float = _NAN  # largest binned Cp [-]
     pressure_gap: str = ""  # why the pressure forces were left out, if they were
+    speed_set: float = _NAN  # set tunnel speed from runs.csv [m/s]
+    U_measured: float = _NAN  # measured (uncorrected) mean U [m/s]
+    spin_set: float = _NAN  # set spin rate from runs.csv [rpm]
+    spin_rpm: float = _NAN  # measured mean |spin rate| [rpm]
 
     # -- measures derived from the fields above, judged by the table like the fields
 
@@ -139,16 +143,37 @@ class RunMeasures:
         return abs(self.Cp_max - 1.0)
 
     @property
+    def speed_set_miss(self) -> float:
+        """|U − speed_set| / speed_set; NaN without a positive set speed."""
+        if not self.speed_set > 0:
+            return _NAN
+        return abs(self.U_measured - self.speed_set) / self.speed_set
+
+    @property
+    def spin_set_miss(self) -> float:
+        """||rpm| − |spin_set|| / |spin_set|; a run set to 0 rpm misses it when it spins.
+
+        At a set point of 0 rpm there is no fraction to judge: such a run misses (inf) when it
+        is spinning (:func:`is_spinning`) and not otherwise.
+        """
+        set_rpm = abs(self.spin_set)
+        if math.isnan(set_rpm) or math.isnan(self.spin_rpm):
+            return _NAN
+        if set_rpm == 0.0:
+            return math.inf if not math.isnan(self.alpha) and is_spinning(self.alpha) else 0.0
+        return abs(self.spin_rpm - set_rpm) / set_rpm
+
+    @property
     def omega_rpm(self) -> float:
-        return self.omega * _RPM
+        return self.omega * RPM_PER_RAD_S
 
     @property
     def tare_low_rpm(self) -> float:
-        return min(self.tare_range) * _RPM
+        return min(self.tare_range) * RPM_PER_RAD_S
 
     @property
     def tare_high_rpm(self) -> float:
-        return max(self.tare_range) * _RPM
+        return max(self.tare_range) * RPM_PER_RAD_S
 
 
 Direction = Literal["above", "at_least", "below", "raised"]
@@ -296,6 +321,22 @@ CHECKS: tuple[Check, ...] = (
         "above",
         "alpha = {m.alpha:.3f} run: Cp_max {m.Cp_max:.3f} differs from 1 by {value:.3f}, "
         "more than {tolerance:.3f}",
+    ),
+    Check(
+        "speed_setpoint",
+        "speed_set_miss",
+        "speed_setpoint",
+        "above",
+        "measured U {m.U_measured:.2f} m/s is {pct:.1f} % from the set {m.speed_set:g} m/s, "
+        "more than {tol_pct:.0f} % (check the set point and the units of the tunnel log)",
+    ),
+    Check(
+        "spin_setpoint",
+        "spin_set_miss",
+        "spin_setpoint",
+        "above",
+        "measured spin rate {m.spin_rpm:.0f} rpm is {pct:.1f} % from the set {m.spin_set:g} "
+        "rpm, more than {tol_pct:.0f} % (check the set point and the unit of the spin column)",
     ),
 )
 

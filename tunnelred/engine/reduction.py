@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from tunnelred.common.errors import InputError, ReductionError
-from tunnelred.engine import quality
+from tunnelred.engine import plausibility, quality
 from tunnelred.engine.quality import Flag
 from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
 from tunnelred.physics.uncertainty import Input, propagate_linear, propagate_monte_carlo
@@ -580,6 +580,9 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     measures: dict = {}
     tunnel = data.streams["tunnel"]
     fs = conditions.free_stream(tunnel, cfg)
+    implausible = plausibility.run_problems(cfg, data, fs)
+    if implausible:
+        raise InputError(implausible)
     inputs = _tunnel_inputs(cfg, tunnel, fs, measures)
     inputs.update(_geometry_inputs(cfg))
     spin = _spin_inputs(cfg, data, fs, measures)
@@ -605,6 +608,12 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     values = _run_values(spec, linear, measures, taps.dead_taps)
     theta, profiles = _profiles(taps.points, linear, values["alpha"])
     _agreement_measures(measures, values, linear, has_balance and taps.integrate, taps.points)
+    measures.update(
+        speed_set=values["speed_set"],
+        U_measured=values["U_uncorrected"],
+        spin_set=values["spin_set"],
+        spin_rpm=abs(values["omega"]) * quality.RPM_PER_RAD_S,
+    )
 
     if monte_carlo:
         mc = propagate_monte_carlo(model, inputs, draws=monte_carlo, seed=seed)

@@ -218,6 +218,8 @@ class Tolerances:
     # effects are expected to make, allowed on top of the uncertainty [-]
     cl_agreement: float = 0.0
     stagnation_cp: float = 0.05  # |Cp_max - 1| allowed on alpha = 0 runs [-]
+    speed_setpoint: float = 0.1  # |U - speed_set| / speed_set [-]
+    spin_setpoint: float = 0.1  # ||rpm| - spin_set| / spin_set [-]
 
 
 @dataclass(frozen=True)
