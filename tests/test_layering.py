@@ -4,6 +4,10 @@ The stage order is the data flow (DEVELOPERS.md): common → inputs → physics 
 pipeline, demo → live → the command line. A module may import its own stage and those below it,
 at the top of the file or inside a function alike (common practice: a layered design keeps its
 dependency graph acyclic and one-directional).
+
+The physics stage is typed: every public function and method of its modules has a hint on each
+parameter and on its return (issue 18, item 7), so the kinds the formulas take and give back
+(tunnelred.common._arraylike) are written where a reader and a type checker see them.
 """
 
 from __future__ import annotations
@@ -93,3 +97,65 @@ def test_the_checker_sees_an_upward_import(tmp_path):
         ("tunnelred.engine", STAGES["engine"]),
     ]
     assert all(stage > _stage_of_module(fake) for _, _, stage in found)
+
+
+#: Physics modules whose hints are pending: pressure.py is being rewritten and gets its hints with
+#: the rewrite. Remove it from here then.
+HINTS_PENDING = {"pressure.py"}
+PHYSICS = sorted(p for p in (PACKAGE / "physics").glob("*.py") if p.name not in HINTS_PENDING)
+
+
+def _missing_hints(source: str) -> list[str]:
+    """``function: parameter`` (or ``function: return``) for every missing hint of a public
+    function, or of a public method of a public class, at the top level of ``source``."""
+    missing = []
+
+    def check(body: list[ast.stmt], prefix: str, method: bool) -> None:
+        for node in body:
+            if isinstance(node, ast.ClassDef) and not node.name.startswith("_"):
+                check(node.body, f"{node.name}.", True)
+            if not isinstance(node, ast.FunctionDef | ast.AsyncFunctionDef):
+                continue
+            if node.name.startswith("_"):
+                continue
+            a = node.args
+            params = [*a.posonlyargs, *a.args, *a.kwonlyargs, a.vararg, a.kwarg]
+            params = [p for p in params if p is not None]
+            if method and params and params[0].arg in ("self", "cls"):
+                params = params[1:]
+            name = prefix + node.name
+            missing.extend(f"{name}: {p.arg}" for p in params if p.annotation is None)
+            if node.returns is None:
+                missing.append(f"{name}: return")
+
+    check(ast.parse(source).body, "", False)
+    return missing
+
+
+@pytest.mark.parametrize("path", PHYSICS, ids=lambda p: p.name)
+def test_every_public_physics_function_is_typed(path):
+    missing = _missing_hints(path.read_text(encoding="utf-8"))
+    assert not missing, f"{path.relative_to(PACKAGE)} lacks type hints: {missing}"
+
+
+def test_the_hint_checker_sees_a_missing_hint():
+    # The checker must fail on an untyped function, or the test above could never fail.
+    source = (
+        "def typed(x: float, *, y: int = 0) -> float: ...\n"
+        "def untyped(x, *args: int, y=1): ...\n"
+        "def _private(x): ...\n"
+        "class Result:\n"
+        "    def method(self, z) -> None: ...\n"
+        "    @property\n"
+        "    def size(self): ...\n"
+        "    def _helper(self, w): ...\n"
+        "class _Hidden:\n"
+        "    def method(self, v): ...\n"
+    )
+    assert _missing_hints(source) == [
+        "untyped: x",
+        "untyped: y",
+        "untyped: return",
+        "Result.method: z",
+        "Result.size: return",
+    ]

@@ -12,19 +12,33 @@ formula, and gives the result back in the kind of the richest input:
 
 A result whose shape differs from the template's (say, a Series broadcast against a batch of Monte
 Carlo draws) cannot carry the template's labels and comes back as an ndarray.
+
+The type hints of the formulas name these kinds once, here: :data:`ArrayLike` for what a formula
+takes and gives back, :data:`Values` for the unlabelled part of it (a float, or an ndarray over a
+batch of draws), which is what a correction carries between its steps.
 """
 
 from __future__ import annotations
 
 import functools
 from collections.abc import Callable
-from typing import Any
+from typing import Any, ParamSpec, TypeAlias, TypeVar
 
 import numpy as np
 import pandas as pd
 import xarray as xr
 
-__all__ = ["arraylike", "as_array", "like"]
+__all__ = ["ArrayLike", "Values", "arraylike", "as_array", "like"]
+
+#: An unlabelled value: a float, or an ndarray over samples or a batch of Monte Carlo draws.
+Values: TypeAlias = float | np.ndarray
+
+#: The four kinds an :func:`arraylike` formula takes and gives back, the result in the kind of its
+#: richest input. (Not numpy.typing.ArrayLike, which is anything numpy can turn into an array.)
+ArrayLike: TypeAlias = Values | pd.Series | xr.DataArray
+
+_P = ParamSpec("_P")
+_R = TypeVar("_R")
 
 
 def as_array(x: Any) -> np.ndarray:
@@ -76,7 +90,7 @@ def _is_numeric(x: Any) -> bool:
     return isinstance(x, int | float | np.number) and not isinstance(x, bool)
 
 
-def arraylike(func: Callable) -> Callable:
+def arraylike(func: Callable[_P, _R]) -> Callable[_P, _R]:
     """Decorate a formula written on ndarrays so it accepts and returns the four input kinds.
 
     Every numeric argument (positional or keyword) takes part; strings, None and other objects pass
@@ -93,6 +107,9 @@ def arraylike(func: Callable) -> Callable:
     ('time',)
     """
 
+    # The formula is called on plain ndarrays, one of the kinds its parameters take.
+    formula: Callable[..., Any] = func
+
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
         numeric = [a for a in (*args, *kwargs.values()) if _is_numeric(a)]
@@ -107,7 +124,7 @@ def arraylike(func: Callable) -> Callable:
         template = _template(numeric)
         plain_args = [as_array(a) if _is_numeric(a) else a for a in args]
         plain_kwargs = {k: as_array(v) if _is_numeric(v) else v for k, v in kwargs.items()}
-        result = func(*plain_args, **plain_kwargs)
+        result = formula(*plain_args, **plain_kwargs)
         if isinstance(result, tuple):
             return tuple(like(template, r) for r in result)
         return like(template, result)

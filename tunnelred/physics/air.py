@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from tunnelred.common._arraylike import arraylike
+from tunnelred.common._arraylike import ArrayLike, arraylike
 
 __all__ = [
     "density",
@@ -51,7 +51,7 @@ _SUTHERLAND_S = 110.4  # [K]
 
 
 @arraylike
-def saturation_vapour_pressure(temperature):
+def saturation_vapour_pressure(temperature: ArrayLike) -> ArrayLike:
     """Saturation vapour pressure of water over a plane liquid surface, CIPM-2007 form.
 
     Parameters
@@ -86,7 +86,13 @@ def saturation_vapour_pressure(temperature):
 
 
 @arraylike
-def density(temperature, pressure, relative_humidity=0.0, *, x_co2=0.0004):
+def density(
+    temperature: ArrayLike,
+    pressure: ArrayLike,
+    relative_humidity: ArrayLike = 0.0,
+    *,
+    x_co2: ArrayLike = 0.0004,
+) -> ArrayLike:
     """Density of moist air by the CIPM-2007 equation.
 
     Parameters
@@ -147,7 +153,7 @@ def density(temperature, pressure, relative_humidity=0.0, *, x_co2=0.0004):
 
 
 @arraylike
-def density_ideal_dry(temperature, pressure):
+def density_ideal_dry(temperature: ArrayLike, pressure: ArrayLike) -> ArrayLike:
     """Density of dry air as an ideal gas.
 
     Parameters
@@ -181,7 +187,7 @@ def density_ideal_dry(temperature, pressure):
 
 
 @arraylike
-def viscosity(temperature):
+def viscosity(temperature: ArrayLike) -> ArrayLike:
     """Dynamic viscosity of air by Sutherland's law, in the ICAO form.
 
     Parameters
@@ -215,7 +221,9 @@ def viscosity(temperature):
 
 
 @arraylike
-def speed_of_sound(temperature, *, gamma=1.4, gas_constant=R_DRY_AIR):
+def speed_of_sound(
+    temperature: ArrayLike, *, gamma: ArrayLike = 1.4, gas_constant: ArrayLike = R_DRY_AIR
+) -> ArrayLike:
     """Speed of sound in air as an ideal gas.
 
     Parameters

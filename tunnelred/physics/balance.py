@@ -18,8 +18,9 @@ Loads are ordered as :data:`tunnelred.inputs.config.LOAD_NAMES`: Fx [N], Fy [N],
 from __future__ import annotations
 
 import numpy as np
+import numpy.typing as npt
 
-from tunnelred.common._arraylike import arraylike
+from tunnelred.common._arraylike import ArrayLike, Values, arraylike
 
 __all__ = [
     "TareRangeError",
@@ -39,7 +40,9 @@ class TareRangeError(ValueError):
     """A spin tare was asked for outside the spin rates its tare runs cover."""
 
 
-def _calibration_arrays(matrix, second_order):
+def _calibration_arrays(
+    matrix: npt.ArrayLike, second_order: npt.ArrayLike | None
+) -> tuple[np.ndarray, np.ndarray | None, int]:
     """Check the calibration's shapes; return (matrix [..., 3, n], second_order or None, n)."""
     matrix = np.asarray(matrix, dtype=float)
     if matrix.ndim < 2 or matrix.shape[-2] != 3:
@@ -57,20 +60,20 @@ def _calibration_arrays(matrix, second_order):
     return matrix, second_order, n
 
 
-def _products(signals, n):
+def _products(signals: np.ndarray, n: int) -> np.ndarray:
     """Second-order terms s_i s_j, i ≤ j, row-major: [..., n] → [..., n(n+1)/2]."""
     i, j = np.triu_indices(n)
     return signals[..., i] * signals[..., j]
 
 
-def _apply(matrix, vectors):
+def _apply(matrix: np.ndarray, vectors: np.ndarray) -> np.ndarray:
     """matrix [..., r, c] times vectors [..., c] → [..., r]; one BLAS call for a 2-D matrix."""
     if matrix.ndim == 2:
         return vectors @ matrix.T
     return (matrix @ vectors[..., None])[..., 0]
 
 
-def _product_tensor(second_order, n):
+def _product_tensor(second_order: np.ndarray, n: int) -> np.ndarray:
     """C [..., 3, n, n] with ∂(K₂ q(s))/∂s = C s: each s_i s_j term feeds C[i, j] and C[j, i]."""
     i, j = np.triu_indices(n)
     tensor = np.zeros(second_order.shape[:-1] + (n, n))
@@ -79,7 +82,7 @@ def _product_tensor(second_order, n):
     return tensor
 
 
-def _jacobian(matrix, tensor, signals):
+def _jacobian(matrix: np.ndarray, tensor: np.ndarray, signals: np.ndarray) -> np.ndarray:
     """∂F/∂s = K + C s for samples [A, n] → [A, 3, n]."""
     a, n = signals.shape
     if tensor.ndim == 3:
@@ -89,7 +92,7 @@ def _jacobian(matrix, tensor, signals):
     return matrix + varying
 
 
-def _solve(a, b):
+def _solve(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Solve a x = b for 3 x n systems (b [..., 3]); the minimum-norm x when n > 3."""
     square = a.shape[-1] == a.shape[-2]
     if a.ndim == 2:
@@ -103,14 +106,16 @@ def _solve(a, b):
     return (a_t @ np.linalg.solve(a @ a_t, b[..., None]))[..., 0]
 
 
-def _flat(array, shape, tail):
+def _flat(array: np.ndarray, shape: tuple[int, ...], tail: tuple[int, ...]) -> np.ndarray:
     """Broadcast a batched array to ``shape + tail`` and flatten the batch; a 2-D one stays."""
     if array.ndim == len(tail):
         return array
     return np.broadcast_to(array, shape + tail).reshape((-1,) + tail)
 
 
-def loads_from_signals(signals, matrix, second_order=None):
+def loads_from_signals(
+    signals: npt.ArrayLike, matrix: npt.ArrayLike, second_order: npt.ArrayLike | None = None
+) -> np.ndarray:
     """Balance loads from zero-corrected channel signals through the calibration.
 
     Parameters
@@ -157,7 +162,14 @@ def loads_from_signals(signals, matrix, second_order=None):
     return loads
 
 
-def signals_from_loads(loads, matrix, second_order=None, *, tol=1e-12, max_iter=50):
+def signals_from_loads(
+    loads: npt.ArrayLike,
+    matrix: npt.ArrayLike,
+    second_order: npt.ArrayLike | None = None,
+    *,
+    tol: float = 1e-12,
+    max_iter: int = 50,
+) -> np.ndarray:
     """Channel signals that give the loads through the calibration (its inverse).
 
     Parameters
@@ -253,7 +265,9 @@ def signals_from_loads(loads, matrix, second_order=None, *, tol=1e-12, max_iter=
     )
 
 
-def interpolate_zero(time, zero_times, zero_signals):
+def interpolate_zero(
+    time: npt.ArrayLike, zero_times: npt.ArrayLike, zero_signals: npt.ArrayLike
+) -> tuple[np.ndarray, np.ndarray, np.bool_ | np.ndarray]:
     """The wind-off zero at a data run's time, drift-interpolated between its zero runs.
 
     Parameters
@@ -321,7 +335,13 @@ def interpolate_zero(time, zero_times, zero_signals):
     return zero, shift, bracketed
 
 
-def tare_loads(spin_rate, tare_spin_rates, tare_loads, *, extrapolation="flag"):
+def tare_loads(
+    spin_rate: npt.ArrayLike,
+    tare_spin_rates: npt.ArrayLike,
+    tare_loads: npt.ArrayLike,
+    *,
+    extrapolation: str = "flag",
+) -> tuple[np.ndarray, np.bool_ | np.ndarray]:
     """Spin-tare loads at a data run's spin rate, interpolated between the tare runs.
 
     Parameters
@@ -411,7 +431,7 @@ def tare_loads(spin_rate, tare_spin_rates, tare_loads, *, extrapolation="flag"):
 
 
 @arraylike
-def balance_to_wind(fx, fy, angle):
+def balance_to_wind(fx: ArrayLike, fy: ArrayLike, angle: ArrayLike) -> tuple[ArrayLike, ArrayLike]:
     """Drag and lift from balance-axis forces.
 
     Parameters
@@ -456,7 +476,16 @@ def balance_to_wind(fx, fy, angle):
     return fx * cos - fy * sin, fx * sin + fy * cos
 
 
-def force_coefficients(lift, drag, torque, q, velocity, omega, diameter, span):
+def force_coefficients(
+    lift: npt.ArrayLike,
+    drag: npt.ArrayLike,
+    torque: npt.ArrayLike,
+    q: npt.ArrayLike,
+    velocity: npt.ArrayLike,
+    omega: npt.ArrayLike,
+    diameter: npt.ArrayLike,
+    span: npt.ArrayLike,
+) -> dict[str, Values]:
     """Lift, drag, torque and power coefficients of the spinning cylinder.
 
     Parameters
@@ -519,7 +548,7 @@ def force_coefficients(lift, drag, torque, q, velocity, omega, diameter, span):
     }
 
 
-def overload_fraction(loads, full_scale):
+def overload_fraction(loads: npt.ArrayLike, full_scale: npt.ArrayLike) -> np.ndarray:
     """Largest load of a run as a fraction of the balance's full scale, per component.
 
     Parameters

@@ -11,9 +11,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import numpy.typing as npt
 import xarray as xr
 
-from tunnelred.common._arraylike import arraylike, as_array
+from tunnelred.common._arraylike import ArrayLike, arraylike, as_array
 from tunnelred.common.errors import ReductionError
 from tunnelred.inputs.config import CampaignConfig
 from tunnelred.physics import air
@@ -38,7 +39,9 @@ __all__ = [
 
 
 @arraylike
-def dynamic_pressure(impact_pressure, static_pressure, *, gamma=1.4):
+def dynamic_pressure(
+    impact_pressure: ArrayLike, static_pressure: ArrayLike, *, gamma: ArrayLike = 1.4
+) -> ArrayLike:
     """Dynamic pressure from a pitot-static reading, isentropic (subsonic) flow.
 
     Parameters
@@ -78,7 +81,9 @@ def dynamic_pressure(impact_pressure, static_pressure, *, gamma=1.4):
 
 
 @arraylike
-def impact_pressure(q, static_pressure, *, gamma=1.4):
+def impact_pressure(
+    q: ArrayLike, static_pressure: ArrayLike, *, gamma: ArrayLike = 1.4
+) -> ArrayLike:
     """Impact pressure a pitot-static probe reads in a stream of dynamic pressure q.
 
     The inverse of :func:`dynamic_pressure`.
@@ -118,7 +123,7 @@ def impact_pressure(q, static_pressure, *, gamma=1.4):
 
 
 @arraylike
-def velocity(q, density):
+def velocity(q: ArrayLike, density: ArrayLike) -> ArrayLike:
     """Flow speed from dynamic pressure and density.
 
     Parameters
@@ -152,7 +157,9 @@ def velocity(q, density):
 
 
 @arraylike
-def reynolds_number(density, velocity, diameter, viscosity):
+def reynolds_number(
+    density: ArrayLike, velocity: ArrayLike, diameter: ArrayLike, viscosity: ArrayLike
+) -> ArrayLike:
     """Reynolds number on the cylinder diameter.
 
     Parameters
@@ -188,7 +195,7 @@ def reynolds_number(density, velocity, diameter, viscosity):
 
 
 @arraylike
-def mach_number(velocity, speed_of_sound):
+def mach_number(velocity: ArrayLike, speed_of_sound: ArrayLike) -> ArrayLike:
     """Mach number U / a.
 
     Parameters
@@ -220,7 +227,7 @@ def mach_number(velocity, speed_of_sound):
 
 
 @arraylike
-def spin_ratio(omega, radius, velocity):
+def spin_ratio(omega: ArrayLike, radius: ArrayLike, velocity: ArrayLike) -> ArrayLike:
     """Spin ratio alpha = omega R / U, signed with the spin.
 
     Parameters
@@ -255,7 +262,7 @@ def spin_ratio(omega, radius, velocity):
 
 
 @arraylike
-def circulation(omega, radius):
+def circulation(omega: ArrayLike, radius: ArrayLike) -> ArrayLike:
     """Circulation of the ideal flow a spinning cylinder sets up: Gamma = 2 pi omega R².
 
     Parameters
@@ -287,7 +294,7 @@ def circulation(omega, radius):
     return 2.0 * np.pi * omega * radius**2
 
 
-def spin_rate_from_encoder(time, angle) -> float:
+def spin_rate_from_encoder(time: npt.ArrayLike, angle: npt.ArrayLike) -> float:
     """Mean spin rate of a run from the encoder angle, by a least-squares line.
 
     Parameters
@@ -328,7 +335,7 @@ def spin_rate_from_encoder(time, angle) -> float:
     return float(np.dot(tc, theta - theta.mean()) / np.dot(tc, tc))
 
 
-def _unwrapped_radians(angle) -> np.ndarray:
+def _unwrapped_radians(angle: npt.ArrayLike) -> np.ndarray:
     return np.deg2rad(np.unwrap(as_array(angle), period=360.0))
 
 
@@ -519,7 +526,13 @@ class SpinSteadiness:
     alpha: np.ndarray
 
 
-def spin_steadiness(spin_time, omega, flow_time, velocity, radius) -> SpinSteadiness:
+def spin_steadiness(
+    spin_time: npt.ArrayLike,
+    omega: npt.ArrayLike,
+    flow_time: npt.ArrayLike,
+    velocity: npt.ArrayLike,
+    radius: float,
+) -> SpinSteadiness:
     """The spin ratio over time and its scatter and drift.
 
     Parameters
@@ -608,7 +621,7 @@ class SeriesStats:
     u_mean: float
 
 
-def series_statistics(values, time=None) -> SeriesStats:
+def series_statistics(values: npt.ArrayLike, time: npt.ArrayLike | None = None) -> SeriesStats:
     """Mean, scatter, drift and the type-A uncertainty of the mean of a correlated record.
 
     Parameters
@@ -680,7 +693,7 @@ def _fft_length(n: int) -> int:
     return best
 
 
-def effective_sample_size(x) -> float:
+def effective_sample_size(x: npt.ArrayLike) -> float:
     """Effective number of independent samples in an autocorrelated record.
 
     Parameters

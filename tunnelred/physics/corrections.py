@@ -24,10 +24,12 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
+import numpy.typing as npt
 
-from tunnelred.common._arraylike import arraylike
+from tunnelred.common._arraylike import ArrayLike, Values, arraylike
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, MethodChoice
 
 __all__ = [
@@ -61,7 +63,7 @@ MASKELL_FACTOR_3D = 2.5
 
 
 @arraylike
-def solid_blockage_2d(diameter, height):
+def solid_blockage_2d(diameter: ArrayLike, height: ArrayLike) -> ArrayLike:
     """Solid-blockage velocity increment of a circular cylinder spanning a closed section.
 
     Parameters
@@ -105,8 +107,13 @@ def solid_blockage_2d(diameter, height):
 
 @arraylike
 def wake_blockage_2d(
-    diameter, height, drag_coefficient, *, method="allen-vincenti", blockage_factor=None
-):
+    diameter: ArrayLike,
+    height: ArrayLike,
+    drag_coefficient: ArrayLike,
+    *,
+    method: str = "allen-vincenti",
+    blockage_factor: ArrayLike | None = None,
+) -> ArrayLike:
     """Wake-blockage velocity increment of a cylinder spanning a closed section.
 
     Parameters
@@ -172,7 +179,13 @@ def wake_blockage_2d(
 
 
 @arraylike
-def maskell_3d(drag_coefficient, model_area, section_area, *, blockage_factor=None):
+def maskell_3d(
+    drag_coefficient: ArrayLike,
+    model_area: ArrayLike,
+    section_area: ArrayLike,
+    *,
+    blockage_factor: ArrayLike | None = None,
+) -> ArrayLike:
     """Maskell's blockage correction for a bluff body in a closed section, as a velocity increment.
 
     Parameters
@@ -216,7 +229,9 @@ def maskell_3d(drag_coefficient, model_area, section_area, *, blockage_factor=No
     return np.sqrt(1.0 + theta * drag_coefficient * model_area / section_area) - 1.0
 
 
-def lift_interference_2d(lift_coefficient, diameter, height):
+def lift_interference_2d(
+    lift_coefficient: npt.ArrayLike, diameter: npt.ArrayLike, height: npt.ArrayLike
+) -> dict[str, Values]:
     """Streamline-curvature interference on a circulation-carrying cylinder between two walls.
 
     No published form is standard for a spinning cylinder; this is a first-order derivation in
@@ -292,7 +307,9 @@ def lift_interference_2d(lift_coefficient, diameter, height):
 
 
 @arraylike
-def buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient):
+def buoyancy_drag(
+    diameter: ArrayLike, dynamic_pressure: ArrayLike, static_pressure_gradient: ArrayLike
+) -> ArrayLike:
     """Horizontal-buoyancy drag coefficient of a circular cylinder in the empty-tunnel gradient.
 
     Parameters
@@ -335,10 +352,6 @@ def buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient):
     0.0031416
     """
     return -np.pi * diameter / (2.0 * dynamic_pressure) * static_pressure_gradient
-
-
-#: A float, or an array over a batch of perturbed inputs or Monte Carlo draws.
-Values = float | np.ndarray
 
 
 @dataclass(frozen=True)
@@ -405,8 +418,13 @@ def _q_ratio_factor(eps_solid: Values, eps_wake: Values) -> Values:
     return 1.0 / (1.0 + (eps_solid + eps_wake)) ** 2
 
 
+# The casts below say what the arraylike rule guarantees and a type checker cannot see: a formula
+# given floats and ndarrays (Values) gives back a float or an ndarray.
+
+
 def _allen_vincenti(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
-    return solid_blockage_2d(g.diameter, g.height), wake_blockage_2d(g.diameter, g.height, cd)
+    solid = solid_blockage_2d(g.diameter, g.height)
+    return cast(Values, solid), cast(Values, wake_blockage_2d(g.diameter, g.height, cd))
 
 
 def _allen_vincenti_drag(eps_solid: Values, eps_wake: Values) -> Values:
@@ -417,12 +435,12 @@ def _allen_vincenti_drag(eps_solid: Values, eps_wake: Values) -> Values:
 def _maskell_2d(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
     # Maskell's theory, built on thin plates, has no solid blockage: Allen & Vincenti's is added.
     wake = wake_blockage_2d(g.diameter, g.height, cd, method="maskell", blockage_factor=factor)
-    return solid_blockage_2d(g.diameter, g.height), wake
+    return cast(Values, solid_blockage_2d(g.diameter, g.height)), cast(Values, wake)
 
 
 def _maskell_3d(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
     wake = maskell_3d(cd, g.diameter * g.span, g.height * g.width, blockage_factor=factor)
-    return 0.0, wake
+    return 0.0, cast(Values, wake)
 
 
 def _no_blockage(g: Geometry, cd: Values, factor: float | None) -> tuple[Values, Values]:
@@ -617,7 +635,8 @@ def wall_correction(
 
     delta_cd = zero
     if buoyancy:
-        delta_cd = buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient) + zero
+        buoyancy_cd = buoyancy_drag(diameter, dynamic_pressure, static_pressure_gradient)
+        delta_cd = cast(Values, buoyancy_cd) + zero
     lift_curvature = zero
     if lift_interference:
         lift_curvature = lift_interference_2d(lift_coefficient, diameter, height)["lift_curvature"]
@@ -633,7 +652,7 @@ def wall_correction(
     )
 
 
-def drag_factor_residue(corr: WallCorrection):
+def drag_factor_residue(corr: WallCorrection) -> Values:
     """How far a first-order drag factor lies from its unlinearised form (an uncertainty).
 
     Allen & Vincenti's ``1 − 3 eps_sb − 2 eps_wb`` linearises ``(1 − eps_sb)/(1 + eps)²``: the
@@ -651,19 +670,19 @@ def drag_factor_residue(corr: WallCorrection):
 def apply_wall_correction(
     corr: WallCorrection,
     *,
-    U,
-    q,
-    alpha,
-    Re,
-    CL,
-    CD,
-    CM,
-    C_power,
-    CL_p=None,
-    CD_p=None,
-    Cp=None,
-    truncation=0.0,
-) -> dict:
+    U: Values,
+    q: Values,
+    alpha: Values,
+    Re: Values,
+    CL: Values,
+    CD: Values,
+    CM: Values,
+    C_power: Values,
+    CL_p: Values | None = None,
+    CD_p: Values | None = None,
+    Cp: npt.ArrayLike | None = None,
+    truncation: Values = 0.0,
+) -> dict[str, Values]:
     """Turn a run's uncorrected free-stream values and coefficients into wall-corrected ones.
 
     Parameters

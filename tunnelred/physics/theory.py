@@ -8,8 +8,9 @@ ratio α = ωR/U is signed. Angles are in degrees at every public surface.
 from __future__ import annotations
 
 import numpy as np
+import numpy.typing as npt
 
-from tunnelred.common._arraylike import arraylike
+from tunnelred.common._arraylike import ArrayLike, Values, arraylike
 
 __all__ = [
     "PRANDTL_LIMIT",
@@ -25,7 +26,7 @@ PRANDTL_LIMIT = 4 * np.pi
 
 
 @arraylike
-def cp_surface(theta, alpha):
+def cp_surface(theta: ArrayLike, alpha: ArrayLike) -> ArrayLike:
     """Surface pressure coefficient of potential flow about a spinning cylinder.
 
     Parameters
@@ -65,7 +66,7 @@ def cp_surface(theta, alpha):
 
 
 @arraylike
-def lift_coefficient(alpha):
+def lift_coefficient(alpha: ArrayLike) -> ArrayLike:
     """Ideal (Kutta–Joukowski) lift coefficient of a spinning cylinder.
 
     Parameters
@@ -97,7 +98,7 @@ def lift_coefficient(alpha):
 
 
 @arraylike
-def stagnation_angles(alpha):
+def stagnation_angles(alpha: ArrayLike) -> tuple[ArrayLike, ArrayLike]:
     """Azimuths of the two potential-flow stagnation points on the surface.
 
     Parameters
@@ -136,12 +137,14 @@ def stagnation_angles(alpha):
     return -shift, 180.0 + shift
 
 
-def _wrap180(theta):
+def _wrap180(theta: np.ndarray) -> np.ndarray:
     """Angles in (−180, 180] [deg]."""
     return 180.0 - np.mod(180.0 - theta, 360.0)
 
 
-def _parabolic_peak(theta, values, index):
+def _parabolic_peak(
+    theta: np.ndarray, values: np.ndarray, index: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Vertex of the parabola through the bin at ``index`` and its periodic neighbours.
 
     ``theta`` (n,) sorted in [0, 360); ``values`` (..., n) with no NaN at ``index``; ``index``
@@ -167,7 +170,9 @@ def _parabolic_peak(theta, values, index):
     )
 
 
-def surface_features(theta, cp, *, base_arc=(160.0, 200.0)) -> dict:
+def surface_features(
+    theta: npt.ArrayLike, cp: npt.ArrayLike, *, base_arc: tuple[float, float] = (160.0, 200.0)
+) -> dict[str, Values]:
     """Stagnation angle, extreme and base pressures of a binned Cp(θ).
 
     Parameters
