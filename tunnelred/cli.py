@@ -299,9 +299,7 @@ def _run_report(args) -> int:
         return _fail_usage(f"{args.results}: no such folder")
     if args.campaign is not None and not args.campaign.is_dir():
         return _fail_usage(f"{args.campaign}: no such folder")
-    pdf = write_report(
-        args.results, args.out, campaign=args.campaign, full_config=args.full_config
-    )
+    pdf = write_report(args.results, args.out, campaign=args.campaign, full_config=args.full_config)
     print(f"report written to {pdf}")
     return 0
 
@@ -360,6 +358,37 @@ def _run_compare(args) -> int:
 # watch
 
 
+# ---------------------------------------------------------------------------------------------
+# init
+
+
+def _add_init(subparsers) -> None:
+    p = subparsers.add_parser(
+        "init",
+        help="start a new campaign folder to fill in",
+        description="Write a campaign folder to fill in: campaign.toml with every key commented "
+        "(unit, default and meaning; required keys marked), runs.csv with its header and one "
+        "example row of each run kind, run_sheet.csv for the operator to print, and an empty "
+        "logs/. Then 'tunnelred check DEST' lists what is still to be filled.",
+        epilog="example:\n  tunnelred init entry-4\n  tunnelred check entry-4\n\n"
+        "exit status: 0 written, 2 DEST not empty (without --force) or a usage error.",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("dest", type=Path, help="the new campaign folder (created)")
+    p.add_argument("--force", action="store_true",
+                   help="write into a non-empty folder (replacing the template files)")  # fmt: skip
+    p.set_defaults(run=_run_init)
+
+
+def _run_init(args) -> int:
+    from tunnelred.inputs.template import write_template
+
+    written = write_template(args.dest, force=args.force)
+    print(f"wrote {', '.join(p.name for p in written)} and logs/ in {args.dest}")
+    print(f"fill them in, then: tunnelred check {args.dest}")
+    return 0
+
+
 # The defaults themselves live in tunnelred.live.watcher (a test keeps these texts in step);
 # importing it here would make every `tunnelred --help` load the whole pipeline.
 _SETTLE_HELP = "2"
@@ -405,7 +434,15 @@ def _run_watch(args) -> int:
 
 # ---------------------------------------------------------------------------------------------
 
-_SUBCOMMANDS = (_add_check, _add_reduce, _add_report, _add_compare, _add_watch, _add_demo)
+_SUBCOMMANDS = (
+    _add_init,
+    _add_check,
+    _add_reduce,
+    _add_report,
+    _add_compare,
+    _add_watch,
+    _add_demo,
+)
 
 
 def _parser() -> argparse.ArgumentParser:

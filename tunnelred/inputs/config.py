@@ -16,6 +16,7 @@ from pathlib import Path, PurePosixPath
 
 from tunnelred.common.errors import InputError, Problem
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
+from tunnelred.inputs.schema import names_by_table
 from tunnelred.inputs.units import parse_quantity
 
 __all__ = [
@@ -284,88 +285,12 @@ _FRACTION = (lambda v: 0 <= v <= 1, "a fraction from 0 to 1")
 # kind → how to say it; kinds other than these are units.DIMENSIONS keys.
 _PLAIN_KINDS = {"str": "a string", "bool": "true or false", "int": "an integer"}
 
-#: Keys every [instruments.NAME] table may carry besides its uncertainties.
-_CALIBRATION_KEYS = ("calibration_reference", "calibration_date")
 #: Image files a model photograph may be (by their first bytes, not their name).
 _IMAGE_SIGNATURES = {b"\x89PNG\r\n\x1a\n": "PNG", b"\xff\xd8\xff": "JPEG"}
 
-_KEYS = {
-    "campaign": ("title", "facility", "date", "notes"),
-    "report": (
-        "number",
-        "revision",
-        "revision_history",
-        "client",
-        "client_address",
-        "prepared_by",
-        "checked_by",
-        "approved_by",
-        "date_of_issue",
-        "distribution",
-        "laboratory",
-        "laboratory_address",
-        "location",
-        "method",
-        "deviations",
-    ),
-    "revision": ("revision", "date", "change"),
-    "tunnel": (
-        "section",
-        "height",
-        "u_height",
-        "width",
-        "u_width",
-        "flow_angle",
-        "u_flow_angle",
-        "static_pressure_gradient",
-        "u_static_pressure_gradient",
-        "q_source",
-        "contraction_factor",
-        "u_contraction_factor",
-    ),
-    "model": (
-        "diameter",
-        "u_diameter",
-        "span",
-        "u_span",
-        "spans_section",
-        "transducer_radius",
-        "max_spin_rate",
-        "surface",
-        "photo",
-    ),
-    "configuration": ("description", "end_plates", "end_plate_diameter", "tolerances"),
-    "balance": (
-        "channels",
-        "matrix",
-        "second_order",
-        "full_scale",
-        "u_fraction_of_full_scale",
-        "u_matrix_relative",
-        "alignment_angle",
-        "u_alignment_angle",
-        *_CALIBRATION_KEYS,
-    ),
-    "scanner": ("full_scale", "u", *_CALIBRATION_KEYS),
-    "pitot": ("u", "u_relative", *_CALIBRATION_KEYS),
-    "thermometer": ("u", *_CALIBRATION_KEYS),
-    "barometer": ("u", *_CALIBRATION_KEYS),
-    "hygrometer": ("u", *_CALIBRATION_KEYS),
-    "tachometer": ("u_relative", *_CALIBRATION_KEYS),
-    "encoder": ("u", *_CALIBRATION_KEYS),
-    "tap": ("name", "azimuth", "u_azimuth", "tubing_delay", "u_tubing_delay"),
-    "reduction": (
-        "blockage",
-        "maskell_factor",
-        "lift_interference",
-        "buoyancy",
-        "cp_bins",
-        "base_arc",
-        "max_tap_gap",
-        "tare_extrapolation",
-        "tolerances",
-    ),
-}
+#: The keys each table accepts, from the one list of campaign.toml's keys (inputs.schema);
+#: [reduction.tolerances] takes the fields of Tolerances.
+_KEYS = {table: names for table, names in names_by_table().items() if table != "tolerances"}
 _TOP = (
     "campaign",
     "report",
