@@ -118,3 +118,12 @@ def test_check_says_what_is_still_to_be_filled(tmp_path, capsys):
 @pytest.mark.parametrize("table", sorted(schema.TABLES))
 def test_every_table_has_keys(table):
     assert schema.names_by_table().get(table), table
+
+
+def test_schema_names_every_key_the_loader_accepts():
+    # [reduction.tolerances] is read from the Tolerances fields; a new tolerance needs its Key.
+    from tunnelred.inputs.config import Tolerances
+
+    assert schema.names_by_table()["tolerances"] == tuple(Tolerances.__dataclass_fields__)
+    for key in schema.KEYS:  # every default reference resolves
+        default_text(key)

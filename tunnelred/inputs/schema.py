@@ -169,6 +169,8 @@ KEYS: tuple[Key, ...] = (
     Key("tolerances", "agreement_k", "number", "coverage factor for balance-vs-pressure and repeat-run agreement", "Tolerances.agreement_k"),  # noqa: E501
     Key("tolerances", "cl_agreement", "fraction", "allowed relative difference between balance CL and mid-span pressure CL_p (end effects), on top of agreement_k × their combined u", "Tolerances.cl_agreement"),  # noqa: E501
     Key("tolerances", "stagnation_cp", "Cp", "an α = 0 run's maximum Cp differs from 1 by more", "Tolerances.stagnation_cp"),  # noqa: E501
+    Key("tolerances", "speed_setpoint", "fraction", "the measured (uncorrected) U differs from speed_set by more than this fraction", "Tolerances.speed_setpoint"),  # noqa: E501
+    Key("tolerances", "spin_setpoint", "fraction", "the measured |rpm| differs from |spin_set| by more than this fraction (a run set to 0 rpm: it spins)", "Tolerances.spin_setpoint"),  # noqa: E501
 )
 # fmt: on
 

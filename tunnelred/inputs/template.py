@@ -64,6 +64,8 @@ def _toml(value) -> str:
 
 
 def _meaning(key: Key) -> str:
+    if key.table == "tolerances":
+        return f"flag raised when {key.meaning}"
     if key.meaning:
         return key.meaning
     if key.name.startswith("u_"):
