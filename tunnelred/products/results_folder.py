@@ -33,7 +33,7 @@ from collections.abc import Iterator
 from pathlib import Path
 
 from tunnelred import __version__
-from tunnelred.common.errors import OutputFolderError
+from tunnelred.common.errors import OutputFolderError, OutsideError
 from tunnelred.products.store import contained
 
 try:
@@ -204,6 +204,23 @@ class Staging:
         """Where to write ``name`` (a path relative to the generation), checked to stay inside."""
         return contained(self.path, self.path / name)
 
+    def previous_record(self, name: str) -> dict:
+        """A small JSON object the previous generation holds under ``name``; {} if none or bad.
+
+        OUT is not trusted input: anything that is not a regular file of a sane size holding a
+        JSON object reads as empty.
+        """
+        if self.previous is None:
+            return {}
+        try:
+            path = self.previous / name
+            if not stat.S_ISREG(os.lstat(path).st_mode) or path.stat().st_size > 1 << 20:
+                return {}
+            record = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError, UnicodeDecodeError):
+            return {}
+        return record if isinstance(record, dict) else {}
+
     def carry(self, name: str) -> bool:
         """Bring ``name`` unchanged from the previous generation (hard link, else a copy).
 
@@ -211,11 +228,12 @@ class Staging:
         """
         if self.previous is None:
             return False
-        source = self.previous / name
         try:
+            # ``name`` may come from a record in OUT: it must name a file of the generation.
+            source = contained(self.previous, self.previous / name)
             if not stat.S_ISREG(os.lstat(source).st_mode):
                 return False
-        except OSError:
+        except (OSError, OutsideError):
             return False
         target = self.file(name)
         target.parent.mkdir(parents=True, exist_ok=True)

@@ -12,6 +12,7 @@ reader never sees a half-written file, whatever interrupts the writer.
 from __future__ import annotations
 
 import functools
+import hashlib
 import json
 import os
 import tempfile
@@ -43,6 +44,7 @@ __all__ = [
     "run_table",
     "write_results",
     "read_results",
+    "results_digest",
     "atomic_path",
     "atomic_write_bytes",
     "contained",
@@ -506,6 +508,45 @@ def write_results(
     write_csv(failures, paths["failures.csv"])
     write_csv(_with_columns(budgets, BUDGET_COLUMNS), paths["budgets.csv"])
     return paths
+
+
+# Attributes that change with every reduction although the results do not.
+_VOLATILE_ATTRS = ("created",)
+
+
+def results_digest(ds: xr.Dataset, *tables: pd.DataFrame | None) -> str:
+    """SHA-256 over the content of a results Dataset (and tables written beside it).
+
+    Every variable and coordinate (name, dims, attributes, values) and the Dataset's attributes
+    except the time of writing: two reductions that computed the same numbers from the same inputs
+    give the same digest, whether the runs came from the cache or were reduced anew, so their files
+    and figures need not be written again. Values are hashed as written: NaN payloads and the sign
+    of zero are not results, and text is hashed as text whatever its dtype.
+    """
+    digest = hashlib.sha256()
+
+    def feed(head: dict, values) -> None:
+        digest.update(json.dumps(head, sort_keys=True, default=str).encode() + b"\0")
+        values = np.asarray(values)
+        if values.dtype.kind in "fc":
+            canonical = np.where(np.isnan(values), np.nan, values) + 0.0
+            digest.update(np.ascontiguousarray(canonical, dtype=values.dtype).tobytes())
+        elif values.dtype.kind in "biu":
+            digest.update(np.ascontiguousarray(values).tobytes())
+        else:
+            digest.update(json.dumps([str(v) for v in values.ravel()]).encode())
+
+    for name in [*sorted(map(str, ds.coords)), *sorted(map(str, ds.data_vars))]:
+        array = ds[name]
+        feed({"name": name, "dims": list(array.dims), "attrs": array.attrs}, array.values)
+    feed({k: v for k, v in ds.attrs.items() if k not in _VOLATILE_ATTRS}, ())
+    for table in tables:
+        if table is None:
+            feed({"table": None}, ())
+            continue
+        for column in table.columns:
+            feed({"column": str(column)}, table[column].to_numpy())
+    return digest.hexdigest()
 
 
 def read_results(out_dir_or_file) -> xr.Dataset:

@@ -254,7 +254,9 @@ def find_sweeps(
             label = direction if seen[direction] == 1 else f"{direction} {seen[direction]}"
             picked = rows[members]
             picked = picked[np.lexsort((picked, spin[picked]))]
-            arrays = {c: frame.loc[picked, c].to_numpy() for c in [*numeric, "spin_point"]}
+            # One selection for the leg, then its columns (a .loc per column costs seconds).
+            block = frame.loc[picked, [*numeric, "spin_point"]]
+            arrays = {c: block[c].to_numpy() for c in block.columns}
             sweeps.append(
                 Sweep(
                     key=f"{config} | {where} | {label}",
