@@ -305,6 +305,38 @@ def _run_report(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# export
+
+
+def _add_export(subparsers) -> None:
+    p = subparsers.add_parser(
+        "export",
+        help="write the results of an output folder as a spreadsheet",
+        description="Write the results of an output folder as an Excel workbook: a results "
+        "sheet (results.csv's names, their units in the row below, flagged runs filled in "
+        "colour), the uncertainty budgets with readable input names and units, the failures, "
+        "and the provenance on a sheet of its own.",
+        epilog="example:\n  tunnelred export out --xlsx out/results.xlsx",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("results", type=Path, help="the output folder of 'tunnelred reduce'")
+    p.add_argument("--xlsx", type=Path, required=True, metavar="FILE",
+                   help="the workbook to write (.xlsx)")  # fmt: skip
+    p.set_defaults(run=_run_export)
+
+
+def _run_export(args) -> int:
+    from tunnelred.products.spreadsheet import write_xlsx
+
+    if not args.results.is_dir():
+        return _fail_usage(f"{args.results}: no such folder")
+    if args.xlsx.suffix.lower() != ".xlsx":
+        return _fail_usage(f"{args.xlsx}: the workbook's name must end in .xlsx")
+    print(f"workbook written to {write_xlsx(args.results, args.xlsx)}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
 # compare
 
 
@@ -439,6 +471,7 @@ _SUBCOMMANDS = (
     _add_check,
     _add_reduce,
     _add_report,
+    _add_export,
     _add_compare,
     _add_watch,
     _add_demo,
