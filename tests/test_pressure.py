@@ -28,6 +28,7 @@ from tunnelred.physics.pressure import (
     merge_indexed,
     pressure_coefficient,
     tap_azimuth,
+    tap_azimuths,
 )
 from tunnelred.physics.theory import cp_surface
 
@@ -291,6 +292,38 @@ def test_bin_cp_counts_revolutions_from_theta():
         assert bin_cp(theta, cp).u_mean == pytest.approx(known.u_mean, abs=1e-14)
     backwards = bin_cp(-cumulative % 360.0, cp, revolution=-cumulative // 360.0)
     assert bin_cp(-cumulative % 360.0, cp).u_mean == pytest.approx(backwards.u_mean, abs=1e-14)
+
+
+def test_bin_cp_pass_that_steps_back_is_one_pass():
+    # Within revolution 0 the azimuth steps back across the 90° edge (80, 95, 85): the two bin-0
+    # samples are one pass (one revolution of one tap), mean 0.5, as GUM §4.2.3 on the pass
+    # means needs; revolution 1 gives bin 0 a second pass of 1.0 → u = |0.5 - 1.0| / 2.
+    theta = np.array([80.0, 95.0, 85.0, 10.0, 100.0])
+    cp = np.array([0.4, -1.0, 0.6, 1.0, -1.2])
+    b = bin_cp(theta, cp, bins=4, revolution=[0, 0, 0, 1, 1])
+    assert b.u_mean[0] == pytest.approx(np.std([0.5, 1.0], ddof=1) / np.sqrt(2), abs=1e-15)
+    assert b.u_mean[1] == pytest.approx(np.std([-1.0, -1.2], ddof=1) / np.sqrt(2), abs=1e-15)
+
+
+@pytest.mark.parametrize("omega", [1000.0, -700.0])
+def test_tap_azimuths_from_one_encoder_unwrap(omega):
+    # Every tap's azimuth is tap_azimuth's, bit for bit, and its turn count gives the same
+    # binned Cp as unwrapping each tap's azimuth (bin_cp's default) to 1e-12: 16 taps, 4 ms
+    # tubing, a 1 kHz record of a 1000 rad/s spin (0.36 turn a sample), wrapped encoder.
+    rng = np.random.default_rng(3)
+    t = np.arange(4000) * 1e-3
+    angle = np.mod(np.degrees(omega * t) + rng.normal(0, 0.05, t.size), 360.0)
+    azimuth = np.arange(16) * 22.5 + rng.normal(0, 0.3, 16)
+    delay = rng.uniform(3.5e-3, 4.5e-3, 16)
+    theta, turns = tap_azimuths(angle, azimuth, delay, omega)
+    per_tap = np.stack(
+        [tap_azimuth(angle, a, d, omega) for a, d in zip(azimuth, delay, strict=True)]
+    )
+    assert np.array_equal(theta, per_tap)
+    cp = _true_cp(theta) + rng.normal(0, 0.05, theta.shape)
+    given, counted = bin_cp(theta, cp, revolution=turns), bin_cp(theta, cp)
+    for name in ("mean", "std", "u_mean", "count"):
+        np.testing.assert_allclose(getattr(given, name), getattr(counted, name), rtol=1e-12)
 
 
 def test_bin_cp_centres_and_edges():

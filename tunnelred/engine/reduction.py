@@ -254,8 +254,9 @@ def _pressure_inputs(
     t = stream["time"].to_numpy()
     angle = stream["angle"].to_numpy() if "angle" in stream else np.zeros_like(t)
     names = [tap.name for tap in cfg.taps]
-    thetas = np.stack(
-        [pressure.tap_azimuth(angle, tap.azimuth, tap.tubing_delay, omega_mean) for tap in cfg.taps]
+    # One unwrap of the encoder gives every tap's azimuth and revolution count.
+    thetas, turns = pressure.tap_azimuths(
+        angle, [tap.azimuth for tap in cfg.taps], [tap.tubing_delay for tap in cfg.taps], omega_mean
     )
     readings = np.stack([stream[name].to_numpy() for name in names])
     bins = cfg.reduction.cp_bins
@@ -278,7 +279,7 @@ def _pressure_inputs(
     grid = (np.arange(bins) + 0.5) * width
     if spinning:
         measures["revolutions"] = revolutions
-        binned = pressure.bin_cp(thetas[keep], readings[keep], bins=bins)
+        binned = pressure.bin_cp(thetas[keep], readings[keep], bins=bins, revolution=turns[keep])
         # A bin seen on a single pass has no between-revolution scatter to judge it by.
         filled = np.flatnonzero((binned.count > 0) & np.isfinite(binned.u_mean))
         points = _PressurePoints(

@@ -22,7 +22,9 @@ __all__ = [
     "tap_azimuth",
     "centrifugal_head",
     "pressure_coefficient",
+    "tap_azimuths",
     "bin_cp",
+    "azimuth_derivatives",
     "integrate_cp",
     "find_dead_taps",
     "merge_indexed",
@@ -70,6 +72,14 @@ class BinnedCp:
         where fewer than two passes (revolutions × series) contribute. [-]
     thin : ndarray of bool
         Bins with fewer than ``min_count`` samples; their mean is kept but should not be trusted.
+    offset : ndarray
+        Mean azimuth of the bin's samples less the bin centre, d; NaN where the bin is empty.
+        [deg]
+    spread : ndarray
+        Mean squared distance of the bin's samples from the bin centre, s² + d² (s² their
+        variance); NaN where the bin is empty. [deg²]
+    series_count : ndarray of int, shape (series, bins)
+        Samples each series (tap) leaves in each bin. [-]
     """
 
     theta: np.ndarray
@@ -78,6 +88,9 @@ class BinnedCp:
     count: np.ndarray
     u_mean: np.ndarray
     thin: np.ndarray
+    offset: np.ndarray
+    spread: np.ndarray
+    series_count: np.ndarray
 
 
 @arraylike
@@ -209,6 +222,123 @@ def _revolution_index(theta: np.ndarray) -> np.ndarray:
     return np.floor(np.unwrap(theta, period=360.0, axis=-1) / 360.0).astype(np.int64)
 
 
+def tap_azimuths(encoder_angle, tap_azimuth, tubing_delay, omega) -> tuple[np.ndarray, np.ndarray]:
+    """Every tap's azimuth at every sample, and its revolution number, from one encoder record.
+
+    Parameters
+    ----------
+    encoder_angle : array_like, shape (n,)
+        The encoder angle at each sample, in time order, wrapped or cumulative. [deg]
+    tap_azimuth, tubing_delay : array_like, shape (taps,)
+        Each tap's azimuth at encoder zero [deg] and tubing delay [s] (:func:`tap_azimuth`).
+    omega : float
+        Spin rate, signed. [rad/s]
+
+    Returns
+    -------
+    theta : ndarray, shape (taps, n)
+        :func:`tap_azimuth` of each tap, wrapped to [0, 360). [deg]
+    revolution : ndarray of int, shape (taps, n)
+        Whole turns of each tap's unwrapped azimuth (what :func:`bin_cp` counts by default), up
+        to a constant per tap, which does not change the passes. [-]
+
+    Notes
+    -----
+    Every tap turns with the encoder, so one unwrap of the encoder record gives every tap's turn
+    count: a tap's unwrapped azimuth is the unwrapped encoder angle plus a constant, and its
+    turns are the encoder's turns plus the wraps of :func:`tap_azimuth` at that sample (read back
+    from the very values binned, so a sample on a bin edge is counted consistently). Needs less
+    than half a turn between successive samples, as unwrapping always does.
+
+    Examples
+    --------
+    >>> theta, rev = tap_azimuths([300.0, 350.0, 40.0, 90.0], [0.0, 90.0], [0.0, 0.0], 10.0)
+    >>> theta.tolist(), rev.tolist()
+    ([[300.0, 350.0, 40.0, 90.0], [30.0, 80.0, 130.0, 180.0]], [[0, 0, 1, 1], [1, 1, 1, 1]])
+    """
+    angle = np.asarray(encoder_angle, dtype=float)
+    azimuth = np.asarray(tap_azimuth, dtype=float)[:, None]
+    delay = np.asarray(tubing_delay, dtype=float)[:, None]
+    # The same arithmetic as tap_azimuth, so that theta is bit for bit what it gives.
+    raw = angle[None, :] + azimuth - np.degrees(omega * delay)
+    theta = np.mod(raw, 360.0)
+    turns = np.rint((np.unwrap(angle, period=360.0) - angle) / 360.0).astype(np.int64)
+    wraps = np.rint((raw - theta) / 360.0).astype(np.int64)
+    return theta, turns[None, :] + wraps
+
+
+def _pass_index(series: np.ndarray, revolution: np.ndarray, b: np.ndarray, bins: int):
+    """(pass of each sample, bin of each pass): a pass is one series' stay in one bin per turn.
+
+    Samples are in time order within each series. When each series' turn-and-bin key moves one
+    way only (the azimuth never steps back across a bin edge) every pass is one stretch of
+    consecutive samples, numbered in one scan; otherwise np.unique groups them.
+    """
+    key = revolution * bins + b
+    step = np.diff(key)
+    same_series = series[1:] == series[:-1]
+    monotone = not (np.any(step[same_series] > 0) and np.any(step[same_series] < 0))
+    if monotone:
+        starts = np.concatenate(([True], (step != 0) | ~same_series))
+        which = np.cumsum(starts) - 1
+        return which, b[starts]
+    revolution = revolution - revolution.min()
+    turns = int(revolution.max()) + 1
+    passes, which = np.unique((series * turns + revolution) * bins + b, return_inverse=True)
+    return which.reshape(-1), passes % bins
+
+
+def azimuth_derivatives(theta, values) -> tuple[np.ndarray, np.ndarray]:
+    """First and second derivative of a periodic curve known at sorted distinct azimuths.
+
+    Parameters
+    ----------
+    theta : array_like, shape (n,)
+        Distinct azimuths in [0, 360), increasing. [deg]
+    values : array_like, shape (n,)
+        The curve there (NaN-free). [any unit]
+
+    Returns
+    -------
+    slope, curvature : ndarray, shape (n,)
+        Three-point finite differences on the periodic, possibly uneven grid. [unit/deg],
+        [unit/deg²]
+
+    Notes
+    -----
+    With spacings h₋ and h₊ either side of a point, f' ≈ (h₋² f₊ − h₊² f₋ + (h₊² − h₋²) f) /
+    (h₋ h₊ (h₋ + h₊)) and f'' ≈ 2 (h₋ f₊ + h₊ f₋ − (h₋ + h₊) f) / (h₋ h₊ (h₋ + h₊)), the
+    derivatives of the parabola through the three points [1]_; on an even grid they are the
+    central differences, second-order accurate. Used for the sensitivity of a binned Cp to an
+    azimuth error and for the bins' offset correction, where a few per cent of the slope is
+    enough.
+
+    References
+    ----------
+    .. [1] B. Fornberg, "Generation of finite difference formulas on arbitrarily spaced grids",
+       Math. Comp. 51 (1988) 699–706.
+
+    Examples
+    --------
+    >>> theta = np.arange(0.0, 360.0, 5.0)
+    >>> slope, curv = azimuth_derivatives(theta, np.sin(np.radians(theta)))
+    >>> round(float(slope[0]) * 180 / np.pi, 4), round(float(curv[18]) * (180 / np.pi) ** 2, 3)
+    (0.9987, -0.999)
+    """
+    theta = np.asarray(theta, dtype=float)
+    f = np.asarray(values, dtype=float)
+    if theta.size < 3:
+        return np.zeros_like(f), np.zeros_like(f)
+    ahead = np.roll(f, -1)
+    behind = np.roll(f, 1)
+    h_plus = np.mod(np.roll(theta, -1) - theta, 360.0)
+    h_minus = np.mod(theta - np.roll(theta, 1), 360.0)
+    scale = h_minus * h_plus * (h_minus + h_plus)
+    slope = (h_minus**2 * ahead - h_plus**2 * behind + (h_plus**2 - h_minus**2) * f) / scale
+    curvature = 2.0 * (h_minus * ahead + h_plus * behind - (h_minus + h_plus) * f) / scale
+    return slope, curvature
+
+
 def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
     """Bin a rotating tap's Cp record by azimuth.
 
@@ -269,14 +399,17 @@ def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
         revolution = _revolution_index(theta)
     revolution = np.broadcast_to(np.asarray(revolution, dtype=np.int64), theta.shape)
     n = theta.shape[-1] if theta.ndim else 1
-    series = np.broadcast_to(
-        np.arange(theta.size // n).reshape(theta.shape[:-1] + (1,)), theta.shape
-    )
+    n_series = theta.size // n if n else 0
+    series = np.broadcast_to(np.arange(n_series).reshape(theta.shape[:-1] + (1,)), theta.shape)
     keep = np.isfinite(theta) & np.isfinite(cp)
-    theta, cp, revolution, series = theta[keep], cp[keep], revolution[keep], series[keep]
+    if keep.all():  # flat views, no copies
+        theta, cp, revolution, series = (a.reshape(-1) for a in (theta, cp, revolution, series))
+    else:
+        theta, cp, revolution, series = theta[keep], cp[keep], revolution[keep], series[keep]
 
     width = 360.0 / bins
-    b = np.minimum((np.mod(theta, 360.0) / width).astype(np.int64), bins - 1)
+    wrapped = np.mod(theta, 360.0)
+    b = np.minimum((wrapped / width).astype(np.int64), bins - 1)
     count = np.bincount(b, minlength=bins)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = np.bincount(b, weights=cp, minlength=bins) / count
@@ -284,14 +417,18 @@ def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
         # mean is large against the scatter.
         squares = np.bincount(b, weights=(cp - mean[b]) ** 2, minlength=bins)
         std = np.sqrt(squares / (count - 1))
+        from_centre = wrapped - (b + 0.5) * width
+        offset = np.bincount(b, weights=from_centre, minlength=bins) / count
+        spread = np.bincount(b, weights=from_centre**2, minlength=bins) / count
     std[count < 2] = np.nan
+    series_count = np.bincount(series * bins + b, minlength=max(n_series, 1) * bins)
+    series_count = series_count.reshape(-1, bins)[: max(n_series, 1)]
 
-    revolution = revolution - (revolution.min() if revolution.size else 0)
-    turns = int(revolution.max()) + 1 if revolution.size else 1
-    pass_key = (series * turns + revolution) * bins + b
-    passes, which = np.unique(pass_key, return_inverse=True)
+    if cp.size:
+        which, pass_bin = _pass_index(series, revolution, b, bins)
+    else:
+        which, pass_bin = np.zeros(0, np.int64), np.zeros(0, np.int64)
     pass_mean = np.bincount(which, weights=cp) / np.bincount(which)
-    pass_bin = passes % bins
     n_pass = np.bincount(pass_bin, minlength=bins)
     with np.errstate(invalid="ignore", divide="ignore"):
         centre = np.bincount(pass_bin, weights=pass_mean, minlength=bins) / n_pass
@@ -306,6 +443,9 @@ def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
         count=count,
         u_mean=u_mean,
         thin=count < min_count,
+        offset=offset,
+        spread=spread,
+        series_count=series_count,
     )
 
 
