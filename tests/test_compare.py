@@ -121,16 +121,17 @@ def test_single_leg_and_groups_by_config_speed_and_re():
 def test_band_formula_against_uncertainties_package():
     # One grid point between two runs whose α and CL are correlated (r = 0.6, −0.3): the linear
     # interpolation at fixed α propagated by the `uncertainties` package (exact first-order
-    # derivatives, JCGM 100 §5.2 law of propagation) must match on_grid's band; both are first
+    # derivatives, JCGM 100 §5.2 law of propagation) must match on_grid's band less its
+    # interpolation term (a third run at 600 rpm lets the curvature be stated); both are first
     # order in the same model, so they agree to rounding → rtol 1e-10.
-    df = sweep_frame(spins=[200, 400], u_alpha=0.01, u_CL=0.05, curve=lambda a: -5.0 * a**0.8)
-    df["u_alpha"] = [0.01, 0.015]
-    df["u_CL"] = [0.05, 0.04]
-    df["corr_CL_alpha"] = [0.6, -0.3]
+    df = sweep_frame(spins=[200, 400, 600], u_alpha=0.01, u_CL=0.05, curve=lambda a: -5.0 * a**0.8)
+    df["u_alpha"] = [0.01, 0.015, 0.01]
+    df["u_CL"] = [0.05, 0.04, 0.05]
+    df["corr_CL_alpha"] = [0.6, -0.3, 0.0]
     sweep = compare.find_sweeps(df)[0]
     g = 0.25
     variables = []
-    for _, row in df.iterrows():
+    for _, row in df.iloc[:2].iterrows():
         cov = np.array(
             [
                 [row.u_alpha**2, row.corr_CL_alpha * row.u_alpha * row.u_CL],
@@ -142,7 +143,36 @@ def test_band_formula_against_uncertainties_package():
     reference = c1 + (c2 - c1) * (g - a1) / (a2 - a1)
     curve = compare.on_grid(sweep, "CL", [g])
     assert curve.value[0] == pytest.approx(reference.nominal_value, rel=1e-12)
-    assert curve.u[0] == pytest.approx(reference.std_dev, rel=1e-10)
+    assert curve.u_interp[0] > 0
+    runs_only = math.sqrt(curve.u[0] ** 2 - curve.u_interp[0] ** 2)
+    assert runs_only == pytest.approx(reference.std_dev, rel=1e-10)
+
+
+def test_interpolation_error_of_a_parabola_is_stated_exactly():
+    # C = 3α² through points 0, 0.25, 0.5: the remainder of linear interpolation is
+    # ½ C'' (g − α₁)(α₂ − g) with C'' = 6 everywhere (R. L. Burden, J. D. Faires, Numerical
+    # Analysis, 9th ed., Theorem 3.3), and the second divided difference of a parabola is exact
+    # (ibid. §3.3), so u_interp equals the true error of the line at every grid point.
+    df = sweep_frame(spins=[0, 300, 600], u_alpha=0.0, curve=lambda a: 3.0 * a**2)
+    curve = compare.on_grid(compare.find_sweeps(df)[0], "CL", [0.1, 0.2, 0.25, 0.4])
+    error = curve.value - 3.0 * curve.alpha**2
+    np.testing.assert_allclose(curve.u_interp, np.abs(error), rtol=1e-12)
+    assert curve.u_interp[2] == 0.0  # on a measured point
+    # A sweep of two points cannot state its curvature: it covers its two points only.
+    two = compare.find_sweeps(sweep_frame(spins=[0, 600], u_alpha=0.0))[0]
+    assert compare.on_grid(two, "CL", [0.0, 0.25, 0.5]).covered.tolist() == [True, False, True]
+
+
+def test_no_grid_point_across_a_gap_wider_than_stated():
+    # Points 0, 0.1, 0.2, 0.3 and then 0.5: median step 0.1, so the default limit is 1.5 × 0.1;
+    # the last step (0.2) is a gap, and only its two ends are covered.
+    df = sweep_frame(spins=[0, 120, 240, 360, 600], u_alpha=0.0)
+    sweep = compare.find_sweeps(df)[0]
+    assert compare.gap_limit([np.array([0.0, 0.1, 0.2, 0.3, 0.5])]) == pytest.approx(0.15)
+    curve = compare.on_grid(sweep, "CL", [0.05, 0.3, 0.4, 0.5])
+    assert curve.covered.tolist() == [True, True, False, True]
+    # A stated max_gap overrides the default.
+    assert compare.on_grid(sweep, "CL", [0.4], max_gap=0.25).covered.tolist() == [True]
 
 
 def test_interpolation_never_extrapolates():
@@ -257,7 +287,7 @@ def test_hysteresis_cancels_the_shared_turning_point():
     df = sweep_frame(spins=[0, 200, 400, 600, 400, 200, 0])
     df.loc[4:, "CL"] += 0.2
     up, down = compare.find_sweeps(df)
-    d = compare.hysteresis(up, down, "CL", grid=[0.0, 1 / 3, 0.5])
+    d = compare.hysteresis(up, down, "CL", method="grid", grid=[0.0, 1 / 3, 0.5])
     cl, alpha = df.CL.to_numpy(), df.alpha.to_numpy()
     s_up = (cl[3] - cl[2]) / (alpha[3] - alpha[2])
     s_down = (cl[3] - cl[4]) / (alpha[3] - alpha[4])
@@ -267,7 +297,30 @@ def test_hysteresis_cancels_the_shared_turning_point():
     assert d.significant[:2].all()  # 0.2 against 2 u(Δ) ≈ 2 × √2 × 0.02 = 0.057
     # With α known exactly the shared run contributes nothing at all.
     exact = compare.find_sweeps(df.assign(u_alpha=0.0))
-    assert compare.hysteresis(*exact, "CL", grid=[0.5]).u[0] == 0.0
+    assert compare.hysteresis(*exact, "CL", method="grid", grid=[0.5]).u[0] == 0.0
+    # Paired at measured spin ratios, the shared turning point pairs with itself and is left
+    # out; the other points pair one to one and show the loop.
+    paired = compare.hysteresis(up, down, "CL")
+    assert paired.method == "paired" and paired.alpha.tolist() == pytest.approx([0, 1 / 6, 1 / 3])
+    assert paired.delta == pytest.approx([-0.2, -0.2, -0.2], abs=1e-12)
+
+
+def test_pairing_within_a_tolerance_moves_each_side_along_its_slope():
+    # A: 0, 0.25, 0.5; B measured at 0.26 and 0.52 on the same straight line CL = −4α (no
+    # difference in truth). Mutual nearest points within 0.05 pair; each side moves to the
+    # pair's mean α along its slope, so Δ is 0 to rounding (a line has no curvature) although
+    # the raw CL differ by 4 × 0.01 and 4 × 0.02. With tolerance 0.015 only the first pairs.
+    a = sweep_frame("A", spins=[0, 300, 600], u_alpha=0.0, curve=lambda x: -4.0 * x)
+    b = sweep_frame("B", spins=[0, 300, 600], u_alpha=0.0, t0="2031-05-02T08:00:00")
+    b["alpha"] = [0.0, 0.26, 0.52]
+    b["CL"] = -4.0 * b["alpha"]
+    sa, sb = compare.find_sweeps(pd.concat([a, b], ignore_index=True))
+    d = compare.paired_difference(sa, sb, "CL")
+    assert d.alpha_a.tolist() == [0.0, 0.25, 0.5] and d.alpha_b.tolist() == [0.0, 0.26, 0.52]
+    assert d.delta == pytest.approx([0.0, 0.0, 0.0], abs=1e-12)
+    assert not d.significant.any()
+    narrow = compare.paired_difference(sa, sb, "CL", tolerance=0.015)
+    assert narrow.alpha_b.tolist() == [0.0, 0.26]
 
 
 # --- repeatability ----------------------------------------------------------------------------

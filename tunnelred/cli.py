@@ -344,11 +344,14 @@ def _add_compare(subparsers) -> None:
     p = subparsers.add_parser(
         "compare",
         help="compare sweeps and configurations with their uncertainties",
-        description="Group reduced runs into sweeps (configuration and speed, up and down legs), "
-        "interpolate them onto a common spin-ratio grid with uncertainty bands, and write the "
-        "differences between configurations (or speeds, or Reynolds-number bands) with their "
-        "significance at k = 2, the up/down hysteresis, repeatability and each sweep's "
-        "characteristic figures (lift slope, maximum |CL|, minimum CD, maximum |L/D|).",
+        description="Group reduced runs into sweeps (configuration and speed, up and down legs) "
+        "and write the differences between configurations (or speeds, or Reynolds-number bands) "
+        "with their significance at k = 2, the up/down hysteresis, repeatability and each "
+        "sweep's characteristic figures (lift slope, maximum |CL|, minimum CD, maximum |L/D|). "
+        "Differences are taken at the spin ratios both sweeps measured, paired within a "
+        "tolerance (default), or on an interpolated spin-ratio grid with the interpolation "
+        "error in the uncertainty and no step wider than --max-gap bridged. Flagged runs are "
+        "left out of the differences unless --include-flagged.",
         epilog="examples:\n  tunnelred compare out -o out/comparison\n"
         "  tunnelred compare entry1/out entry2/out --by re -o comparison\n",
         formatter_class=_HelpFormatter,
@@ -366,17 +369,55 @@ def _add_compare(subparsers) -> None:
         metavar="C",
         help="also find the spin ratio where the power coefficient crosses C",
     )
+    p.add_argument(
+        "--method",
+        choices=("paired", "grid"),
+        default="paired",
+        help="differences at measured spin ratios paired within --pair-tolerance (default), "
+        "or on an interpolated spin-ratio grid",
+    )
+    p.add_argument(
+        "--pair-tolerance",
+        type=float,
+        metavar="DA",
+        help="largest difference of measured spin ratio of two points compared as one "
+        "(default 0.05)",
+    )
+    p.add_argument(
+        "--max-gap",
+        type=float,
+        metavar="DA",
+        help="widest step in spin ratio between measured points that a grid value or a sweep "
+        "line may bridge (default 1.5 times the median step of the finest sweep compared)",
+    )
+    p.add_argument(
+        "--include-flagged",
+        action="store_true",
+        help="use runs that raised a quality flag in the differences",
+    )
     p.add_argument("-o", "--out", type=Path, required=True, help="folder for tables and figures")
     p.set_defaults(run=_run_compare)
 
 
 def _run_compare(args) -> int:
-    from tunnelred.products.compare import run_compare
+    from tunnelred.products.compare import PAIR_TOLERANCE, run_compare
 
     for folder in args.results:
         if not folder.is_dir():
             return _fail_usage(f"{folder}: no such folder")
-    written = run_compare(args.results, by=args.by, dest=args.out, power_level=args.power_level)
+    for option, value in (("--pair-tolerance", args.pair_tolerance), ("--max-gap", args.max_gap)):
+        if value is not None and not value >= 0.0:
+            return _fail_usage(f"{option} takes a spin-ratio step of 0 or more, not {value}")
+    written = run_compare(
+        args.results,
+        by=args.by,
+        dest=args.out,
+        power_level=args.power_level,
+        method=args.method,
+        tolerance=PAIR_TOLERANCE if args.pair_tolerance is None else args.pair_tolerance,
+        max_gap=args.max_gap,
+        include_flagged=args.include_flagged,
+    )
     figures = [name for name in written if name.startswith("figures/")]
     print(f"comparison by {args.by} written to {args.out}:")
     for name, path in written.items():

@@ -164,7 +164,9 @@ def _image_strain(R, h):
     return (R / h) ** 2 * _SUM_ALTERNATING
 
 
-def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> dict:
+def in_tunnel(
+    spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu, *, lift_offset: float = 0.0
+) -> dict:
     """The free-air truth the model experiences in the tunnel, and what the tunnel measures.
 
     Inputs are the tunnel's reference (uncorrected) speed [m/s] and dynamic pressure [Pa], the
@@ -178,7 +180,8 @@ def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> di
     ``−2 (π d²/4) dp/dx`` (volume and added mass of a circle): the empty tunnel's, and that of
     the wake source's images, ``dp/dx = −ρ U_u du/dx``, ``du/dx = (m/π h²) Σ 1/n²``. With lift
     interference on, the images of the bound vortex raise the lift by ``1 + 2σ``. eps depends
-    on D', which depends on eps: the loop iterates to convergence.
+    on D', which depends on eps: the loop iterates to convergence. ``lift_offset`` is added to
+    the free-air CL (a planted hysteresis: :attr:`SynthSpec.down_sweep_lift_offset`).
     """
     U_u, q_u, omega, rho, mu = (np.asarray(x, dtype=float) for x in (U_u, q_u, omega, rho, mu))
     d, h = spec.diameter, spec.tunnel_height
@@ -210,6 +213,7 @@ def in_tunnel(spec: SynthSpec, end_plates: bool, U_u, q_u, omega, rho, mu) -> di
     alpha_c = omega * R / U_c
     Re_c = rho * U_c * d / mu
     cl, cd, cm, cl_p, cd_p = _truth_coefficients(alpha_c, Re_c, end_plates)
+    cl = cl + lift_offset
     q_c = 0.5 * rho * U_c * U_c
     drag = (cd * q_c * d + empty_buoyancy) / (1.0 - wake_buoyancy_per_drag)
     wake_gradient = -drag * _SUM_INV_SQUARES / (np.pi * h * h) if spec.buoyancy else 0.0

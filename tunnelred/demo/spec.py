@@ -285,6 +285,10 @@ class SynthSpec:
         (instrument, calibration reference, date) written into [instruments.NAME].
     surface, photo : str
         [model] surface finish and photograph path (a drawing written beside campaign.toml).
+    down_sweep_lift_offset : float
+        A hysteresis planted on purpose: ΔCL added to the true free-air lift coefficient of
+        every down-sweep run (not the repeats), so that up minus down is −offset at every spin
+        ratio; 0 (the demo) plants none. [-]
     """
 
     seed: int = 2026
@@ -414,6 +418,7 @@ class SynthSpec:
     )
     surface: str = "anodised aluminium, polished, Ra about 0.4 µm (invented)"
     photo: str = "model.png"  # a drawing of the model written beside campaign.toml
+    down_sweep_lift_offset: float = 0.0
 
 
 # ---------------------------------------------------------------------------------------------
@@ -433,6 +438,7 @@ class ScheduledRun:
     pressure: bool = False
     fault: Fault | None = None
     notes: str = ""
+    leg: str = ""  # "up", "down" or "repeat" for a data run
     zero: tuple[str, ...] = ()
     tare: tuple[str, ...] = ()
 
@@ -499,7 +505,7 @@ def schedule(spec: SynthSpec) -> list[ScheduledRun]:
                 text += f", nominal alpha {alpha:g}"
                 if fault is not None and fault.kind == "zero_shift":
                     zero()
-                first = add("data", fault=fault, notes=text, **common)
+                first = add("data", fault=fault, notes=text, leg=leg, **common)
                 if fault is not None and fault.kind == "few_revolutions":
                     if fault.size >= first.duration:
                         raise ValueError(f"a few_revolutions fault shortens the record: {fault}")
@@ -507,7 +513,7 @@ def schedule(spec: SynthSpec) -> list[ScheduledRun]:
                 if fault is not None:
                     if fault.kind == "zero_shift":
                         zero()
-                    add("data", notes=f"{text}, retake of {first.run}", **common)
+                    add("data", notes=f"{text}, retake of {first.run}", leg=leg, **common)
             zero()
     if faults:
         raise ValueError(f"faults match no up-sweep run: {faults}")

@@ -148,7 +148,9 @@ class _Writer:
         q_m = float(np.mean(q[inside]))
         omega_m = float(np.mean(omega[inside]))
         U_m = math.sqrt(2.0 * q_m / rho_m)
-        state = in_tunnel(s, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m)
+        # A planted hysteresis offsets the down sweep's true lift (0 in the demo).
+        offset = s.down_sweep_lift_offset if r.leg == "down" else 0.0
+        state = in_tunnel(s, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m, lift_offset=offset)
 
         # Tunnel log.
         tt = stream_times(rng, s.tunnel_rate, r.duration)
@@ -172,7 +174,7 @@ class _Writer:
         t_b = stream_times(rng, s.balance_rate, r.duration)
         U_b, q_b, w_b = (np.interp(t_b, tb, x) for x in (U, q, omega))
         rho_b, mu_b = np.interp(t_b, tb, rho), np.interp(t_b, tb, mu)
-        sample = in_tunnel(s, cfg.end_plates, U_b, q_b, w_b, rho_b, mu_b)
+        sample = in_tunnel(s, cfg.end_plates, U_b, q_b, w_b, rho_b, mu_b, lift_offset=offset)
         area = s.diameter * s.span
         f_shed = s.shedding_strouhal * U_mean / s.diameter
         wander = np.cumsum(rng.standard_normal(t_b.size)) * math.sqrt(

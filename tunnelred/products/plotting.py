@@ -340,15 +340,19 @@ def sweep_legs(results) -> list[tuple[str, np.ndarray]]:
         (a retake of one or two set points is not a curve to follow). Empty when the results
         lack the set points that define a sweep.
     """
+    return [(s.leg, positions) for s, positions in _joined_sweeps(results_dataset(results))]
+
+
+def _joined_sweeps(ds: xr.Dataset) -> list:
+    """(Sweep, positions along ``run``) of each leg with at least three set spin rates."""
     # compare imports this module's style at import time; it is needed only when drawing.
     from tunnelred.products import compare
 
-    ds = results_dataset(results)
     if "config" not in ds or "alpha" not in ds:
         return []
     index = {str(r): i for i, r in enumerate(ds["run"].values)}
     return [
-        (s.leg, np.array([index[r] for r in s.runs], dtype=int))
+        (s, np.array([index[r] for r in s.runs], dtype=int))
         for s in compare.find_sweeps(ds)
         # Retakes at one or two set points make a "leg" too short to follow as a curve.
         if np.unique(s.arrays["spin_point"]).size >= _LEAST_JOINED
@@ -367,8 +371,11 @@ def _draw_runs(
     """Each group's runs with k = 2 bars; flagged runs ringed; each sweep leg joined by a line.
 
     A leg is joined in order of α; flagged runs stay out of the line (they are drawn and ringed,
-    so the curve shows the runs that passed their checks). Increasing-spin and single legs are
-    solid, decreasing-spin legs dotted, both in the group's colour.
+    so the curve shows the runs that passed their checks), and the line breaks at every step in
+    α wider than the campaign's gap limit (:func:`tunnelred.products.compare.gap_limit` of the
+    sweep legs: no straight line is drawn where no run was measured). Increasing-spin and single
+    legs are solid, decreasing-spin legs dotted, both in the group's colour; each line has the
+    gid ``"sweep"``.
     """
     x, ux = _values(ds, xname), _values(ds, f"u_{xname}")
     y, uy = _values(ds, yname), _values(ds, f"u_{yname}")
@@ -380,23 +387,32 @@ def _draw_runs(
         owner[idx] = g
     directions = set()
     if join:
-        for leg, positions in sweep_legs(ds):
+        # compare imports this module's style at import time; it is needed only when drawing.
+        from tunnelred.products.compare.sweeps import gap_limit, point_alpha, split_at_gaps
+
+        legs = _joined_sweeps(ds)
+        limit = gap_limit([point_alpha(sweep) for sweep, _ in legs])
+        for sweep, positions in legs:
+            leg = sweep.leg
             for _, idx, style in groups:
                 part = positions[np.isin(positions, idx) & ~flagged[positions]]
-                part = part[np.isfinite(x[part]) & np.isfinite(y[part])]
-                if part.size < 2:
-                    continue
+                part = part[np.isfinite(x[part]) & np.isfinite(y[part]) & np.isfinite(alpha[part])]
                 part = part[np.argsort(alpha[part], kind="stable")]
                 down = leg == "down"
-                directions.add("down" if down else "up")
-                ax.plot(
-                    x[part],
-                    y[part],
-                    color=style.color,
-                    linestyle=_DOWN_DASH if down else "-",
-                    linewidth=0.9,
-                    zorder=2,
-                )
+                # A line never bridges a step in α wider than the data support.
+                for piece in split_at_gaps(alpha[part], limit):
+                    if piece.size < 2:
+                        continue
+                    directions.add("down" if down else "up")
+                    ax.plot(
+                        x[part[piece]],
+                        y[part[piece]],
+                        color=style.color,
+                        linestyle=_DOWN_DASH if down else "-",
+                        linewidth=0.9,
+                        zorder=2,
+                        gid="sweep",
+                    )
     if flagged.any():
         ax.plot(x[flagged], y[flagged], label=FLAGGED_LABEL, zorder=4, **_FLAG_RING)
     # Neutral legend keys for the two kinds of join, only when a campaign has both.

@@ -4,7 +4,9 @@ The package is cut at its seams, in the order of the work:
 
 - :mod:`~tunnelred.products.compare.sweeps`: results in, sweeps (legs) out (:func:`find_sweeps`);
 - :mod:`~tunnelred.products.compare.grid`: curves on an α grid and their differences
-  (:func:`on_grid`, :func:`difference`, :func:`hysteresis`);
+  (:func:`on_grid`, :func:`difference`), interpolation error in u, no gap bridged;
+- :mod:`~tunnelred.products.compare.paired`: differences at measured spin ratios paired within a
+  tolerance (:func:`paired_difference`, :func:`hysteresis`);
 - :mod:`~tunnelred.products.compare.characteristics`: repeatability and characteristic figures;
 - :mod:`~tunnelred.products.compare.tables`: the campaign's comparison tables;
 - :mod:`~tunnelred.products.compare.figures`: figures of sweeps and differences;
@@ -28,23 +30,35 @@ from tunnelred.products.compare.grid import (
     GridCurve,
     alpha_grid,
     difference,
-    hysteresis,
     on_grid,
 )
-from tunnelred.products.compare.sweeps import Sweep, find_sweeps
+from tunnelred.products.compare.paired import (
+    METHODS,
+    PAIR_TOLERANCE,
+    hysteresis,
+    paired_difference,
+    paired_points,
+)
+from tunnelred.products.compare.sweeps import GAP_FACTOR, Sweep, find_sweeps, gap_limit
 from tunnelred.products.compare.tables import comparison_section_data, comparison_table
 from tunnelred.products.plotting import COVERAGE_FACTOR
 
 __all__ = [
     "COVERAGE_FACTOR",
     "COMPARED",
+    "GAP_FACTOR",
+    "METHODS",
+    "PAIR_TOLERANCE",
     "Sweep",
     "GridCurve",
     "Difference",
     "find_sweeps",
+    "gap_limit",
     "alpha_grid",
     "on_grid",
     "difference",
+    "paired_points",
+    "paired_difference",
     "hysteresis",
     "repeatability",
     "characteristics",

@@ -12,8 +12,14 @@ from matplotlib.axes import Axes
 from tunnelred.common.errors import InputError
 from tunnelred.products.compare.characteristics import COMPARED, characteristics_table
 from tunnelred.products.compare.figures import plot_difference, plot_sweeps
-from tunnelred.products.compare.grid import difference
-from tunnelred.products.compare.sweeps import BY, Sweep, find_sweeps, has_coefficient, results_table
+from tunnelred.products.compare.paired import PAIR_TOLERANCE, difference_by_method
+from tunnelred.products.compare.sweeps import (
+    BY,
+    Sweep,
+    find_sweeps,
+    has_coefficient,
+    results_table,
+)
 from tunnelred.products.compare.tables import comparison_table
 from tunnelred.products.store import atomic_path, read_results, write_csv
 
@@ -70,6 +76,10 @@ def run_compare(
     dest,
     names: Sequence[str] = COMPARED,
     power_level: float | None = None,
+    method: str = "paired",
+    tolerance: float = PAIR_TOLERANCE,
+    max_gap: float | None = None,
+    include_flagged: bool = False,
 ) -> dict[str, Path]:
     """Compare the runs of one or several results folders and write tables and figures.
 
@@ -85,6 +95,9 @@ def run_compare(
         Coefficients compared.
     power_level : float, optional
         Power coefficient whose crossing α is reported. [-]
+    method, tolerance, max_gap, include_flagged
+        How curve differences are formed (:func:`comparison_table`); ``max_gap`` also breaks
+        the sweep lines of the figures (:func:`plot_sweeps`).
 
     Returns
     -------
@@ -109,7 +122,10 @@ def run_compare(
     table = _combined(folders)
     dest = Path(dest)
     written: dict[str, Path] = {}
-    comparison = comparison_table(table, by=by, names=names, power_level=power_level)
+    options = dict(
+        method=method, tolerance=tolerance, max_gap=max_gap, include_flagged=include_flagged
+    )
+    comparison = comparison_table(table, by=by, names=names, power_level=power_level, **options)
     written["comparison.csv"] = write_csv(comparison, dest / "comparison.csv")
     figures = characteristics_table(table, by=by, power_level=power_level)
     written["characteristics.csv"] = write_csv(figures, dest / "characteristics.csv")
@@ -126,11 +142,12 @@ def run_compare(
         for name in names:
             if any(has_coefficient(s, name) for s in members):
                 rel = f"figures/sweeps_{name}_{_slug(label)}.png"
-                written[rel] = _save(plot_sweeps(members, name), dest / rel)
+                ax = plot_sweeps(members, name, max_gap=max_gap, include_flagged=include_flagged)
+                written[rel] = _save(ax, dest / rel)
     by_key = {s.key: s for s in sweeps}
     pairs = comparison[comparison["alpha"].notna()][["kind", "a", "b", "quantity"]]
     for kind, a, b, name in pairs.drop_duplicates().itertuples(index=False):
-        d = difference(by_key[a], by_key[b], name)
+        d = difference_by_method(by_key[a], by_key[b], name, **options)
         rel = f"figures/delta_{name}_{_slug(a)}_minus_{_slug(b)}.png"
         if kind == "hysteresis":
             rel = f"figures/hysteresis_{name}_{_slug(a)}.png"

@@ -1,32 +1,37 @@
 """Curves on an α grid and their differences, every value a linear combination of run errors.
 
 Coefficients of a sweep are interpolated onto a grid of spin ratio α (:func:`on_grid`), with the
-uncertainty of α carried along the curve; two sweeps on one grid give a :class:`Difference`,
-significant at k = 2 where |Δ| > 2u(Δ).
+uncertainty of α carried along the curve and the interpolation error (from the local curvature)
+in u; no grid point lies between two measured points farther apart than a stated gap. Two sweeps
+on one grid give a :class:`Difference`, significant at k = 2 where |Δ| > 2u(Δ).
 
 Every grid value is kept as a linear combination of the runs' own errors (their sensitivity
 coefficients), so a difference of two curves that share runs — a sweep with itself, or the two
 legs of a sweep at their common turning point — lets the shared errors cancel exactly instead of
-adding them as if independent.
+adding them as if independent. Differences at measured spin ratios, paired within a tolerance,
+are :mod:`tunnelred.products.compare.paired`.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
-from tunnelred.products.compare.sweeps import Sweep
+from tunnelred.products.compare.sweeps import Sweep, gap_limit, point_alpha
 from tunnelred.products.plotting import COVERAGE_FACTOR
 
 __all__ = [
     "Difference",
     "GridCurve",
     "alpha_grid",
+    "curve_difference",
     "difference",
-    "hysteresis",
+    "interpolate",
     "on_grid",
+    "point_runs",
+    "points",
     "run_errors",
 ]
 
@@ -42,17 +47,27 @@ class GridCurve:
     alpha : numpy.ndarray
         The grid. [-]
     value, u : numpy.ndarray
-        Interpolated coefficient and its standard uncertainty (k = 1); NaN where not covered. [-]
+        Interpolated coefficient and its standard uncertainty (k = 1), the interpolation error
+        included; NaN where not covered. [-]
     covered : numpy.ndarray of bool
-        True where the grid point lies inside the sweep's measured α range.
+        True where the grid point lies inside the sweep's measured α range, between measured
+        points no farther apart than the gap allowed (or on a measured point), and the
+        interpolation error can be stated.
     runs : tuple of str
         The sweep's run ids.
     sensitivity : numpy.ndarray, shape (grid, runs, 2)
         ∂value/∂C_i and ∂value/∂α_i of every grid value to every run's coefficient and α.
     run_u : numpy.ndarray, shape (runs, 2)
-        u(C_i) and u(α_i); 0 for runs left out (a NaN value).
+        u(C_i) and u(α_i); 0 for runs left out (a NaN value, or flagged).
     run_r : numpy.ndarray, shape (runs,)
         Correlation coefficient of C_i with α_i.
+    curvature : numpy.ndarray
+        |C''| taken for the segment of each grid point: the larger of the second divided
+        differences at its two ends (NaN where the sweep has fewer than three points). [-]
+    spread : numpy.ndarray
+        ½ |g − α₁| |α₂ − g| of each grid point g in its segment (α₁, α₂); 0 on a measured point.
+    u_interp : numpy.ndarray
+        The interpolation error taken as a standard uncertainty, curvature × spread. [-]
     """
 
     key: str
@@ -65,24 +80,35 @@ class GridCurve:
     sensitivity: np.ndarray
     run_u: np.ndarray
     run_r: np.ndarray
+    curvature: np.ndarray
+    spread: np.ndarray
+    u_interp: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
 class Difference:
-    """Δ = a − b of one coefficient on a common α grid.
+    """Δ = a − b of one coefficient, on a common α grid or at paired measured spin ratios.
 
     Attributes
     ----------
     a, b, name : str
         Keys of the two sweeps and the coefficient.
     alpha : numpy.ndarray
-        The grid. [-]
+        Where Δ is stated: the grid, or the mean α of each pair of measured points. [-]
     delta, u : numpy.ndarray
-        The difference and its standard uncertainty; NaN where either sweep does not cover. [-]
+        The difference and its standard uncertainty; NaN where not covered. [-]
     covered : numpy.ndarray of bool
-        Both sweeps cover the grid point.
+        Both sweeps cover the point.
     significant : numpy.ndarray of bool
         Covered and |Δ| > k u(Δ).
+    alpha_a, alpha_b : numpy.ndarray
+        The measured α of the paired points of a and b (``method="paired"``); the grid itself
+        for ``"grid"``. [-]
+    u_interp : numpy.ndarray
+        The part of u(Δ) from interpolation (both curves' curvature terms in quadrature). [-]
+    method : str
+        ``"grid"`` (:func:`difference`) or ``"paired"``
+        (:func:`tunnelred.products.compare.paired.paired_difference`).
     k : float
         Coverage factor of the test (2).
     """
@@ -95,6 +121,10 @@ class Difference:
     u: np.ndarray
     covered: np.ndarray
     significant: np.ndarray
+    alpha_a: np.ndarray
+    alpha_b: np.ndarray
+    u_interp: np.ndarray
+    method: str = "grid"
     k: float = COVERAGE_FACTOR
 
 
@@ -102,8 +132,11 @@ class Difference:
 # Curves on a grid, differences
 
 
-def run_errors(sweep: Sweep, name: str):
-    """C, u(C), α, u(α), r of every run of the sweep, and which runs are usable for ``name``."""
+def run_errors(sweep: Sweep, name: str, *, include_flagged: bool = True):
+    """C, u(C), α, u(α), r of every run of the sweep, and which runs are usable for ``name``.
+
+    With ``include_flagged=False`` a run that raised a quality flag is not usable.
+    """
     arrays = sweep.arrays
     if name not in arrays or f"u_{name}" not in arrays:
         raise KeyError(f"the results have no {name!r} with its u_{name}")
@@ -116,6 +149,8 @@ def run_errors(sweep: Sweep, name: str):
     alpha, u_alpha = get("alpha"), get("u_alpha")
     r = np.nan_to_num(get(f"corr_{name}_alpha"), nan=0.0)
     usable = np.isfinite(value) & np.isfinite(u_value) & np.isfinite(alpha) & np.isfinite(u_alpha)
+    if not include_flagged and "flagged" in arrays:
+        usable &= ~np.asarray(arrays["flagged"], dtype=bool)
     zero = ~usable
     return (
         np.where(zero, 0.0, value),
@@ -127,7 +162,7 @@ def run_errors(sweep: Sweep, name: str):
     )
 
 
-def _points(sweep: Sweep, usable: np.ndarray) -> np.ndarray:
+def points(sweep: Sweep, usable: np.ndarray) -> np.ndarray:
     """Averaging matrix P (points × runs): repeats at one set spin rate make one point."""
     spin = np.asarray(sweep.arrays["spin_point"], dtype=float)
     levels, inverse = np.unique(spin[usable], return_inverse=True)
@@ -156,7 +191,12 @@ def _nice_step(step: float) -> float:
     return (5.0 if mantissa >= 5.0 else 2.0 if mantissa >= 2.0 else 1.0) * 10.0**exponent
 
 
-def alpha_grid(*sweeps: Sweep, name: str | None = None, step: float | None = None) -> np.ndarray:
+def alpha_grid(
+    *sweeps: Sweep,
+    name: str | None = None,
+    step: float | None = None,
+    include_flagged: bool = True,
+) -> np.ndarray:
     """A common α grid over the overlap of the sweeps' measured α ranges.
 
     Parameters
@@ -167,6 +207,8 @@ def alpha_grid(*sweeps: Sweep, name: str | None = None, step: float | None = Non
     step : float, optional
         Grid step; default the median spacing of the most finely spaced sweep, rounded down to
         1, 2 or 5 × 10ⁿ. [-]
+    include_flagged : bool
+        Count flagged runs among the measured points.
 
     Returns
     -------
@@ -187,12 +229,12 @@ def alpha_grid(*sweeps: Sweep, name: str | None = None, step: float | None = Non
         alpha = np.asarray(sweep.arrays.get("alpha", np.full(len(sweep.runs), np.nan)), float)
         usable = np.isfinite(alpha)
         if name is not None:
-            usable &= run_errors(sweep, name)[-1]
-        points = np.sort(_points(sweep, usable) @ np.where(usable, alpha, 0.0))
-        if points.size < 2:
+            usable &= run_errors(sweep, name, include_flagged=include_flagged)[-1]
+        measured = np.sort(points(sweep, usable) @ np.where(usable, alpha, 0.0))
+        if measured.size < 2:
             return np.array([])
-        low, high = max(low, points[0]), min(high, points[-1])
-        spacing = min(spacing, float(np.median(np.diff(points))))
+        low, high = max(low, measured[0]), min(high, measured[-1])
+        spacing = min(spacing, float(np.median(np.diff(measured))))
     if not high >= low or not spacing > 0:
         return np.array([])
     step = _nice_step(spacing) if step is None else float(step)
@@ -202,7 +244,106 @@ def alpha_grid(*sweeps: Sweep, name: str | None = None, step: float | None = Non
     return grid[(grid >= low) & (grid <= high)]
 
 
-def on_grid(sweep: Sweep, name: str, grid) -> GridCurve:
+def point_runs(sweep: Sweep, P: np.ndarray) -> list[frozenset[str]]:
+    """The run ids averaged into each point (row) of the averaging matrix ``P``."""
+    return [frozenset(sweep.runs[j] for j in np.flatnonzero(row)) for row in P]
+
+
+def _curvature_at_points(pa: np.ndarray, pv: np.ndarray) -> np.ndarray:
+    """|C''| at each inner point from the second divided difference; NaN at the two ends.
+
+    C'' ≈ 2 C[α₀, α₁, α₂] = 2 ((C₂ − C₁)/h₂ − (C₁ − C₀)/h₁)/(h₁ + h₂) (Newton's divided
+    differences, exact for a parabola through the three points).
+    """
+    kappa = np.full(pa.size, np.nan)
+    if pa.size >= 3:
+        h1, h2 = np.diff(pa)[:-1], np.diff(pa)[1:]
+        slopes = np.diff(pv) / np.diff(pa)
+        kappa[1:-1] = np.abs(2.0 * np.diff(slopes) / (h1 + h2))
+    return kappa
+
+
+def interpolate(
+    sweep: Sweep,
+    name: str,
+    grid,
+    *,
+    max_gap: float | None = None,
+    reach: float = 0.0,
+    include_flagged: bool = False,
+) -> GridCurve:
+    """The sweep's piecewise-linear curve at ``grid``, covering what the data support.
+
+    A grid point is covered when it lies in the measured α range widened by ``reach`` on both
+    sides (beyond the ends the end segment is extended), and either its segment is no wider
+    than ``max_gap`` or it lies within ``reach`` of a measured point, and the interpolation error
+    can be stated (it is 0 on a measured point). Where it cannot (a sweep of two points), the
+    value is given with ``u_interp`` and ``u`` NaN: :func:`on_grid` leaves such points
+    uncovered, :func:`curve_difference` may take the curvature from the other curve.
+    """
+    grid = np.atleast_1d(np.asarray(grid, dtype=float))
+    value, u_value, alpha, u_alpha, r, usable = run_errors(
+        sweep, name, include_flagged=include_flagged
+    )
+    n = len(sweep.runs)
+    sensitivity = np.zeros((grid.size, n, 2))
+    curve, u = np.full(grid.size, np.nan), np.full(grid.size, np.nan)
+    curvature, spread = np.full(grid.size, np.nan), np.full(grid.size, np.nan)
+    u_interp = np.full(grid.size, np.nan)
+    P = points(sweep, usable)
+    covered = np.zeros(grid.size, dtype=bool)
+    if P.shape[0] >= 2:
+        point_alpha, point_value = P @ alpha, P @ value
+        order = np.argsort(point_alpha)
+        pa, pv, Ps = point_alpha[order], point_value[order], P[order]
+        finite = np.isfinite(grid)
+        g_all = np.where(finite, grid, pa[0])
+        i = np.clip(np.searchsorted(pa, g_all, side="right") - 1, 0, pa.size - 2)
+        span = pa[i + 1] - pa[i]
+        limit = gap_limit([pa], max_gap)
+        nearest = np.min(np.abs(g_all[:, None] - pa[None, :]), axis=1)
+        kappa_points = _curvature_at_points(pa, pv)
+        # The larger curvature of the segment's two ends (fmax: NaN only where both are).
+        kappa = np.fmax(kappa_points[i], kappa_points[i + 1])
+        half_product = 0.5 * np.abs(g_all - pa[i]) * np.abs(pa[i + 1] - g_all)
+        interp = np.where(half_product == 0.0, 0.0, kappa * half_product)
+        covered = (
+            finite
+            & (g_all >= pa[0] - reach)
+            & (g_all <= pa[-1] + reach)
+            & ((span <= limit) | (nearest <= reach))
+        )
+        i, span, g = i[covered], span[covered], g_all[covered]
+        w = (pa[i + 1] - g) / span
+        slope = (pv[i + 1] - pv[i]) / span
+        curve[covered] = w * pv[i] + (1.0 - w) * pv[i + 1]
+        weights = w[:, None] * Ps[i] + (1.0 - w)[:, None] * Ps[i + 1]
+        sensitivity[covered, :, 0] = weights
+        sensitivity[covered, :, 1] = -slope[:, None] * weights
+        run_u = np.column_stack([u_value, u_alpha])
+        curvature[covered], spread[covered] = kappa[covered], half_product[covered]
+        u_interp[covered] = interp[covered]
+        u[covered] = np.sqrt(_variance(sensitivity[covered], run_u, r) + interp[covered] ** 2)
+    return GridCurve(
+        key=sweep.key,
+        name=name,
+        alpha=grid,
+        value=curve,
+        u=u,
+        covered=covered,
+        runs=sweep.runs,
+        sensitivity=sensitivity,
+        run_u=np.column_stack([u_value, u_alpha]),
+        run_r=r,
+        curvature=curvature,
+        spread=spread,
+        u_interp=u_interp,
+    )
+
+
+def on_grid(
+    sweep: Sweep, name: str, grid, *, max_gap: float | None = None, include_flagged: bool = False
+) -> GridCurve:
     """A sweep's coefficient interpolated onto an α grid, with its uncertainty band.
 
     Parameters
@@ -212,11 +353,18 @@ def on_grid(sweep: Sweep, name: str, grid) -> GridCurve:
         The coefficient (``"CL"``, ``"CD"``, ``"CM"``, ``"C_power"``, …); ``u_<name>`` must exist.
     grid : array_like
         Spin ratios to evaluate at. [-]
+    max_gap : float, optional
+        No grid point is covered between two measured points farther apart than this in α
+        (a measured point itself always is); default :func:`gap_limit` of the sweep's own
+        points, 1.5 × their median step. [-]
+    include_flagged : bool
+        Use runs that raised a quality flag (left out by default, as from the sweep lines of
+        the figures).
 
     Returns
     -------
     GridCurve
-        Values and standard uncertainties, NaN outside the sweep's α range (``covered`` False).
+        Values and standard uncertainties, NaN where not covered (``covered`` False).
 
     Notes
     -----
@@ -229,79 +377,78 @@ def on_grid(sweep: Sweep, name: str, grid) -> GridCurve:
         u_eff² = u_C² + s² u_α² − 2 s r u_C u_α,
 
     r the correlation of C with α within the run (``corr_<name>_alpha``; 0 when the results do
-    not give it). The runs are independent, so u²(C(g)) = w² u²_eff,1 + (1 − w)² u²_eff,2. This
-    is the first-order (GUM) propagation of C(g) through C₁, C₂, α₁ and α₂ exactly, including
-    the dependence of w on α₁ and α₂. At a grid point on a run, the slope is that of the segment
-    to its right (to its left at the last point).
+    not give it). The runs are independent, so u²(C(g)) = w² u²_eff,1 + (1 − w)² u²_eff,2 + u_i².
+    The first terms are the first-order (GUM) propagation of C(g) through C₁, C₂, α₁ and α₂
+    exactly, including the dependence of w on α₁ and α₂. At a grid point on a run, the slope is
+    that of the segment to its right (to its left at the last point).
+
+    u_i is the interpolation error. A straight line through two points of a curve C misses it
+    by ½ C''(ξ) (g − α₁)(α₂ − g) for some ξ in the segment (the remainder of linear
+    interpolation); u_i takes that with |C''| the larger of the second divided differences at
+    the segment's two ends, as a standard uncertainty (it is 0 on a measured point, and a sweep
+    with fewer than three points cannot state it, so it covers only its measured points). A
+    curvature that the points do not resolve is not seen by a divided difference, which is why
+    no grid point is covered in a segment wider than ``max_gap``.
 
     Being first order, the band holds while u(α) is small against the α spacing of neighbouring
     set points: by Monte Carlo on a straight line, u(α) at 2.4 % of the spacing leaves the
     sampled variance within 2 % of the band's, at 12 % it is up to 16 % off (larger between
     runs, smaller next to one).
 
-    Assumptions: the curve is linear between neighbouring set points (a curvature error of order
-    C''Δα²/8 is not in u); type-B components shared between runs (balance calibration, geometry)
-    are treated as independent, which over-states u of an interpolated value slightly and
-    cancels nothing in a difference. Nothing is extrapolated: outside the measured α range the
-    curve is NaN; a sweep with fewer than two set points covers nothing.
+    Type-B components shared between runs (balance calibration, geometry) are treated as
+    independent, which over-states u of an interpolated value slightly and cancels nothing in a
+    difference. Nothing is extrapolated: outside the measured α range the curve is NaN; a sweep
+    with fewer than two set points covers nothing.
 
     References
     ----------
     .. [1] JCGM 100:2008, *Evaluation of measurement data — Guide to the expression of
        uncertainty in measurement* (GUM), §5.2 (correlated input quantities).
+    .. [2] R. L. Burden and J. D. Faires, *Numerical Analysis*, 9th ed., Brooks/Cole, 2011,
+       Theorem 3.3 (the error of polynomial interpolation) and §3.3 (divided differences).
 
     Examples
     --------
     >>> import pandas as pd
     >>> from tunnelred.products.compare.sweeps import find_sweeps
-    >>> df = pd.DataFrame({"run": ["a", "b"], "config": "bare", "speed_set": 20.0,
-    ...     "spin_set": [0, 600], "alpha": [0.0, 0.5], "u_alpha": [0.0, 0.0],
-    ...     "CL": [0.0, -3.0], "u_CL": [0.1, 0.1]})
-    >>> curve = on_grid(find_sweeps(df)[0], "CL", [0.25, 0.75])
+    >>> df = pd.DataFrame({"run": ["a", "b", "c"], "config": "bare", "speed_set": 20.0,
+    ...     "spin_set": [0, 300, 600], "alpha": [0.0, 0.25, 0.5], "u_alpha": 0.0,
+    ...     "CL": [0.0, -1.5, -3.0], "u_CL": 0.1})
+    >>> curve = on_grid(find_sweeps(df)[0], "CL", [0.125, 0.75])
     >>> curve.value.tolist(), curve.covered.tolist()
-    ([-1.5, nan], [True, False])
-    >>> round(float(curve.u[0]), 4)  # sqrt(0.5² + 0.5²) × 0.1
+    ([-0.75, nan], [True, False])
+    >>> round(float(curve.u[0]), 4)  # sqrt(0.5² + 0.5²) × 0.1; a straight line: no curvature
     0.0707
     """
-    grid = np.atleast_1d(np.asarray(grid, dtype=float))
-    value, u_value, alpha, u_alpha, r, usable = run_errors(sweep, name)
-    n = len(sweep.runs)
-    sensitivity = np.zeros((grid.size, n, 2))
-    curve = np.full(grid.size, np.nan)
-    u = np.full(grid.size, np.nan)
-    P = _points(sweep, usable)
-    covered = np.zeros(grid.size, dtype=bool)
-    if P.shape[0] >= 2:
-        point_alpha, point_value = P @ alpha, P @ value
-        order = np.argsort(point_alpha)
-        pa, pv, Ps = point_alpha[order], point_value[order], P[order]
-        covered = np.isfinite(grid) & (grid >= pa[0]) & (grid <= pa[-1])
-        g = grid[covered]
-        i = np.clip(np.searchsorted(pa, g, side="right") - 1, 0, pa.size - 2)
-        span = pa[i + 1] - pa[i]
-        w = (pa[i + 1] - g) / span
-        slope = (pv[i + 1] - pv[i]) / span
-        curve[covered] = w * pv[i] + (1.0 - w) * pv[i + 1]
-        weights = w[:, None] * Ps[i] + (1.0 - w)[:, None] * Ps[i + 1]
-        sensitivity[covered, :, 0] = weights
-        sensitivity[covered, :, 1] = -slope[:, None] * weights
-        run_u = np.column_stack([u_value, u_alpha])
-        u[covered] = np.sqrt(_variance(sensitivity[covered], run_u, r))
-    return GridCurve(
-        key=sweep.key,
-        name=name,
-        alpha=grid,
-        value=curve,
-        u=u,
-        covered=covered,
-        runs=sweep.runs,
-        sensitivity=sensitivity,
-        run_u=np.column_stack([u_value, u_alpha]),
-        run_r=r,
+    curve = interpolate(sweep, name, grid, max_gap=max_gap, include_flagged=include_flagged)
+    stated = curve.covered & np.isfinite(curve.u_interp)
+    return replace(
+        curve,
+        covered=stated,
+        value=np.where(stated, curve.value, np.nan),
+        u=np.where(stated, curve.u, np.nan),
+        u_interp=np.where(stated, curve.u_interp, np.nan),
     )
 
 
-def _curve_difference(ca: GridCurve, cb: GridCurve) -> Difference:
+def curve_difference(
+    ca: GridCurve,
+    cb: GridCurve,
+    *,
+    method: str = "grid",
+    alpha=None,
+    alpha_a=None,
+    alpha_b=None,
+    shared_curvature: bool = False,
+) -> Difference:
+    """Δ = ca − cb of two curves evaluated at the same points.
+
+    A run in both curves is one measurement: its sensitivities subtract, so its errors cancel;
+    where the two values are the same combination of the same runs, so do their interpolation
+    errors. Otherwise the two interpolation errors add in quadrature. With ``shared_curvature``
+    (two curves of one truth, as under the hypothesis of no difference), each curve's
+    interpolation error takes the larger curvature of the two.
+    """
     runs = list(dict.fromkeys(ca.runs + cb.runs))
     index = {run: k for k, run in enumerate(runs)}
     ia = np.array([index[run] for run in ca.runs], dtype=int)
@@ -309,28 +456,49 @@ def _curve_difference(ca: GridCurve, cb: GridCurve) -> Difference:
     sensitivity = np.zeros((ca.alpha.size, len(runs), 2))
     run_u = np.zeros((len(runs), 2))
     run_r = np.zeros(len(runs))
-    # A run in both curves is one measurement: its sensitivities subtract, so its errors cancel.
     np.add.at(sensitivity, (slice(None), ia), ca.sensitivity)
     np.subtract.at(sensitivity, (slice(None), ib), cb.sensitivity)
     run_u[ia], run_r[ia] = ca.run_u, ca.run_r
     run_u[ib], run_r[ib] = cb.run_u, cb.run_r
-    covered = ca.covered & cb.covered
+    interp_a, interp_b = ca.u_interp, cb.u_interp
+    if shared_curvature:
+        kappa = np.fmax(ca.curvature, cb.curvature)
+        interp_a = np.where(ca.spread == 0.0, 0.0, kappa * ca.spread)
+        interp_b = np.where(cb.spread == 0.0, 0.0, kappa * cb.spread)
+    u_interp = np.hypot(interp_a, interp_b)
+    # The same combination of the same runs (a curve with itself) misses the truth alike.
+    u_interp = np.where(np.all(sensitivity == 0.0, axis=(1, 2)), 0.0, u_interp)
+    covered = ca.covered & cb.covered & np.isfinite(u_interp)
     delta = np.where(covered, ca.value - cb.value, np.nan)
-    u = np.where(covered, np.sqrt(_variance(sensitivity, run_u, run_r)), np.nan)
+    variance = _variance(sensitivity, run_u, run_r) + u_interp**2
+    u = np.where(covered, np.sqrt(np.where(covered, variance, 0.0)), np.nan)
     significant = covered & (np.abs(np.nan_to_num(delta)) > COVERAGE_FACTOR * np.nan_to_num(u))
+    where = ca.alpha if alpha is None else np.asarray(alpha, dtype=float)
     return Difference(
         a=ca.key,
         b=cb.key,
         name=ca.name,
-        alpha=ca.alpha,
+        alpha=where,
         delta=delta,
         u=u,
         covered=covered,
         significant=significant,
+        alpha_a=where if alpha_a is None else np.asarray(alpha_a, dtype=float),
+        alpha_b=where if alpha_b is None else np.asarray(alpha_b, dtype=float),
+        u_interp=np.where(covered, u_interp, np.nan),
+        method=method,
     )
 
 
-def difference(a: Sweep, b: Sweep, name: str, *, grid=None) -> Difference:
+def difference(
+    a: Sweep,
+    b: Sweep,
+    name: str,
+    *,
+    grid=None,
+    max_gap: float | None = None,
+    include_flagged: bool = False,
+) -> Difference:
     """The difference a − b of one coefficient of two sweeps on a common α grid.
 
     Parameters
@@ -341,19 +509,28 @@ def difference(a: Sweep, b: Sweep, name: str, *, grid=None) -> Difference:
         The coefficient.
     grid : array_like, optional
         Spin ratios; default :func:`alpha_grid` over the overlap of the two sweeps. [-]
+    max_gap : float, optional
+        No grid point between two measured points of either sweep farther apart than this;
+        default :func:`gap_limit` of the two sweeps (1.5 × the finer one's median step). [-]
+    include_flagged : bool
+        Use runs that raised a quality flag.
 
     Returns
     -------
     Difference
-        Δ, u(Δ), and where |Δ| > 2 u(Δ) (k = 2).
+        Δ, u(Δ), and where |Δ| > 2 u(Δ) (k = 2); ``method`` ``"grid"``.
 
     Notes
     -----
-    Both curves are interpolated as in :func:`on_grid`; each grid value is a linear combination
-    of its runs' errors (δC_i, δα_i). Δ is the difference of those combinations: a run that
-    belongs to both sweeps is one measurement, so its errors cancel instead of adding, and a
-    sweep minus itself gives Δ = 0 with u(Δ) = 0 and nothing significant. Runs of different
-    sweeps are taken as independent (conservative where they share type-B components).
+    Both curves are interpolated as in :func:`on_grid`, interpolation error in u; each grid
+    value is a linear combination of its runs' errors (δC_i, δα_i). Δ is the difference of those
+    combinations: a run that belongs to both sweeps is one measurement, so its errors cancel
+    instead of adding, and a sweep minus itself gives Δ = 0 with u(Δ) = 0 and nothing
+    significant. The interpolation errors of the two curves add in quadrature (they do not
+    cancel: the two sweeps are sampled at different α). Runs of different sweeps are taken as
+    independent (conservative where they share type-B components). Where the sweeps were
+    measured at the same spin ratios, :func:`tunnelred.products.compare.paired.paired_difference`
+    needs no interpolation across a segment at all.
 
     References
     ----------
@@ -374,41 +551,7 @@ def difference(a: Sweep, b: Sweep, name: str, *, grid=None) -> Difference:
     (1.0, 0.1414, True)
     """
     if grid is None:
-        grid = alpha_grid(a, b, name=name)
-    return _curve_difference(on_grid(a, name, grid), on_grid(b, name, grid))
-
-
-def hysteresis(sweep_up: Sweep, sweep_down: Sweep, name: str, *, grid=None) -> Difference:
-    """Up leg minus down leg of one coefficient, on the overlap of their α ranges.
-
-    Parameters
-    ----------
-    sweep_up, sweep_down : Sweep
-        Two legs of one configuration and speed (:func:`find_sweeps`).
-    name : str
-        The coefficient.
-    grid : array_like, optional
-        Spin ratios; default :func:`alpha_grid` over the overlap. [-]
-
-    Returns
-    -------
-    Difference
-
-    Notes
-    -----
-    As :func:`difference`: the runs at the turning point belong to both legs and their errors
-    cancel in Δ there, so hysteresis is judged on the runs that differ.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tunnelred.products.compare.sweeps import find_sweeps
-    >>> df = pd.DataFrame({"run": list("abc"), "config": "A", "speed_set": 20.0,
-    ...     "spin_set": [0, 600, 0], "alpha": [0.0, 0.5, 0.0], "u_alpha": 0.0,
-    ...     "CL": [0.0, -3.0, -0.4], "u_CL": 0.1,
-    ...     "start": ["2031-05-01T10:00", "2031-05-01T11:00", "2031-05-01T12:00"]})
-    >>> up, down = find_sweeps(df)
-    >>> hysteresis(up, down, "CL", grid=[0.0, 0.5]).delta.tolist()
-    [0.4, 0.0]
-    """
-    return difference(sweep_up, sweep_down, name, grid=grid)
+        grid = alpha_grid(a, b, name=name, include_flagged=include_flagged)
+    limit = gap_limit([point_alpha(a), point_alpha(b)], max_gap)
+    options = dict(max_gap=limit, include_flagged=include_flagged)
+    return curve_difference(on_grid(a, name, grid, **options), on_grid(b, name, grid, **options))

@@ -19,7 +19,13 @@ from tunnelred.products.store import run_table
 
 __all__ = [
     "BY",
+    "COMPARISON_FLAGS_IGNORED",
+    "GAP_FACTOR",
     "Sweep",
+    "flagged_rows",
+    "gap_limit",
+    "point_alpha",
+    "split_at_gaps",
     "find_sweeps",
     "has_coefficient",
     "numeric_column",
@@ -29,6 +35,11 @@ __all__ = [
 
 #: The ways sweeps are grouped.
 BY = ("config", "speed", "re")
+#: A curve may bridge a step in α between two measured points up to this many times the median
+#: step of the finest sweep compared or drawn (:func:`gap_limit`): no grid value is interpolated,
+#: and no sweep line drawn, across a wider one. A sparse leg (a down sweep at every other set
+#: point) or a jump to a pair of repeats is then not joined by a straight line it never measured.
+GAP_FACTOR = 1.5
 _RPM_PER_RAD_S = 60.0 / (2.0 * math.pi)
 
 
@@ -59,8 +70,9 @@ class Sweep:
         1 for the first leg of its direction in the group, 2 for the second, …
     arrays : dict of str to numpy.ndarray
         Every numeric result column for these runs, in the order of ``runs``, plus ``spin_point``
-        [rpm] (the rounded set spin rate that identifies repeats) and ``order`` (position in run
-        order across the whole results).
+        [rpm] (the rounded set spin rate that identifies repeats), ``order`` (position in run
+        order across the whole results) and ``flagged`` (the run raised a quality flag other
+        than :data:`COMPARISON_FLAGS_IGNORED`).
     """
 
     key: str
@@ -97,6 +109,79 @@ def numeric_column(table: pd.DataFrame, name: str) -> np.ndarray:
     if name not in table:
         return np.full(len(table), np.nan)
     return pd.to_numeric(table[name], errors="coerce").to_numpy(dtype=float)
+
+
+#: Flags that do not keep a run out of a comparison: the repeat check compares the runs at one
+#: set point, the legs of a sweep included, so a real hysteresis raises it on its own evidence.
+COMPARISON_FLAGS_IGNORED = ("repeat_disagreement",)
+
+
+def flagged_rows(table: pd.DataFrame) -> np.ndarray:
+    """Which rows raised a quality flag other than :data:`COMPARISON_FLAGS_IGNORED`.
+
+    Read from the ``flag_<name>`` columns, else from the ``;``-separated ``flags`` text.
+    """
+    ignored = {f"flag_{name}" for name in COMPARISON_FLAGS_IGNORED}
+    columns = [
+        c
+        for c in table.columns
+        if c.startswith("flag_") and c != "flag_reasons" and c not in ignored
+    ]
+    flagged = np.zeros(len(table), dtype=bool)
+    if columns:
+        for column in columns:
+            values = table[column]
+            if values.dtype == object:
+                values = values.astype(str).str.lower().isin(["true", "1"])
+            flagged |= values.fillna(False).astype(bool).to_numpy()
+    elif "flags" in table:
+        for k, text in enumerate(table["flags"].fillna("").astype(str)):
+            names = {n.strip() for n in text.split(";") if n.strip()}
+            flagged[k] = bool(names - set(COMPARISON_FLAGS_IGNORED))
+    return flagged
+
+
+def point_alpha(sweep: Sweep) -> np.ndarray:
+    """The sweep's measured α, one a set point (repeats averaged), sorted; NaN left out."""
+    alpha = np.asarray(sweep.arrays.get("alpha", np.full(len(sweep.runs), np.nan)), dtype=float)
+    spin = np.asarray(sweep.arrays["spin_point"], dtype=float)
+    finite = np.isfinite(alpha)
+    levels, inverse = np.unique(spin[finite], return_inverse=True)
+    means = np.bincount(inverse, weights=alpha[finite], minlength=levels.size)
+    return np.sort(means / np.maximum(np.bincount(inverse, minlength=levels.size), 1))
+
+
+def gap_limit(alpha_sets, max_gap: float | None = None) -> float:
+    """The widest step a curve may bridge: ``max_gap`` when given, else :data:`GAP_FACTOR` ×
+    the smallest median step among the sets of sorted measured α (inf when none has a step).
+
+    Examples
+    --------
+    >>> gap_limit([np.array([0.0, 0.5, 1.0, 1.5]), np.array([0.0, 1.0, 2.0])])
+    0.75
+    >>> gap_limit([np.array([0.0, 1.0])], max_gap=0.6)
+    0.6
+    """
+    if max_gap is not None:
+        return float(max_gap)
+    steps = [float(np.median(np.diff(a))) for a in alpha_sets if np.asarray(a).size >= 2]
+    steps = [step for step in steps if step > 0]
+    return GAP_FACTOR * min(steps) if steps else math.inf
+
+
+def split_at_gaps(alpha: np.ndarray, max_gap: float) -> list[np.ndarray]:
+    """Positions of ``alpha`` (sorted) in stretches whose steps are no wider than ``max_gap``.
+
+    Examples
+    --------
+    >>> [p.tolist() for p in split_at_gaps(np.array([0.0, 0.5, 1.0, 2.0, 2.5]), 0.6)]
+    [[0, 1, 2], [3, 4]]
+    """
+    alpha = np.asarray(alpha, dtype=float)
+    if alpha.size == 0:
+        return []
+    breaks = np.flatnonzero(np.diff(alpha) > max_gap) + 1
+    return np.split(np.arange(alpha.size), breaks)
 
 
 def _in_run_order(table: pd.DataFrame) -> pd.DataFrame:
@@ -234,7 +319,7 @@ def find_sweeps(
         for c in table.columns
         if pd.api.types.is_numeric_dtype(table[c]) or pd.api.types.is_bool_dtype(table[c])
     ]
-    frame = table.assign(_level=level, spin_point=spin)[usable]
+    frame = table.assign(_level=level, spin_point=spin, flagged=flagged_rows(table))[usable]
     sweeps: list[Sweep] = []
     for (config, lev), group in frame.groupby(["config", "_level"], sort=False):
         rows = group.index.to_numpy()
@@ -255,7 +340,7 @@ def find_sweeps(
             picked = rows[members]
             picked = picked[np.lexsort((picked, spin[picked]))]
             # One selection for the leg, then its columns (a .loc per column costs seconds).
-            block = frame.loc[picked, [*numeric, "spin_point"]]
+            block = frame.loc[picked, list(dict.fromkeys([*numeric, "spin_point", "flagged"]))]
             arrays = {c: block[c].to_numpy() for c in block.columns}
             sweeps.append(
                 Sweep(

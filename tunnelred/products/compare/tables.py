@@ -8,7 +8,8 @@ import numpy as np
 import pandas as pd
 
 from tunnelred.products.compare.characteristics import COMPARED, FIGURES, characteristics
-from tunnelred.products.compare.grid import Difference, difference
+from tunnelred.products.compare.grid import Difference
+from tunnelred.products.compare.paired import METHODS, PAIR_TOLERANCE, difference_by_method
 from tunnelred.products.compare.sweeps import Sweep, find_sweeps, has_coefficient
 from tunnelred.products.plotting import COVERAGE_FACTOR
 
@@ -17,6 +18,7 @@ __all__ = ["comparison_section_data", "comparison_table"]
 
 _COMPARISON_COLUMNS = (
     "kind",
+    "method",
     "a",
     "b",
     "config_a",
@@ -29,8 +31,11 @@ _COMPARISON_COLUMNS = (
     "leg_b",
     "quantity",
     "alpha",
+    "alpha_a",
+    "alpha_b",
     "delta",
     "u_delta",
+    "u_interp",
     "U_delta",
     "significant",
 )
@@ -83,6 +88,7 @@ def _difference_rows(kind: str, a: Sweep, b: Sweep, d: Difference) -> pd.DataFra
     return pd.DataFrame(
         {
             "kind": kind,
+            "method": d.method,
             "a": a.key,
             "b": b.key,
             "config_a": a.config,
@@ -95,8 +101,11 @@ def _difference_rows(kind: str, a: Sweep, b: Sweep, d: Difference) -> pd.DataFra
             "leg_b": b.leg,
             "quantity": d.name,
             "alpha": d.alpha[keep],
+            "alpha_a": d.alpha_a[keep],
+            "alpha_b": d.alpha_b[keep],
             "delta": d.delta[keep],
             "u_delta": d.u[keep],
+            "u_interp": d.u_interp[keep],
             "U_delta": d.k * d.u[keep],
             "significant": d.significant[keep],
         }
@@ -110,6 +119,7 @@ def _figure_rows(kind: str, a: Sweep, b: Sweep, fa: dict, fb: dict) -> pd.DataFr
     return pd.DataFrame(
         {
             "kind": kind,
+            "method": "figure",
             "a": a.key,
             "b": b.key,
             "config_a": a.config,
@@ -122,8 +132,11 @@ def _figure_rows(kind: str, a: Sweep, b: Sweep, fa: dict, fb: dict) -> pd.DataFr
             "leg_b": b.leg,
             "quantity": names,
             "alpha": np.nan,
+            "alpha_a": np.nan,
+            "alpha_b": np.nan,
             "delta": delta,
             "u_delta": u,
+            "u_interp": 0.0,
             "U_delta": COVERAGE_FACTOR * u,
             "significant": np.abs(delta) > COVERAGE_FACTOR * u,
         }
@@ -138,6 +151,10 @@ def comparison_table(
     reference=None,
     slope_range: tuple[float, float] = (0.0, 0.5),
     power_level: float | None = None,
+    method: str = "paired",
+    tolerance: float = PAIR_TOLERANCE,
+    max_gap: float | None = None,
+    include_flagged: bool = False,
 ) -> pd.DataFrame:
     """Every comparison of the campaign as one long table: curve differences and figure differences.
 
@@ -155,22 +172,36 @@ def comparison_table(
         (``by="speed"``); default the first in run order within each group.
     slope_range, power_level
         As :func:`characteristics`.
+    method : {"paired", "grid"}
+        Curve differences at the measured spin ratios both sweeps share, paired within
+        ``tolerance`` (:func:`paired_difference`, the default), or on the :func:`alpha_grid` of
+        each pair's overlap, never across a step wider than ``max_gap`` (:func:`difference`).
+    tolerance : float
+        Largest |α_a − α_b| of a pair (``method="paired"``). [-]
+    max_gap : float, optional
+        Widest step in α a grid value may be interpolated across (``method="grid"``); default
+        :func:`gap_limit` of the two sweeps. [-]
+    include_flagged : bool
+        Use runs that raised a quality flag in the curve differences (left out by default).
 
     Returns
     -------
     pandas.DataFrame
         One row per difference: ``kind`` (``by``, or ``"hysteresis"`` for up minus down legs of
-        one sweep), ``a``, ``b`` (sweep keys; Δ = a − b), ``config_a``, ``config_b``,
-        ``speed_a``, ``speed_b`` [m/s], ``Re_a``, ``Re_b``, ``leg_a``, ``leg_b``, ``quantity``,
-        ``alpha`` (the grid point; NaN for a characteristic figure), ``delta``, ``u_delta``
-        (k = 1), ``U_delta`` (k = 2) and ``significant`` (|Δ| > U_delta). Curve rows lie on the
-        :func:`alpha_grid` of each pair's overlap; figure rows hold the differences of
+        one sweep), ``method`` (``"paired"``, ``"grid"``, or ``"figure"`` for a characteristic
+        figure), ``a``, ``b`` (sweep keys; Δ = a − b), ``config_a``, ``config_b``, ``speed_a``,
+        ``speed_b`` [m/s], ``Re_a``, ``Re_b``, ``leg_a``, ``leg_b``, ``quantity``, ``alpha``
+        (the pair's mean α or the grid point; NaN for a figure), ``alpha_a``, ``alpha_b`` (the
+        measured α of each side of a pair; the grid point on a grid), ``delta``, ``u_delta``
+        (k = 1), ``u_interp`` (the part of u_delta from interpolation), ``U_delta`` (k = 2) and
+        ``significant`` (|Δ| > U_delta). Figure rows hold the differences of
         :func:`characteristics` (the two sweeps share no runs, so their u add in quadrature).
 
     Notes
     -----
     Legs are paired by direction and number (up with up, down with down); a ``"single"`` leg
-    pairs with any leg of the other side.
+    pairs with any leg of the other side. A spin ratio one sweep measured and the other did not
+    gives no paired row: compare such sweeps with ``method="grid"``, where the steps allow.
 
     Examples
     --------
@@ -181,6 +212,8 @@ def comparison_table(
     >>> table[table.quantity == "CL"][["alpha", "delta"]].round(6).values.tolist()
     [[0.0, 0.0], [0.5, 1.0]]
     """
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
     sweeps = find_sweeps(results, by=by)
     parts = []
     figures = {
@@ -193,7 +226,16 @@ def comparison_table(
         for a, b in pairs:
             for name in names:
                 if has_coefficient(a, name) and has_coefficient(b, name):
-                    parts.append(_difference_rows(kind, a, b, difference(a, b, name)))
+                    d = difference_by_method(
+                        a,
+                        b,
+                        name,
+                        method=method,
+                        tolerance=tolerance,
+                        max_gap=max_gap,
+                        include_flagged=include_flagged,
+                    )
+                    parts.append(_difference_rows(kind, a, b, d))
             if kind != "hysteresis":
                 parts.append(_figure_rows(kind, a, b, figures[a.key], figures[b.key]))
     parts = [p for p in parts if not p.empty]
