@@ -51,6 +51,51 @@ def test_committed_without_outputs(name):
 
 
 @pytest.mark.parametrize("name", NAMES)
+def test_first_code_cell_holds_the_parameters(name):
+    # The papermill convention: the cell tagged "parameters" holds what a user changes; here
+    # the campaign and output folders, and no other cell names the demo campaign.
+    book = nbformat.read(NOTEBOOKS / name, as_version=4)
+    code = [c for c in book.cells if c.cell_type == "code"]
+    assert "parameters" in code[0].metadata.get("tags", [])
+    namespace: dict = {}
+    exec(code[0].source, namespace)  # plain assignments only
+    assert namespace["CAMPAIGN"] == "../sample_runs" and namespace["OUT"] is None
+    assert not [c for c in book.cells[1:] if "sample_runs" in c.source and c is not code[0]
+                and c.cell_type == "code"]  # fmt: skip
+
+
+def _execute(book) -> None:
+    client = nbclient.NotebookClient(
+        book,
+        timeout=600,
+        kernel_name="python3",
+        resources={"metadata": {"path": str(NOTEBOOKS)}},
+    )
+    client.execute()
+    errors = [
+        output
+        for cell in book.cells
+        if cell.cell_type == "code"
+        for output in cell.outputs
+        if output.output_type == "error"
+    ]
+    assert not errors, errors
+
+
+@pytest.mark.parametrize("name", NAMES[1:])
+def test_runs_on_another_campaign_through_its_parameters(name, reduced, tmp_path):
+    # The small synthetic campaign of conftest (other speeds, spin ratios and faults), set in
+    # the parameters cell as a user would.
+    _kernel_resolves()
+    campaign_dir, _ = reduced
+    book = nbformat.read(NOTEBOOKS / name, as_version=4)
+    cell = next(c for c in book.cells if "parameters" in c.metadata.get("tags", []))
+    cell.source = f"CAMPAIGN = {str(campaign_dir)!r}\nOUT = {str(tmp_path / 'out')!r}"
+    _execute(book)
+    assert (tmp_path / "out" / "results.nc").exists()
+
+
+@pytest.mark.parametrize("name", NAMES)
 def test_runs_top_to_bottom(name):
     _kernel_resolves()
     book = nbformat.read(NOTEBOOKS / name, as_version=4)

@@ -19,7 +19,7 @@ __version__ = "0.1.0.dev0"
 _PUBLIC = {
     "open_campaign": "inputs.readers",
     "reduce_run": "engine.reduction",
-    "reduce_campaign": "engine.campaign",
+    "reduce_campaign": "pipeline.campaign",
     "read_results": "products.store",
     "write_report": "products.report",
     "InputError": "common.errors",
