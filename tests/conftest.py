@@ -135,6 +135,30 @@ REPO = Path(__file__).resolve().parents[1]
 SAMPLE_RUNS = REPO / "sample_runs"
 
 
+def small_spec(repeat_count: int = 1):
+    """A small synthetic campaign (tunnelred.demo): one configuration at 9 m/s, spin ratios 0, 1
+    and 2 up, three spin tares, one pressure run at α = 2 and ``repeat_count`` repeats of it,
+    short records, no planted faults; a dozen runs that reduce in seconds."""
+    from tunnelred.demo.spec import demo_spec
+
+    demo = demo_spec()
+    return replace(
+        demo,
+        configurations=demo.configurations[:1],
+        speeds=(9.0,),
+        spin_ratios_up=(0.0, 1.0, 2.0),
+        spin_ratios_down=(),
+        tare_rpms=(1000.0, 3000.0, 4000.0),
+        repeat_point=(demo.configurations[0].label, 9.0, 2.0),
+        repeat_count=repeat_count,
+        faults=(),
+        pressure_speeds=(9.0,),
+        pressure_spin_ratios=(2.0,),
+        data_duration=2.0,
+        wind_off_duration=1.0,
+    )
+
+
 @pytest.fixture(scope="session")
 def demo_campaign_dir(tmp_path_factory) -> Path:
     """The committed demo campaign (sample_runs/), or a fresh copy from synth if absent."""

@@ -14,14 +14,13 @@ import os
 import pickle
 import sys
 import time
-from dataclasses import replace
 
 import numpy as np
 import pandas as pd
 import pytest
 import xarray as xr
+from conftest import small_spec
 
-from tunnelred.demo.spec import demo_spec
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine import reduction
 from tunnelred.pipeline import campaign as engine
@@ -40,22 +39,7 @@ DATA_RUNS = ["R001", "R002", "R003", "R004", "R005"]
 
 @pytest.fixture
 def campaign_dir(tmp_path):
-    demo = demo_spec()
-    spec = replace(
-        demo,
-        configurations=demo.configurations[:1],
-        speeds=(9.0,),
-        spin_ratios_up=(0.0, 1.0, 2.0),
-        spin_ratios_down=(),
-        tare_rpms=(1000.0, 3000.0, 4000.0),
-        repeat_point=(demo.configurations[0].label, 9.0, 2.0),
-        repeat_count=2,
-        faults=(),
-        pressure_speeds=(9.0,),
-        pressure_spin_ratios=(2.0,),
-        data_duration=2.0,
-        wind_off_duration=1.0,
-    )
+    spec = small_spec(repeat_count=2)
     make_campaign(tmp_path / "campaign", spec)
     return tmp_path / "campaign"
 

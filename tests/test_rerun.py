@@ -11,42 +11,22 @@ from __future__ import annotations
 import json
 import os
 import shutil
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import small_spec
 
-from tunnelred.demo.spec import demo_spec
 from tunnelred.demo.writer import make_campaign
 from tunnelred.pipeline import campaign as pipeline
 from tunnelred.pipeline.campaign import reduce_campaign
 from tunnelred.products import plotting, report, store
 
 
-def _small_spec():
-    demo = demo_spec()
-    return replace(
-        demo,
-        configurations=demo.configurations[:1],
-        speeds=(9.0,),
-        spin_ratios_up=(0.0, 1.0, 2.0),
-        spin_ratios_down=(),
-        tare_rpms=(1000.0, 3000.0, 4000.0),
-        repeat_point=(demo.configurations[0].label, 9.0, 2.0),
-        repeat_count=1,
-        faults=(),
-        pressure_speeds=(9.0,),
-        pressure_spin_ratios=(2.0,),
-        data_duration=2.0,
-        wind_off_duration=1.0,
-    )
-
-
 @pytest.fixture(scope="module")
 def made(tmp_path_factory) -> Path:
     root = tmp_path_factory.mktemp("rerun") / "campaign"
-    make_campaign(root, _small_spec())
+    make_campaign(root, small_spec())
     return root
 
 
