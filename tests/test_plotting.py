@@ -361,6 +361,24 @@ def test_standard_figures_written(results, tmp_path):
         assert image.info["dpi"][0] == pytest.approx(200, abs=0.5)
 
 
+def test_figures_drawn_in_a_pool_are_those_drawn_here(results, tmp_path):
+    # Drawing is shared with a process pool (tunnelred reduce --workers N): each job must give
+    # the same PNG, byte for byte, as when this process draws it (Agg rendering and zlib are
+    # deterministic for the same figure and backend).
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    serial = plotting.save_standard_figures(results, tmp_path / "serial")
+    context = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=2, mp_context=context) as executor:
+        shared = plotting.save_standard_figures(
+            results, tmp_path / "pool", executor=executor, helpers=2
+        )
+    assert [p.name for p in shared] == [p.name for p in serial]
+    for a, b in zip(serial, shared, strict=True):
+        assert a.read_bytes() == b.read_bytes(), a.name
+
+
 def test_steadiness_figure_singles_out_the_unsteady_spin_run(results):
     # The small campaign plants a 5 % rpm scatter in one run; the tolerance is the documented
     # default of 2 % (docs/input-format.md, [reduction.tolerances] spin_scatter).

@@ -460,7 +460,10 @@ def _pool_context():
     # quick to start, safe with threads in the parent, and the user's script is not re-run.
     if "forkserver" in multiprocessing.get_all_start_methods():
         context = multiprocessing.get_context("forkserver")
-        context.set_forkserver_preload(["tunnelred.pipeline.campaign"])
+        # plotting (matplotlib) too: the same processes draw the figures after the runs.
+        context.set_forkserver_preload(
+            ["tunnelred.pipeline.campaign", "tunnelred.products.plotting"]
+        )
         return context
     return multiprocessing.get_context("spawn")
 
@@ -940,10 +943,9 @@ def _write_generation(staging, ds, failures_table, budgets, settings: _Settings)
                 save_standard_figures,  # matplotlib only where figures are made
             )
 
-            figures = {
-                f"figures/{figure.name}": figure
-                for figure in save_standard_figures(ds, staging.path)
-            }
+            with _figure_helpers(settings) as (executor, helpers):
+                drawn = save_standard_figures(ds, staging.path, executor=executor, helpers=helpers)
+            figures = {f"figures/{figure.name}": figure for figure in drawn}
         written.update(figures)
         made_from["figures_files"] = sorted(figures)
     if settings.report:
@@ -966,6 +968,20 @@ def _write_generation(staging, ds, failures_table, budgets, settings: _Settings)
         staging.file(_MADE_FROM), json.dumps(made_from, indent=1).encode() + b"\n"
     )
     return written
+
+
+@contextlib.contextmanager
+def _figure_helpers(settings: _Settings):
+    """(executor, helpers): processes to draw figures beside this one, or (None, 0) for none."""
+    helpers = settings.workers - 1 if settings.dask is None else 0
+    if helpers < 1:
+        yield None, 0
+        return
+    executor = ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context())
+    try:
+        yield executor, helpers
+    finally:
+        executor.shutdown(wait=True, cancel_futures=True)
 
 
 def _carried(staging, before: dict, part: str, digest: str, names=None) -> dict | None:
