@@ -83,6 +83,7 @@ class _TareState:
     omega: float  # mean spin rate [rad/s]
     loads: np.ndarray  # zero-corrected mean loads [3]
     u_loads: np.ndarray  # type-A standard uncertainty [3]
+    terms: np.ndarray  # mean calibration terms (balance.calibration_terms) of the signals
 
 
 def _memo(campaign) -> dict:
@@ -147,12 +148,12 @@ def _tare_state(campaign, run_id: str) -> _TareState:
         stream = data.streams["balance"]
         t = stream["time"].to_numpy()
         zero, _, _ = _zero_for(campaign, data.spec, _mid_epoch(data.spec, stream))
-        loads = balance.loads_from_signals(
-            _signal_matrix(stream, cfg.channels) - zero, np.array(cfg.matrix), _second_order(cfg)
-        )
+        signals = _signal_matrix(stream, cfg.channels) - zero
+        loads = balance.loads_from_signals(signals, np.array(cfg.matrix), _second_order(cfg))
         means, u = _series_means(loads, t)
         t_spin, omega, _ = conditions.spin_rate(data.streams)
-        memo[key] = _TareState(float(np.mean(omega)), means, u)
+        terms = balance.calibration_terms(signals, second_order=cfg.second_order is not None)
+        memo[key] = _TareState(float(np.mean(omega)), means, u, terms.mean(axis=0))
     return memo[key]
 
 
@@ -223,6 +224,61 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     align = cfg.alignment_angle
     inputs["alignment"] = Input(align, cfg.u_alignment_angle, "B", "balance alignment [deg]")
     return inputs
+
+
+@dataclass(frozen=True)
+class _CalibrationStep:
+    """The balance coefficients as one vector input with their covariance (calibration_file)."""
+
+    inputs: dict[str, Input]
+    correlation: dict[tuple[str, str], float]
+    coefficients: np.ndarray  # c0, the file's values [K]
+    sensitivity: np.ndarray  # ∂(net loads)/∂c at c0 [3, K]
+
+
+def _calibration_step(campaign, spec, data, omega_mean: float) -> _CalibrationStep | None:
+    """Net loads are linear in the coefficients: F_r = Σ_t K_rt (term_t(run) − term_t(tare))."""
+    cfg = campaign.config.instruments.balance
+    if cfg.coefficient_covariance is None:
+        return None
+    stream = data.streams["balance"]
+    zero, _, _ = _zero_for(campaign, spec, _mid_epoch(spec, stream))
+    second = cfg.second_order is not None
+    terms = balance.calibration_terms(
+        _signal_matrix(stream, cfg.channels) - zero, second_order=second
+    ).mean(axis=0)
+    if spec.tare:
+        states = sorted((_tare_state(campaign, r) for r in spec.tare), key=lambda s: s.omega)
+        rates = np.array([s.omega for s in states])
+        tare_terms = np.array([s.terms for s in states])
+        # tare_loads interpolates three columns at a time; it is linear, so any columns do.
+        width = tare_terms.shape[1]
+        padded = np.pad(tare_terms, ((0, 0), (0, -width % 3)))
+        interpolated = np.concatenate([
+            np.asarray(balance.tare_loads(omega_mean, rates, padded[:, k : k + 3])[0])
+            for k in range(0, padded.shape[1], 3)
+        ])[:width]  # fmt: skip
+        terms = terms - interpolated
+    per_load = terms.size
+    sensitivity = np.zeros((3, 3 * per_load))
+    for r in range(3):
+        sensitivity[r, r * per_load : (r + 1) * per_load] = terms
+    coefficients = np.hstack(
+        [np.array(cfg.matrix), np.array(cfg.second_order)] if second else [np.array(cfg.matrix)]
+    ).ravel()
+    covariance = np.array(cfg.coefficient_covariance)
+    u = np.sqrt(np.diag(covariance))
+    correlation = {}
+    for i, j in zip(*np.triu_indices(len(u), 1), strict=True):
+        if u[i] > 0 and u[j] > 0 and covariance[i, j] != 0:
+            r = float(np.clip(covariance[i, j] / (u[i] * u[j]), -1.0, 1.0))
+            correlation[(f"calibration_coefficients[{i}]", f"calibration_coefficients[{j}]")] = r
+    inputs = {
+        "calibration_coefficients": Input(
+            coefficients, u, "B", f"balance calibration coefficients ({cfg.calibration_file})"
+        )
+    }
+    return _CalibrationStep(inputs, correlation, coefficients, sensitivity)
 
 
 @dataclass(frozen=True)
@@ -395,11 +451,19 @@ def _stream_overlap(streams) -> float:
 # The run-level model
 
 
-def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integrate: bool):
+def _run_model(
+    cfg,
+    *,
+    has_balance: bool,
+    theta_bins: np.ndarray | None,
+    integrate: bool,
+    calibration: _CalibrationStep | None = None,
+):
     """The vectorised map from run-level inputs to every reported quantity.
 
     ``theta_bins`` are the azimuths of the pressure points (None: no pressure log);
-    ``integrate`` is False when they leave a gap too wide for the pressure forces.
+    ``integrate`` is False when they leave a gap too wide for the pressure forces;
+    ``calibration`` adds the loads' change with the balance coefficients (calibration_file).
     """
     model_cfg, red = cfg.model, cfg.reduction
     # Config resolved the method once (the 3-D substitution included); it is applied as it is.
@@ -438,6 +502,11 @@ def _run_model(cfg, *, has_balance: bool, theta_bins: np.ndarray | None, integra
                 (x[n] + x[f"{n}_spec"] - x[f"{n}_tare"]) * x["calibration"]
                 for n in ("Fx", "Fy", "Mz")
             ]
+            if calibration is not None:
+                step = (x["calibration_coefficients"] - calibration.coefficients) @ (
+                    calibration.sensitivity.T
+                )
+                loads = [load + step[..., k] for k, load in enumerate(loads)]
             drag, lift = balance.balance_to_wind(
                 loads[0], loads[1], x["alignment"] - x["flow_angle"]
             )
@@ -591,8 +660,12 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     measures["stream_overlap"] = _stream_overlap(data.streams)
 
     has_balance = "balance" in data.streams
+    calibration = None
     if has_balance:
         inputs.update(_balance_inputs(campaign, spec, data, spin.omega_mean, measures))
+        calibration = _calibration_step(campaign, spec, data, spin.omega_mean)
+    if calibration is not None:
+        inputs.update(calibration.inputs)
 
     q_mean = float(np.mean(fs["q"].to_numpy()))
     taps = _pressure_step(campaign, spec, data, q_mean, spin, measures)
@@ -600,11 +673,16 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     theta_points = None if taps.points is None else taps.points.theta
     model = _run_model(
-        cfg, has_balance=has_balance, theta_bins=theta_points, integrate=taps.integrate
+        cfg,
+        has_balance=has_balance,
+        theta_bins=theta_points,
+        integrate=taps.integrate,
+        calibration=calibration,
     )
+    correlation = calibration.correlation if calibration is not None else None
     # The scanner term enters only through p_bin + p_scanner: one set of sensitivities for both.
     summed = {"p_scanner": "p_bin"} if "p_scanner" in inputs else None
-    linear = propagate_linear(model, inputs, summed_with=summed)
+    linear = propagate_linear(model, inputs, correlation=correlation, summed_with=summed)
 
     values = _run_values(spec, linear, measures, taps.dead_taps)
     theta, profiles = _profiles(taps.points, linear, values["alpha"])
@@ -617,7 +695,9 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     )
 
     if monte_carlo:
-        mc = propagate_monte_carlo(model, inputs, draws=monte_carlo, seed=seed)
+        mc = propagate_monte_carlo(
+            model, inputs, correlation=correlation, draws=monte_carlo, seed=seed
+        )
         for name in RUN_OUTPUTS:
             values[f"u_{name}_mc"] = float(np.asarray(mc.u[name]).reshape(-1)[0])
 

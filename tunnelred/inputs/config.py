@@ -15,6 +15,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path, PurePosixPath
 
 from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.calibration import read_calibration_text
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
 from tunnelred.inputs.schema import names_by_table
 from tunnelred.inputs.units import parse_quantity
@@ -169,6 +170,12 @@ class BalanceConfig:
     u_matrix_relative: float = 0.0
     alignment_angle: float = 0.0  # balance x axis relative to tunnel x, positive toward +y [deg]
     u_alignment_angle: float = 0.0
+    # From calibration_file (inputs.calibration): the file, the SHA-256 of its bytes (part of
+    # every cache key) and the covariance of the coefficients c = hstack([matrix,
+    # second_order]) row by row, propagated in place of u_matrix_relative; None: not given.
+    calibration_file: str = ""
+    calibration_sha256: str = ""
+    coefficient_covariance: tuple[tuple[float, ...], ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -596,7 +603,7 @@ def _build(r: _Reader, data: dict, root: Path) -> CampaignConfig | None:
     tunnel = _tunnel(r, data)
     model = _model(r, data, tunnel, root)
     configurations = _configurations(r, data, model)
-    instruments = _instruments(r, data)
+    instruments = _instruments(r, data, root)
     taps = _taps(r, data)
     reduction = _reduction(r, data, model)
     report = _report(r, data)
@@ -650,11 +657,14 @@ def _report(r: _Reader, data: dict) -> ReportInfo:
     return ReportInfo(**texts, revision_history=tuple(history), distribution=tuple(distribution))
 
 
-def _photo(r: _Reader, t: dict, path: str, root: Path) -> str:
-    """The model photograph's path when it names an image file inside the campaign folder."""
-    text = r.get(t, path, "photo", "str", "")
+def _campaign_file(
+    r: _Reader, t: dict, path: str, key: str, root: Path, *, fatal: bool = False
+) -> tuple[str, bytes] | None:
+    """The relative path and bytes of the file ``key`` names, if it is a regular file inside the
+    campaign folder (links followed); None, with the problem, otherwise or when not given."""
+    text = r.get(t, path, key, "str", "")
     if not text:
-        return ""
+        return None
     pure = PurePosixPath(text.replace("\\", "/"))
     full = root / pure
     try:
@@ -662,24 +672,34 @@ def _photo(r: _Reader, t: dict, path: str, root: Path) -> str:
     except (OSError, RuntimeError):
         inside = False
     if not inside:
-        r.problem(f"{path}.photo", "a path inside the campaign folder", repr(text),
-                  "Copy it into the campaign folder and name it relative to it.")  # fmt: skip
-        return ""
+        r.problem(f"{path}.{key}", "a path inside the campaign folder", repr(text),
+                  "Copy it into the campaign folder and name it relative to it.",
+                  fatal=fatal)  # fmt: skip
+        return None
     if not full.is_file():
-        r.problem(f"{path}.photo", "an existing image file", f"no regular file {text!r}",
-                  "Check the path and its spelling (paths are case-sensitive).")  # fmt: skip
-        return ""
+        r.problem(f"{path}.{key}", "an existing file", f"no regular file {text!r}",
+                  "Check the path and its spelling (paths are case-sensitive).",
+                  fatal=fatal)  # fmt: skip
+        return None
     try:
         with open(full, "rb") as stream:
-            head = stream.read(8)
+            return pure.as_posix(), stream.read()
     except OSError as exc:
-        r.problem(f"{path}.photo", "a readable image file", exc.strerror or str(exc))
+        r.problem(f"{path}.{key}", "a readable file", exc.strerror or str(exc), fatal=fatal)
+        return None
+
+
+def _photo(r: _Reader, t: dict, path: str, root: Path) -> str:
+    """The model photograph's path when it names an image file inside the campaign folder."""
+    found = _campaign_file(r, t, path, "photo", root)
+    if found is None:
         return ""
+    rel, head = found
     if not any(head.startswith(sig) for sig in _IMAGE_SIGNATURES):
         r.problem(f"{path}.photo", f"an image file ({', '.join(_IMAGE_SIGNATURES.values())})",
-                  f"{text!r}, which is not one", "Save the photograph as PNG or JPEG.")  # fmt: skip
+                  f"{rel!r}, which is not one", "Save the photograph as PNG or JPEG.")  # fmt: skip
         return ""
-    return pure.as_posix()
+    return rel
 
 
 def _tunnel(r: _Reader, data: dict) -> TunnelConfig | None:
@@ -795,7 +815,7 @@ def _configurations(r: _Reader, data: dict, model) -> dict[str, Configuration]:
     return out
 
 
-def _instruments(r: _Reader, data: dict) -> InstrumentsConfig:
+def _instruments(r: _Reader, data: dict, root: Path) -> InstrumentsConfig:
     p = "instruments"
     names = (
         "balance",
@@ -814,7 +834,7 @@ def _instruments(r: _Reader, data: dict) -> InstrumentsConfig:
         return r.get(sub[name], f"{p}.{name}", key, kind, 0.0, check)
 
     return InstrumentsConfig(
-        balance=_balance(r, t) if "balance" in t and isinstance(t["balance"], dict) else None,
+        balance=_balance(r, t, root) if isinstance(t.get("balance"), dict) else None,
         scanner_full_scale=r.get(
             sub["scanner"], f"{p}.scanner", "full_scale", "pressure", None, _POSITIVE
         ),
@@ -844,7 +864,7 @@ def _calibrations(r: _Reader, tables: dict[str, dict]) -> dict[str, Calibration]
     return out
 
 
-def _balance(r: _Reader, instruments: dict) -> BalanceConfig | None:
+def _balance(r: _Reader, instruments: dict, root: Path) -> BalanceConfig | None:
     p = "instruments.balance"
     t = instruments["balance"]
     channels = t.get("channels")
@@ -881,9 +901,15 @@ def _balance(r: _Reader, instruments: dict) -> BalanceConfig | None:
                 fatal=True,
             )
     n = len(channels)
-    matrix = _required_array(r, t, p, "matrix", (3, n))
+    calibration = _calibration_file(r, t, p, root, channels)
     second = None
-    if "second_order" in t:
+    if calibration is not None:
+        matrix, second = calibration.matrix, calibration.second_order
+    elif t.get("calibration_file", "") != "":
+        matrix = None  # the file's problems are reported
+    else:
+        matrix = _required_array(r, t, p, "matrix", (3, n))
+    if "second_order" in t and calibration is None:
         second = r.matrix(t["second_order"], f"{p}.second_order", (3, n * (n + 1) // 2), fatal=True)
     if "full_scale" not in t:
         r.problem(f"{p}.full_scale", "3 loads: Fx, Fy [force], Mz [torque]", "nothing", fatal=True)
@@ -918,7 +944,45 @@ def _balance(r: _Reader, instruments: dict) -> BalanceConfig | None:
         u_matrix_relative=r.get(t, p, "u_matrix_relative", "fraction", 0.0, _NON_NEGATIVE),
         alignment_angle=r.get(t, p, "alignment_angle", "angle", 0.0),
         u_alignment_angle=r.get(t, p, "u_alignment_angle", "angle", 0.0, _NON_NEGATIVE),
+        calibration_file=calibration.file if calibration is not None else "",
+        calibration_sha256=calibration.sha256 if calibration is not None else "",
+        coefficient_covariance=calibration.covariance if calibration is not None else None,
     )
+
+
+@dataclass(frozen=True)
+class _FileCalibration:
+    file: str
+    matrix: tuple
+    second_order: tuple | None
+    covariance: tuple | None
+    sha256: str
+
+
+def _calibration_file(r: _Reader, t: dict, p: str, root: Path, channels) -> _FileCalibration | None:
+    """The calibration ``calibration_file`` names (inputs.calibration), or None if not given."""
+    if t.get("calibration_file", "") == "":  # absent, or the template's empty default
+        return None
+    for key in ("matrix", "second_order"):
+        if key in t:
+            r.problem(f"{p}.{key}", f"no {key} beside calibration_file", "both",
+                      "Give the calibration in one place: the file or campaign.toml.",
+                      fatal=True)  # fmt: skip
+    found = _campaign_file(r, t, p, "calibration_file", root, fatal=True)
+    if found is None:
+        return None
+    rel, raw = found
+    table, problems = read_calibration_text(raw, channels, rel)
+    r.problems.extend(problems)
+    if table is None:
+        r.fatal = True
+        return None
+    if table.covariance is not None and t.get("u_matrix_relative"):
+        r.problem(f"{p}.u_matrix_relative", "no u_matrix_relative beside a covariance",
+                  repr(t["u_matrix_relative"]),
+                  f"{rel} gives the coefficients' covariance, propagated in its place; "
+                  "remove u_matrix_relative (the simple option without a file).")  # fmt: skip
+    return _FileCalibration(rel, table.matrix, table.second_order, table.covariance, table.sha256)
 
 
 def _required_array(r: _Reader, t: dict, p: str, key: str, shape):

@@ -108,6 +108,7 @@ KEYS: tuple[Key, ...] = (
     Key("balance", "u_matrix_relative", "number", "relative standard uncertainty of the calibration (applied to each load)", "BalanceConfig.u_matrix_relative"),  # noqa: E501
     Key("balance", "alignment_angle", "angle", "balance x axis relative to tunnel x, positive toward +y", "BalanceConfig.alignment_angle"),  # noqa: E501
     Key("balance", "u_alignment_angle", "angle", "", "BalanceConfig.u_alignment_angle"),
+    Key("balance", "calibration_file", "string", "a CSV inside the campaign folder with the calibration coefficients (linear, optional second order) and optionally their covariance, in place of matrix and second_order; the covariance is propagated in place of u_matrix_relative (docs/input-format.md)", "BalanceConfig.calibration_file"),  # noqa: E501
     Key("balance", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
     Key("balance", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
     # [scanner]

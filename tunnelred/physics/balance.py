@@ -25,6 +25,7 @@ from tunnelred.common._arraylike import ArrayLike, Values, arraylike
 __all__ = [
     "TareRangeError",
     "loads_from_signals",
+    "calibration_terms",
     "signals_from_loads",
     "interpolate_zero",
     "tare_loads",
@@ -160,6 +161,35 @@ def loads_from_signals(
     if second_order is not None:
         loads = loads + _apply(second_order, _products(signals, n))
     return loads
+
+
+def calibration_terms(signals: npt.ArrayLike, *, second_order: bool) -> np.ndarray:
+    """The terms each load's calibration coefficients multiply: s_i, then s_i s_j (i ≤ j).
+
+    ``loads_from_signals(s, M, S) == calibration_terms(s, second_order=True) @ hstack([M, S]).T``
+    (without S: the signals alone), so the loads are linear in the coefficients and
+    ∂F_r/∂K_rt = term t: what propagates the coefficients' covariance.
+
+    Parameters
+    ----------
+    signals : array_like, shape (..., n)
+        Zero-corrected channel signals.
+    second_order : bool
+        Append the products s_i s_j, i ≤ j, row-major.
+
+    Returns
+    -------
+    numpy.ndarray, shape (..., n) or (..., n + n(n+1)/2)
+
+    Examples
+    --------
+    >>> calibration_terms([2.0, 3.0], second_order=True)
+    array([2., 3., 4., 6., 9.])
+    """
+    signals = np.asarray(signals, dtype=float)
+    if not second_order:
+        return signals
+    return np.concatenate([signals, _products(signals, signals.shape[-1])], axis=-1)
 
 
 def signals_from_loads(

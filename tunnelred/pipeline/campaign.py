@@ -305,6 +305,12 @@ def _code_digest() -> str:
     return digest.hexdigest()
 
 
+def _calibration_sha(campaign) -> str:
+    """SHA-256 of the balance calibration file, the one input outside campaign.toml and logs."""
+    balance = campaign.config.instruments.balance
+    return balance.calibration_sha256 if balance is not None else ""
+
+
 def _key(campaign, run_id: str, monte_carlo: int, rows: dict[str, str]) -> str:
     # ``rows`` holds the row records made so far: zero and tare rows serve many runs.
     for rid in campaign.dependencies(run_id):
@@ -314,6 +320,7 @@ def _key(campaign, run_id: str, monte_carlo: int, rows: dict[str, str]) -> str:
         "tunnelred": __version__,
         "code": _code_digest(),
         "config": campaign.config.sha256,
+        "calibration": _calibration_sha(campaign),
         "monte_carlo": int(monte_carlo),
         "runs": [rows[rid] for rid in campaign.dependencies(run_id)],
     }
@@ -633,7 +640,7 @@ def _select(campaign, run_ids) -> list[str]:
 
 def _token(campaign, keys: dict[str, str]) -> str:
     """A hash of every input: a long-lived dask worker reopens a campaign that has changed."""
-    text = json.dumps([campaign.config.sha256, sorted(keys.values())])
+    text = json.dumps([campaign.config.sha256, _calibration_sha(campaign), sorted(keys.values())])
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 

@@ -936,7 +936,10 @@ def _instrument_rows(cfg) -> list[list[str]]:
         fs = ", ".join(f"{_number(f, 3)}" for f in bal.full_scale)
         u_fs = ", ".join(f"{100 * f:g} %" for f in bal.u_fraction_of_full_scale)
         text = f"{u_fs} of full scale ({fs} N, N, N·m)"
-        if bal.u_matrix_relative:
+        if bal.coefficient_covariance is not None:
+            count = len(bal.coefficient_covariance)
+            text += f"; covariance of the {count} calibration coefficients ({bal.calibration_file})"
+        elif bal.u_matrix_relative:
             text += f"; calibration matrix {100 * bal.u_matrix_relative:g} %"
         if bal.u_alignment_angle:
             text += f"; alignment {bal.u_alignment_angle:g}°"
@@ -1106,6 +1109,10 @@ BUDGET_INPUTS: dict[str, tuple[str, str]] = {
     "Fy_tare": ("spin tare Fy", "N"),
     "Mz_tare": ("spin tare Mz", "N·m"),
     "calibration": ("balance calibration factor", "–"),
+    "calibration_coefficients": (
+        "balance calibration coefficients (with covariance)",
+        "per channel unit",
+    ),
     "alignment": ("balance alignment angle", "deg"),
     "flow_angle": ("flow angularity", "deg"),
     "height": ("test-section height", "m"),

@@ -388,6 +388,9 @@ def _provenance(results: list[RunResult], campaign, methods: dict) -> dict:
             except OSError:
                 # A missing or unreadable input is a failed run's problem, reported there.
                 inputs[rel] = ""
+        balance = campaign.config.instruments.balance
+        if balance is not None and balance.calibration_file:
+            inputs[balance.calibration_file] = balance.calibration_sha256
     else:
         title = facility = config_sha256 = campaign_path = ""
         inputs = {}
