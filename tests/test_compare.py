@@ -511,3 +511,68 @@ def test_dataset_input_and_pairing_by_speed_and_re():
     by_re = compare.comparison_table(ds, by="re", names=["CL"])
     assert set(by_re.config_a) == {"B"} and set(by_re.config_b) == {"A"}
     assert (by_re.Re_a == by_re.Re_b).all()
+
+
+def test_paired_difference_uncertainty_against_monte_carlo():
+    # The stated u(Δ) of paired points against the scatter of Δ over 2000 noise draws of both
+    # sweeps (JCGM 101:2008, propagation by sampling). B is measured 0.01–0.03 off A's α, on the
+    # same straight line (no curvature term), so the band is first order in the errors alone:
+    # (N−1) s²/u² ~ χ²(N−1), the 99.9 % interval of scipy.stats.chi2 bounds the ratio.
+    draws, r, u_cl, u_alpha = 2000, -0.5, 0.02, 0.002
+    a = sweep_frame("A", r=r, u_alpha=u_alpha)
+    b = sweep_frame("B", r=r, u_alpha=u_alpha, t0="2031-05-02T08:00:00")
+    b["alpha"] = b["alpha"] + np.array([0.0, 0.01, -0.02, 0.03, 0.01, -0.01, 0.02])
+    b["CL"] = -2.0 * math.pi * 0.8 * b["alpha"]
+    sa, sb = compare.find_sweeps(pd.concat([a, b], ignore_index=True))
+    d = compare.paired_difference(sa, sb, "CL")
+    assert d.covered.all() and d.delta.size == 7
+    rng = np.random.default_rng(5)
+    deltas = np.empty((draws, d.delta.size))
+    for k in range(draws):
+        noisy = []
+        for sweep in (sa, sb):
+            z1, z2 = rng.standard_normal((2, len(sweep.runs)))
+            arrays = sweep.arrays | {
+                "CL": sweep.arrays["CL"] + u_cl * z1,
+                "alpha": sweep.arrays["alpha"] + u_alpha * (r * z1 + math.sqrt(1 - r * r) * z2),
+            }
+            noisy.append(dataclasses.replace(sweep, arrays=arrays))
+        deltas[k] = compare.paired_difference(*noisy, "CL").delta
+    low, high = stats.chi2.ppf([0.0005, 0.9995], draws - 1) / (draws - 1)
+    ratio2 = deltas.var(axis=0, ddof=1) / d.u**2
+    assert np.all((ratio2 > low) & (ratio2 < high)), ratio2
+
+
+def test_flagged_runs_are_left_out_but_not_for_repeat_disagreement():
+    # A run flagged for a measurement fault is not compared; `repeat_disagreement` is itself a
+    # comparison of the runs at one set point (a real hysteresis raises it), so it keeps the run.
+    up = sweep_frame(spins=[0, 200, 400, 600, 400, 200, 0], u_alpha=0.0)
+    up["flags"] = ["", "zero_shift", "", "", "repeat_disagreement", "", ""]
+    legs = compare.find_sweeps(up)
+    assert legs[0].arrays["flagged"].tolist() == [False, True, False, False]
+    d = compare.hysteresis(*legs, "CL")
+    assert d.alpha.tolist() == pytest.approx([0.0, 1 / 3])  # the pair at 200 rpm is gone
+    with_all = compare.hysteresis(*legs, "CL", include_flagged=True)
+    assert with_all.alpha.size == 3
+
+
+def test_compare_command_options(tmp_path, capsys):
+    from tunnelred.cli import main
+
+    folder = tmp_path / "out"
+    folder.mkdir()
+    _two_configs().to_csv(folder / "results.csv", index=False)
+    dest = tmp_path / "cmp"
+    assert (
+        main(["compare", str(folder), "--method", "grid", "--max-gap", "0.2", "-o", str(dest)]) == 0
+    )
+    table = pd.read_csv(dest / "comparison.csv")
+    curves = table[table.alpha.notna()]
+    assert set(curves.method) == {"grid"}
+    assert main(["compare", str(folder), "--pair-tolerance", "-1", "-o", str(dest)]) == 2
+    assert "--pair-tolerance" in capsys.readouterr().err
+    # The defaults the help states are the library's.
+    assert main(["compare", "--help"]) == 0
+    text = " ".join(capsys.readouterr().out.split())
+    assert f"(default {compare.PAIR_TOLERANCE:g})" in text
+    assert f"default {compare.GAP_FACTOR:g} times the median step" in text
