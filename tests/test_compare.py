@@ -248,6 +248,16 @@ def test_known_lift_increment_is_recovered_within_uncertainty():
     assert d.significant[d.covered].all()
 
 
+def _noisy(sweep, rng, u_cl: float, u_alpha: float, r: float):
+    """The sweep with normal noise on CL and α, correlated r (as sweep_frame draws it)."""
+    z1, z2 = rng.standard_normal((2, len(sweep.runs)))
+    arrays = sweep.arrays | {
+        "CL": sweep.arrays["CL"] + u_cl * z1,
+        "alpha": sweep.arrays["alpha"] + u_alpha * (r * z1 + math.sqrt(1 - r * r) * z2),
+    }
+    return dataclasses.replace(sweep, arrays=arrays)
+
+
 def test_difference_uncertainty_against_monte_carlo():
     # The stated u(Δ) against the scatter of Δ over 2000 independent noise draws of both sweeps
     # (JCGM 101:2008: propagation by sampling). With a linear truth the first-order band is
@@ -265,14 +275,7 @@ def test_difference_uncertainty_against_monte_carlo():
     rng = np.random.default_rng(99)
     deltas = np.empty((draws, grid.size))
     for k in range(draws):
-        noisy = []
-        for sweep in (sa, sb):
-            z1, z2 = rng.standard_normal((2, len(sweep.runs)))
-            arrays = sweep.arrays | {
-                "CL": sweep.arrays["CL"] + u_cl * z1,
-                "alpha": sweep.arrays["alpha"] + u_alpha * (r * z1 + math.sqrt(1 - r * r) * z2),
-            }
-            noisy.append(dataclasses.replace(sweep, arrays=arrays))
+        noisy = [_noisy(sweep, rng, u_cl, u_alpha, r) for sweep in (sa, sb)]
         deltas[k] = compare.difference(*noisy, "CL", grid=grid).delta
     low, high = stats.chi2.ppf([0.0005, 0.9995], draws - 1) / (draws - 1)
     ratio2 = deltas.var(axis=0, ddof=1) / u**2
@@ -529,14 +532,7 @@ def test_paired_difference_uncertainty_against_monte_carlo():
     rng = np.random.default_rng(5)
     deltas = np.empty((draws, d.delta.size))
     for k in range(draws):
-        noisy = []
-        for sweep in (sa, sb):
-            z1, z2 = rng.standard_normal((2, len(sweep.runs)))
-            arrays = sweep.arrays | {
-                "CL": sweep.arrays["CL"] + u_cl * z1,
-                "alpha": sweep.arrays["alpha"] + u_alpha * (r * z1 + math.sqrt(1 - r * r) * z2),
-            }
-            noisy.append(dataclasses.replace(sweep, arrays=arrays))
+        noisy = [_noisy(sweep, rng, u_cl, u_alpha, r) for sweep in (sa, sb)]
         deltas[k] = compare.paired_difference(*noisy, "CL").delta
     low, high = stats.chi2.ppf([0.0005, 0.9995], draws - 1) / (draws - 1)
     ratio2 = deltas.var(axis=0, ddof=1) / d.u**2
