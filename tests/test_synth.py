@@ -387,3 +387,73 @@ def test_demo_imports_none_of_the_formulas_it_checks():
                 and a.name in ("physics", "engine", "products")
             ]
             assert not bad, f"{module.name} imports {bad}"
+
+
+# --- systematic errors drawn from the declared uncertainties -----------------------------------
+
+
+@pytest.fixture(scope="module")
+def with_errors(small, tmp_path_factory):
+    dest = tmp_path_factory.mktemp("errors")
+    truth = make_campaign(dest, replace(small_spec(), systematic_errors=True))
+    return dest, truth.set_index("run")
+
+
+def test_systematic_errors_are_hidden_from_campaign_toml(small, with_errors):
+    # The reduction reads campaign.toml: it must state the declared values only.
+    (exact, truth_exact), (erred, truth) = small, with_errors
+    assert (exact / "campaign.toml").read_bytes() == (erred / "campaign.toml").read_bytes()
+    assert "true_diameter" not in truth_exact.columns
+    spec = small_spec()
+    assert np.all(truth["true_diameter"] != spec.diameter)
+    # Per campaign: one true diameter; per run: a new pitot zero.
+    assert truth["true_diameter"].nunique() == 1
+    assert truth["error_pitot_zero"].nunique() == len(truth)
+
+
+def test_instruments_read_with_the_drawn_errors(small, with_errors):
+    # The noise comes from the campaign's own random stream, the errors from another, so the
+    # same run's readings differ by exactly the errors truth.csv records (to the logs' rounding):
+    # an offset for the thermometer, barometer, hygrometer; gain and zero for the pitot.
+    (exact, _), (erred, truth) = small, with_errors
+    for run in truth.index:
+        a = pd.read_csv(exact / f"logs/{run}_tunnel.csv")
+        b = pd.read_csv(erred / f"logs/{run}_tunnel.csv")
+        e = truth.loc[run]
+        assert np.allclose(b["T [degC]"] - a["T [degC]"], e["error_thermometer"], atol=0.011)
+        assert np.allclose(
+            b["p_baro [hPa]"] - a["p_baro [hPa]"], e["error_barometer"] / 100, atol=0.011
+        )
+        assert np.allclose(b["RH [%]"] - a["RH [%]"], 100 * e["error_hygrometer"], atol=0.11)
+        want = a["dp_pitot [Pa]"] * (1 + e["error_pitot_gain"]) + e["error_pitot_zero"]
+        assert np.allclose(b["dp_pitot [Pa]"], want, rtol=0, atol=1.1e-3)
+        a = pd.read_csv(exact / f"logs/{run}_balance.csv")["speed [rpm]"]
+        b = pd.read_csv(erred / f"logs/{run}_balance.csv")["speed [rpm]"]
+        assert np.allclose(b, a * (1 + e["error_tachometer"]), atol=0.06)
+
+
+def test_drawn_errors_spread_as_declared():
+    # Over many seeds each error's sample standard deviation is the declared u: for n normal
+    # draws (n − 1) s²/u² follows chi-square with n − 1 degrees of freedom (scipy.stats.chi2);
+    # its 0.1 % and 99.9 % quantiles bound s/u.
+    from scipy.stats import chi2
+
+    from tunnelred.demo.systematics import draw_systematics
+
+    spec = small_spec()
+    draws = [draw_systematics(replace(spec, seed=k), 1) for k in range(400)]
+    n = len(draws)
+    low, high = (np.sqrt(chi2.ppf(p, n - 1) / (n - 1)) for p in (0.001, 0.999))
+    declared = {
+        "diameter": spec.u_diameter,
+        "flow_angle": spec.u_flow_angle,
+        "encoder": spec.u_encoder,
+        "thermometer": spec.u_thermometer,
+        "pitot_gain": spec.u_pitot_relative,
+        "calibration": spec.u_matrix_relative,
+    }
+    for name, u in declared.items():
+        s = np.std([getattr(d, name) for d in draws], ddof=1)
+        assert low < s / u < high, name
+    s = np.std([d.tap_azimuth[0] for d in draws], ddof=1)
+    assert low < s / spec.u_azimuth < high

@@ -277,6 +277,13 @@ class SynthSpec:
         geometry [m], angles [deg], gradient [Pa/m], scanner and pitot [Pa], pitot relative
         [-], thermometer [K], barometer [Pa], hygrometer [-], tachometer relative [-], encoder
         [deg], tubing delay [s], calibration relative [-].
+    u_balance_fraction : (float, float, float)
+        Balance channels' specification u as a fraction of full scale (Fx, Fy, Mz). [-]
+    systematic_errors : bool
+        Whether the instruments, geometry and calibration are off by one seeded draw from the
+        declared u (:mod:`tunnelred.demo.systematics`): campaign.toml keeps the declared values,
+        the forward model runs on the true ones and truth.csv records them. False (the demo):
+        every declared value is exact.
     faults : tuple of Fault
         Flaws to plant.
     report, revision_history : tuple
@@ -382,6 +389,8 @@ class SynthSpec:
     u_azimuth: float = 0.2
     u_tubing_delay: float = 5e-5
     u_matrix_relative: float = 0.001
+    u_balance_fraction: tuple[float, float, float] = (0.0005, 0.0005, 0.0005)
+    systematic_errors: bool = False
     faults: tuple[Fault, ...] = ()
     # The report's control block and the instruments' certificates (campaign.toml [report] and
     # calibration_* keys): an invented laboratory, client and staff.

@@ -40,6 +40,7 @@ from tunnelred.demo.forward import (
     zero_signals,
 )
 from tunnelred.demo.spec import RPM, ScheduledRun, SynthSpec, demo_spec, schedule
+from tunnelred.demo.systematics import Systematics, draw_systematics
 from tunnelred.demo.truth import GRID
 
 __all__ = ["make_campaign", "write_demo_campaign"]
@@ -64,6 +65,15 @@ class _Writer:
         )
         self.tap_delay = np.round(self.rng.uniform(*spec.tap_delay_range, n), 5)
         self.tap_names = tuple(f"tap{k + 1:02d}" for k in range(n))
+        # The declared values above go to campaign.toml; the physics runs on the true ones.
+        data_runs = sum(r.kind == "data" for r in self.runs)
+        if spec.systematic_errors:
+            self.errors = draw_systematics(spec, data_runs)
+        else:
+            self.errors = Systematics.none(n, data_runs)
+        self.physics = self.errors.true_spec(spec)
+        self.true_matrix = np.asarray(self.physics.matrix, dtype=float)
+        self.data_index = -1
         self.zero_steps = []
         for r in self.runs:
             if r.fault is not None and r.fault.kind == "zero_shift":
@@ -83,13 +93,14 @@ class _Writer:
 
     def _balance_log(self, r: ScheduledRun, t, loads, omega) -> str:
         s = self.spec
-        signals = channel_signals(loads, self.matrix)
+        signals = channel_signals(loads, self.true_matrix)
         signals = signals + zero_signals(s, r.start + t, self.zero_steps)
         signals = signals + s.balance_noise * self.rng.standard_normal(signals.shape)
         cols = {"time [s]": (t, 5)}
         for k, name in enumerate(s.channels):
             cols[f"{name} [V]"] = (signals[:, k], 5)
         rpm = omega / RPM * (1.0 + s.tachometer_noise * self.rng.standard_normal(t.size))
+        rpm = rpm * (1.0 + self.errors.tachometer)
         cols["speed [rpm]"] = (rpm, 1)
         return self._write_csv(f"logs/{r.run}_balance.csv", cols)
 
@@ -114,6 +125,9 @@ class _Writer:
 
     def data(self, r: ScheduledRun) -> None:
         s = self.spec
+        true = self.physics  # geometry, flow angle, alignment as they really are
+        errors = self.errors
+        self.data_index += 1
         rng = self.rng
         cfg = self.configs[r.config]
         fault = r.fault.kind if r.fault is not None else ""
@@ -150,20 +164,23 @@ class _Writer:
         U_m = math.sqrt(2.0 * q_m / rho_m)
         # A planted hysteresis offsets the down sweep's true lift (0 in the demo).
         offset = s.down_sweep_lift_offset if r.leg == "down" else 0.0
-        state = in_tunnel(s, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m, lift_offset=offset)
+        state = in_tunnel(
+            true, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m, lift_offset=offset
+        )
 
         # Tunnel log.
         tt = stream_times(rng, s.tunnel_rate, r.duration)
         U_t, rho_t, p_t = (np.interp(tt, tb, x) for x in (U, rho, p))
-        dp = pitot_reading(rho_t, U_t, p_t) + s.pitot_noise * rng.standard_normal(tt.size)
+        dp = pitot_reading(rho_t, U_t, p_t) * (1.0 + errors.pitot_gain)
+        dp = dp + errors.pitot_zero[self.data_index] + s.pitot_noise * rng.standard_normal(tt.size)
         if fault == "repeat_disagreement":
             dp = dp + r.fault.size
         tunnel_cols = {
             "time [s]": (tt, 4),
             "dp_pitot [Pa]": (dp, 3),
-            "T [degC]": (np.interp(tt, tb, T) - 273.15, 2),
-            "p_baro [hPa]": (p_t / 100.0, 2),
-            "RH [%]": (100.0 * np.interp(tt, tb, RH), 1),
+            "T [degC]": (np.interp(tt, tb, T) + errors.thermometer - 273.15, 2),
+            "p_baro [hPa]": ((p_t + errors.barometer) / 100.0, 2),
+            "RH [%]": (100.0 * (np.interp(tt, tb, RH) + errors.hygrometer), 1),
         }
         if fault == "stream_overlap":
             kept = tt <= r.fault.size * r.duration
@@ -174,9 +191,9 @@ class _Writer:
         t_b = stream_times(rng, s.balance_rate, r.duration)
         U_b, q_b, w_b = (np.interp(t_b, tb, x) for x in (U, q, omega))
         rho_b, mu_b = np.interp(t_b, tb, rho), np.interp(t_b, tb, mu)
-        sample = in_tunnel(s, cfg.end_plates, U_b, q_b, w_b, rho_b, mu_b, lift_offset=offset)
-        area = s.diameter * s.span
-        f_shed = s.shedding_strouhal * U_mean / s.diameter
+        sample = in_tunnel(true, cfg.end_plates, U_b, q_b, w_b, rho_b, mu_b, lift_offset=offset)
+        area = true.diameter * true.span
+        f_shed = s.shedding_strouhal * U_mean / true.diameter
         wander = np.cumsum(rng.standard_normal(t_b.size)) * math.sqrt(
             2.0 * np.pi * 0.1 * f_shed / s.balance_rate
         )
@@ -184,9 +201,9 @@ class _Writer:
         cl_rms = s.shedding_cl_rms * math.exp(-((state["alpha"] / 1.5) ** 2))
         lift = (sample["CL_uncorrected"] + cl_rms * math.sqrt(2.0) * np.sin(phase)) * q_b * area
         drag = (sample["CD_uncorrected"] + 0.1 * cl_rms * np.sin(2.0 * phase)) * q_b * area
-        torque = sample["CM_uncorrected"] * q_b * area * s.diameter / 2.0
-        fx, fy = wind_to_balance(drag, lift, s.alignment_angle - s.flow_angle)
-        loads = np.stack([fx, fy, torque], axis=-1)
+        torque = sample["CM_uncorrected"] * q_b * area * true.diameter / 2.0
+        fx, fy = wind_to_balance(drag, lift, true.alignment_angle - true.flow_angle)
+        loads = np.stack([fx, fy, torque], axis=-1) + errors.balance_loads[self.data_index]
         loads = loads + tare_loads(s, w_b) + imbalance_loads(s, w_b, np.interp(t_b, tb, angle))
         if fault == "overload":
             loads[:, 1] += knock(t_b, r.fault.size * s.full_scale[1])
@@ -210,7 +227,7 @@ class _Writer:
             "rho": rho_m,
             "mu": mu_m,
             "omega": omega_m,
-            "Gamma": 2.0 * math.pi * omega_m * (s.diameter / 2.0) ** 2,
+            "Gamma": 2.0 * math.pi * omega_m * (true.diameter / 2.0) ** 2,
         }
         # + 0.0 turns the -0.0 of a run at rest into 0.0.
         for k in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
@@ -222,29 +239,34 @@ class _Writer:
         for k in ("U", "q", "Re", "alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p"):
             row[f"{k}_uncorrected"] = float(state[f"{k}_uncorrected"]) + 0.0
         row["L_D_uncorrected"] = row["CL_uncorrected"] / row["CD_uncorrected"]
+        if s.systematic_errors:
+            row.update(errors.truth_columns(s, self.data_index, self.tap_names))
         self.truth.append(row)
 
     def _pressure_log(self, r, tb, q, rho, omega, angle, state, fault) -> str:
         s = self.spec
+        errors = self.errors
         rng = self.rng
         tp = stream_times(rng, s.pressure_rate, r.duration)
         q_p, rho_p, w_p = (np.interp(tp, tb, x) for x in (q, rho, omega))
-        head = tubing_head(rho_p, w_p, s.diameter / 2.0, s.transducer_radius)
-        delayed = tp[:, None] - self.tap_delay[None, :]
-        theta = np.interp(delayed, tb, angle) + np.deg2rad(self.tap_azimuth)[None, :]
+        head = tubing_head(rho_p, w_p, self.physics.diameter / 2.0, s.transducer_radius)
+        # Each tap where it really is, through the tubing it really has.
+        delayed = tp[:, None] - (self.tap_delay + errors.tap_delay)[None, :]
+        azimuth = np.deg2rad(self.tap_azimuth + errors.tap_azimuth)
+        theta = np.interp(delayed, tb, angle) + azimuth[None, :]
         cp = tunnel_cp(theta, state)
         if fault == "dead_tap":
             k = int(r.fault.size)
             cp[:, k] = np.mean(tunnel_cp(GRID, state))
         noise = np.hypot(s.tap_noise * q_p, s.tap_noise_floor)[:, None]
         taps = cp * q_p[:, None] - head[:, None] + noise * rng.standard_normal(cp.shape)
+        taps = taps + errors.scanner[None, :]
         if fault == "cl_disagreement":
             taps = taps * (1.0 + r.fault.size)
         elif fault == "stagnation_cp":
             taps = taps - r.fault.size
-        counts = np.floor(
-            np.mod(np.rad2deg(np.interp(tp, tb, angle)), 360.0) / 360.0 * s.encoder_counts
-        )
+        encoder = np.rad2deg(np.interp(tp, tb, angle)) + errors.encoder
+        counts = np.floor(np.mod(encoder, 360.0) / 360.0 * s.encoder_counts)
         cols = {"time [s]": (tp, 5), "angle [deg]": (counts * 360.0 / s.encoder_counts, 3)}
         for k, name in enumerate(self.tap_names):
             cols[f"{name} [Pa]"] = (taps[:, k], 2)
@@ -396,7 +418,7 @@ def _campaign_toml(w: _Writer) -> str:
             ("channels", list(s.channels)),
             ("matrix", [list(row) for row in s.matrix]),
             ("full_scale", list(s.full_scale)),
-            ("u_fraction_of_full_scale", [0.0005, 0.0005, 0.0005]),
+            ("u_fraction_of_full_scale", list(s.u_balance_fraction)),
             ("u_matrix_relative", s.u_matrix_relative),
             ("alignment_angle", f"{s.alignment_angle:g} deg"),
             ("u_alignment_angle", f"{s.u_alignment_angle:g} deg"),
