@@ -93,6 +93,7 @@ _BUDGET_ROWS = 6  # contributors listed per output
 _SECTION_ROOM = 70 * mm  # least room below a section heading for it to start on this page
 _TABLE_ROOM = 35 * mm  # least room for a table's caption and first rows
 _FIGURE_ROOM = 95 * mm  # least room below a heading for the figure that follows it
+_LINE_ROOM = 14 * mm  # a heading and one line of text
 _PLOT_SIZE = (7.4, 3.5)  # inches, for figures drawn for the report
 _GRID = colors.HexColor("#b0b0b0")
 _HEAD_FILL = colors.HexColor("#e4ecf4")
@@ -1406,12 +1407,19 @@ def _quality(b: _Builder, data: _Inputs) -> None:
         )
     else:
         b.add(b.p("No run raised a quality flag."))
+    _failed_runs(b, data)
+    # The figure after the short lists, so that a one-line list never takes a page of its own.
     if "spin_scatter" in data.ds and np.isfinite(data.column("spin_scatter")).any():
-        ax = plotting.plot_steadiness(data.ds, "spin_scatter", ax=_axes((7.2, 3.0)))
+        # A low strip: one measure along the runs needs no more height, and it fits below
+        # the flag table instead of taking a page of its own.
+        ax = plotting.plot_steadiness(data.ds, "spin_scatter", ax=_axes((7.2, 2.4)))
         b.figure(ax.figure, f"{b.next_figure()} Spin-ratio scatter of every run against its "
-                 "tolerance; flagged runs labelled.")  # fmt: skip
+                 "tolerance; flagged runs labelled.", width=0.85 * _WIDTH)  # fmt: skip
+
+
+def _failed_runs(b: _Builder, data: _Inputs) -> None:
     failures = data.failures
-    b.subsection("Runs that could not be reduced")
+    b.subsection("Runs that could not be reduced", _LINE_ROOM if failures.empty else _TABLE_ROOM)
     if failures.empty:
         b.add(b.p("Every data run was reduced."))
         return
