@@ -21,37 +21,14 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 import pytest  # noqa: E402
 
-from tunnelred.demo.spec import demo_spec  # noqa: E402
+from tunnelred.demo.spec import twin_spec  # noqa: E402
 from tunnelred.demo.writer import make_campaign  # noqa: E402
-from tunnelred.inputs.config import Configuration  # noqa: E402
 from tunnelred.pipeline.campaign import reduce_campaign  # noqa: E402
 from tunnelred.products import compare, plotting  # noqa: E402
 from tunnelred.products.store import read_results  # noqa: E402
 
 NULL_RATE = 0.05  # the false-positive rate allowed (the brief)
 PLANTED = 0.3  # ΔCL added to the true lift of every down-sweep run of the planted campaign
-
-
-def _spec(seed: int, **changes):
-    base = demo_spec(seed)
-    twins = (
-        Configuration("one", "bare cylinder, first entry", False, None, {"cl_agreement": 0.2}),
-        Configuration("two", "bare cylinder, second entry", False, None, {"cl_agreement": 0.2}),
-    )
-    return replace(
-        base,
-        configurations=twins,
-        speeds=(6.0, 12.0),
-        spin_ratios_up=(0.0, 0.5, 1.0, 1.5, 2.0, 2.5, 3.0),
-        spin_ratios_down=(2.5, 1.5, 0.5),
-        pressure_speeds=(),
-        repeat_point=None,
-        repeat_count=0,
-        tare_rpms=(400.0, 1500.0, 3500.0, 6000.0),
-        faults=(),
-        wind_off_duration=1.0,
-        **changes,
-    )
 
 
 def _reduce(root, spec) -> pd.DataFrame:
@@ -64,13 +41,13 @@ def _reduce(root, spec) -> pd.DataFrame:
 @pytest.fixture(scope="module")
 def null_campaign(tmp_path_factory):
     """Two identical configurations, two speeds, up and down sweeps: no difference anywhere."""
-    return _reduce(tmp_path_factory.mktemp("null"), _spec(31))
+    return _reduce(tmp_path_factory.mktemp("null"), twin_spec(31))
 
 
 @pytest.fixture(scope="module")
 def planted_campaign(tmp_path_factory):
     """One configuration at one speed whose down sweep's true CL is PLANTED higher."""
-    spec = _spec(32, down_sweep_lift_offset=PLANTED)
+    spec = twin_spec(32, down_sweep_lift_offset=PLANTED)
     spec = replace(spec, configurations=spec.configurations[:1], speeds=(9.0,))
     return _reduce(tmp_path_factory.mktemp("planted"), spec)
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 from tunnelred.inputs.config import Configuration
 
-__all__ = ["FAULT_KINDS", "Fault", "SynthSpec", "demo_spec"]
+__all__ = ["FAULT_KINDS", "Fault", "SynthSpec", "demo_spec", "twin_spec"]
 
 #: Faults that :class:`SynthSpec` can plant, as named in truth.csv ``planted_fault``. Each is
 #: named for the quality flag (:data:`tunnelred.engine.quality.FLAG_NAMES`) it is built to
@@ -580,3 +580,35 @@ def demo_spec(seed: int = 2026) -> SynthSpec:
             Fault("zero_shift", "bare", 6.0, 2.0, 0.006),
         ),
     )
+
+
+def twin_spec(seed: int = 31, **changes) -> SynthSpec:
+    """A null campaign for comparisons: two entries of one bare model, nothing to find.
+
+    Configurations ``one`` and ``two`` are the same model (one truth), run at 6 and 12 m/s,
+    swept up from 0 to 3 in steps of 0.5 and down at 2.5, 1.5 and 0.5 (one truth both ways);
+    no pressure logs, repeats or faults. ``changes`` replace fields, e.g.
+    ``down_sweep_lift_offset`` to plant a hysteresis.
+
+    Examples
+    --------
+    >>> [c.label for c in twin_spec().configurations], twin_spec().spin_ratios_down
+    (['one', 'two'], (2.5, 1.5, 0.5))
+    """
+    twins = (
+        Configuration("one", "bare cylinder, first entry", False, None, {"cl_agreement": 0.2}),
+        Configuration("two", "bare cylinder, second entry", False, None, {"cl_agreement": 0.2}),
+    )
+    settings = dict(
+        seed=seed,
+        configurations=twins,
+        speeds=(6.0, 12.0),
+        spin_ratios_up=(0.0, 0.5, 1.0, 1.5, 2.0, 2.5, 3.0),
+        spin_ratios_down=(2.5, 1.5, 0.5),
+        pressure_speeds=(),
+        repeat_point=None,
+        repeat_count=0,
+        tare_rpms=(400.0, 1500.0, 3500.0, 6000.0),
+        wind_off_duration=1.0,
+    )
+    return SynthSpec(**(settings | changes))
