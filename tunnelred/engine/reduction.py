@@ -16,6 +16,7 @@ runs independent for the parallel engine.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -291,6 +292,7 @@ class _PressurePoints:
     grid: np.ndarray  # bin centres of the results' theta grid [deg]
     grid_index: np.ndarray  # bin of each point on that grid
     count: np.ndarray  # samples per grid bin
+    share: np.ndarray  # (points, taps): the fraction of each point's samples from each tap [-]
 
 
 def _components(values) -> tuple[float, ...]:
@@ -326,8 +328,15 @@ def _pressure_inputs(
     counts = np.bincount(cells.ravel(), minlength=size)
     with np.errstate(invalid="ignore", divide="ignore"):
         per_tap = (sums / counts).reshape(len(names), bins)
-    tolerance = cfg.tolerances_for(data.spec.config).dead_tap
-    dead = pressure.find_dead_taps(names, per_tap, tolerance=tolerance)
+    tolerances = cfg.tolerances_for(data.spec.config)
+    u_per_tap = None
+    if spinning:
+        per_tap, u_per_tap = _tap_comparison(
+            cfg, thetas, cells, counts, per_tap, q_mean, omega_mean
+        )
+    dead = pressure.find_dead_taps(
+        names, per_tap, tolerance=tolerances.dead_tap, u=u_per_tap, k=tolerances.agreement_k
+    )
     measures["dead_taps"] = dead
     keep = [i for i, name in enumerate(names) if name not in dead]
     if not keep:
@@ -338,13 +347,21 @@ def _pressure_inputs(
         binned = pressure.bin_cp(thetas[keep], readings[keep], bins=bins, revolution=turns[keep])
         # A bin seen on a single pass has no between-revolution scatter to judge it by.
         filled = np.flatnonzero((binned.count > 0) & np.isfinite(binned.u_mean))
+        mean = binned.mean[filled]
+        # A bin's mean is Cp at its samples' azimuths, not at its centre: to second order it
+        # exceeds Cp(centre) by Cp' d + Cp'' (s² + d²)/2 (Taylor about the centre).
+        slope, curvature = pressure.azimuth_derivatives(binned.theta[filled], mean)
+        at_centre = mean - slope * binned.offset[filled] - 0.5 * curvature * binned.spread[filled]
+        share = np.zeros((filled.size, len(names)))
+        share[:, keep] = (binned.series_count[:, filled] / binned.count[filled]).T
         points = _PressurePoints(
             binned.theta[filled],
-            binned.mean[filled],
+            at_centre,
             binned.u_mean[filled],
             grid,
             filled,
             binned.count.astype(float),
+            share,
         )
     else:
         # A model at rest: each tap is one point at its fixed azimuth.
@@ -359,12 +376,45 @@ def _pressure_inputs(
             grid,
             index,
             count.astype(float),
+            np.eye(len(names))[keep],
         )
-    u_offsets = [
-        np.hypot(tap.u_azimuth, np.degrees(omega_mean) * tap.u_tubing_delay) for tap in cfg.taps
-    ]
-    u_theta = float(np.hypot(np.sqrt(np.mean(np.square(u_offsets))), cfg.instruments.u_encoder))
-    return points, u_theta, sorted(dead)
+    return points, sorted(dead)
+
+
+def _tap_comparison(cfg, thetas, cells, counts, per_tap, q_mean: float, omega_mean: float):
+    """Each tap's bin means at the bin centres, and their u from the tap's own errors.
+
+    The taps' bin means are compared with each other (pressure.find_dead_taps). Each tap leaves
+    its samples at its own azimuths within a bin, so its mean is first brought to the bin centre
+    (as the pooled bins are, second order in the offset); the slope of the taps' median curve
+    then turns each tap's azimuth uncertainty (installed azimuth, tubing delay times ω) into Cp,
+    and its scanner port adds u_scanner / q.
+    """
+    bins = per_tap.shape[1]
+    width = 360.0 / bins
+    from_centre = np.mod(thetas, 360.0) - (np.mod(cells, bins) + 0.5) * width
+    size = per_tap.size
+    with np.errstate(invalid="ignore", divide="ignore"):
+        offset = np.bincount(cells.ravel(), from_centre.ravel(), size) / counts
+        square = np.bincount(cells.ravel(), (from_centre**2).ravel(), size) / counts
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a bin no tap saw
+        reference = np.nanmedian(per_tap, axis=0)
+    seen = np.flatnonzero(np.isfinite(reference))
+    slope = np.zeros(bins)
+    curvature = np.zeros(bins)
+    centres = (seen + 0.5) * width
+    slope[seen], curvature[seen] = pressure.azimuth_derivatives(centres, reference[seen])
+    at_centre = (
+        per_tap
+        - slope * offset.reshape(per_tap.shape)
+        - 0.5 * curvature * square.reshape(per_tap.shape)
+    )
+    u_azimuth = np.array(
+        [np.hypot(t.u_azimuth, np.degrees(omega_mean) * t.u_tubing_delay) for t in cfg.taps]
+    )
+    u_cp = np.hypot(slope[None, :] * u_azimuth[:, None], cfg.instruments.u_scanner / q_mean)
+    return at_centre, u_cp
 
 
 def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dead: list[str]):
@@ -372,10 +422,11 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
 
     A model at rest sees only its taps' azimuths; runs at other index angles fill the circle.
     Their readings are brought to this run's q (Cp is what is shared), bin counts are added, and
-    a tap dead in any of the runs is reported.
+    a tap dead in any of the runs is reported. A tap's scanner port is the same in every run, so
+    its error enters the other runs' points too, scaled with their readings.
     """
     thetas, readings, u = [points.theta], [points.reading], [points.u_reading]
-    index, count = [points.grid_index], points.count.copy()
+    index, count, share = [points.grid_index], points.count.copy(), [points.share]
     for other in spec.pressure_with:
         data = _load(campaign, other)
         flow = conditions.free_stream(data.streams["tunnel"], campaign.config)
@@ -385,7 +436,7 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
         alpha_other = conditions.spin_ratio(
             omega_other, campaign.config.model.radius, float(np.mean(flow["U"].to_numpy()))
         )
-        extra, _, dead_other = _pressure_inputs(
+        extra, dead_other = _pressure_inputs(
             campaign, data, q_other, omega_other, quality.is_spinning(alpha_other), {}
         )
         scale = q_mean / q_other
@@ -393,6 +444,7 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
         readings.append(extra.reading * scale)
         u.append(extra.u_reading * scale)
         index.append(extra.grid_index)
+        share.append(extra.share * scale)
         count += extra.count
         dead += [f"{tap} ({other})" for tap in dead_other]
     merged = _PressurePoints(
@@ -402,6 +454,7 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
         points.grid,
         np.concatenate(index),
         count,
+        np.concatenate(share),
     )
     return merged, dead
 
@@ -455,16 +508,17 @@ def _run_model(
     cfg,
     *,
     has_balance: bool,
-    theta_bins: np.ndarray | None,
-    integrate: bool,
+    pressure_points=None,
+    integrate: bool = False,
     calibration: _CalibrationStep | None = None,
 ):
     """The vectorised map from run-level inputs to every reported quantity.
 
-    ``theta_bins`` are the azimuths of the pressure points (None: no pressure log);
-    ``integrate`` is False when they leave a gap too wide for the pressure forces;
+    ``pressure_points`` is the run's :class:`_PressureModel` (None: no pressure log);
+    ``integrate`` is False when its points leave a gap too wide for the pressure forces;
     ``calibration`` adds the loads' change with the balance coefficients (calibration_file).
     """
+    theta_bins = None if pressure_points is None else pressure_points.theta
     model_cfg, red = cfg.model, cfg.reduction
     # Config resolved the method once (the 3-D substitution included); it is applied as it is.
     method = corrections.METHODS[red.blockage]
@@ -516,16 +570,18 @@ def _run_model(
         cp_u = None
         CL_p, CD_p = nan, nan
         if theta_bins is not None:
+            pm = pressure_points
             head = pressure.centrifugal_head(rho, omega, radius, model_cfg.transducer_radius)
-            p_tap = x["p_bin"] + x["p_scanner"] + head[..., None]
+            # Each point pools its taps' samples: their scanner ports' errors and azimuth errors
+            # enter in the shares of their samples; an azimuth error δ (assigned minus true
+            # azimuth) read the curve at θ − δ, so Cp(θ) is the reading plus its slope times δ.
+            delta = x["tap_azimuth"] @ pm.share.T + x["encoder"][..., None]
+            # The delays were turned into azimuth with the measured spin rate: its error too.
+            delta = delta - np.degrees((omega - pm.omega)[..., None] * pm.delay)
+            p_tap = x["p_bin"] + x["p_scanner"] @ pm.share.T + pm.slope * delta + head[..., None]
             cp_u = p_tap / q_u[..., None]
         if theta_bins is not None and integrate:
-            CL_0, CD_0 = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
-            # An azimuth error delta turns the measured Cp(theta) into Cp(theta + delta),
-            # which rotates the integrated force by delta.
-            delta = np.radians(x["theta_offset"])
-            CL_p = CL_0 * np.cos(delta) - CD_0 * np.sin(delta)
-            CD_p = CD_0 * np.cos(delta) + CL_0 * np.sin(delta)
+            CL_p, CD_p = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
         cd_for_wake = coeffs["CD"] if has_balance else CD_p
         cl_for_lift = coeffs["CL"] if has_balance else CL_p
         wc = corrections.wall_correction(
@@ -582,10 +638,11 @@ def _run_model(
             out["Cp"] = corrected["Cp"]
             out["Cp_uncorrected"] = cp_u
             features = theory.surface_features(theta_bins, out["Cp"], base_arc=red.base_arc)
+            # An azimuth error moves the measured features along θ with the whole curve.
+            mean_delta = np.mean(delta, axis=-1)
             for name, value in features.items():
-                # An azimuth error moves the measured features along θ with the whole curve.
-                shift = x["theta_offset"] if name.startswith("theta") else 0.0
-                out[name] = np.broadcast_to(value + shift, q_u.shape)
+                shift = mean_delta if name.startswith("theta") else 0.0
+                out[name] = np.broadcast_to(value - shift, q_u.shape)
         return out
 
     return model
@@ -671,18 +728,15 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     taps = _pressure_step(campaign, spec, data, q_mean, spin, measures)
     inputs.update(taps.inputs)
 
-    theta_points = None if taps.points is None else taps.points.theta
     model = _run_model(
         cfg,
         has_balance=has_balance,
-        theta_bins=theta_points,
+        pressure_points=taps.model,
         integrate=taps.integrate,
         calibration=calibration,
     )
     correlation = calibration.correlation if calibration is not None else None
-    # The scanner term enters only through p_bin + p_scanner: one set of sensitivities for both.
-    summed = {"p_scanner": "p_bin"} if "p_scanner" in inputs else None
-    linear = propagate_linear(model, inputs, correlation=correlation, summed_with=summed)
+    linear = propagate_linear(model, inputs, correlation=correlation)
 
     values = _run_values(spec, linear, measures, taps.dead_taps)
     theta, profiles = _profiles(taps.points, linear, values["alpha"])
@@ -753,6 +807,17 @@ def _spin_inputs(cfg, data, fs, measures: dict) -> _SpinStep:
 
 
 @dataclass(frozen=True)
+class _PressureModel:
+    """What the run model needs of the pressure points besides their readings (constants)."""
+
+    theta: np.ndarray  # azimuth of each point [deg]
+    share: np.ndarray  # (points, taps): fraction of each point's samples from each tap [-]
+    slope: np.ndarray  # d(reading)/dθ at each point, from the readings [Pa/deg]
+    omega: float  # the spin rate the taps' delays were turned into azimuth with [rad/s]
+    delay: np.ndarray  # each point's sample-weighted tubing delay [s]
+
+
+@dataclass(frozen=True)
 class _PressureStep:
     """The surface-pressure part of a run: its points (None without taps) and their inputs."""
 
@@ -760,25 +825,42 @@ class _PressureStep:
     dead_taps: list[str]
     integrate: bool  # False when the points leave a gap too wide for the pressure forces
     inputs: dict[str, Input]
+    model: _PressureModel | None = None
 
 
 def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measures: dict):
     cfg = campaign.config
     if "pressure" not in data.streams or not cfg.taps:
         return _PressureStep(None, [], False, {})
-    points, u_theta, dead_taps = _pressure_inputs(
+    points, dead_taps = _pressure_inputs(
         campaign, data, q_mean, spin.omega_mean, spin.spinning, measures
     )
     if spec.pressure_with:
         points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
-    n = points.theta.size
+    n_taps = len(cfg.taps)
+    # Each tap's azimuth error: its installed azimuth, and its tubing delay times the spin rate.
+    u_azimuth = [
+        np.hypot(tap.u_azimuth, np.degrees(spin.omega_mean) * tap.u_tubing_delay)
+        for tap in cfg.taps
+    ]
     inputs = {
         "p_bin": Input(points.reading, points.u_reading, "A", "tap pressure per bin"),
         "p_scanner": Input(
-            np.zeros(n), np.full(n, cfg.instruments.u_scanner), "B", "pressure scanner"
+            np.zeros(n_taps), np.full(n_taps, cfg.instruments.u_scanner), "B", "scanner, per tap"
         ),
-        "theta_offset": Input(0.0, u_theta, "B", "tap azimuth (offset, delay, encoder)"),
+        "tap_azimuth": Input(
+            np.zeros(n_taps), np.array(u_azimuth), "B", "tap azimuth, per tap (installed, delay)"
+        ),
+        "encoder": Input(0.0, cfg.instruments.u_encoder, "B", "encoder zero"),
     }
+    delays = np.array([tap.tubing_delay for tap in cfg.taps])
+    model = _PressureModel(
+        points.theta,
+        points.share,
+        _reading_slope(points.theta, points.reading),
+        spin.omega_mean,
+        points.share @ delays,
+    )
     integrate = True
     try:
         pressure.integrate_cp(points.theta, points.reading, max_gap=cfg.reduction.max_tap_gap)
@@ -786,7 +868,15 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
         # The balance result stands; only the pressure forces are left out.
         integrate = False
         measures["pressure_gap"] = str(exc)
-    return _PressureStep(points, dead_taps, integrate, inputs)
+    return _PressureStep(points, dead_taps, integrate, inputs, model)
+
+
+def _reading_slope(theta: np.ndarray, reading: np.ndarray) -> np.ndarray:
+    """dp/dθ at each point [Pa/deg], points at one azimuth (merged index runs) sharing one."""
+    distinct, which = np.unique(np.mod(theta, 360.0), return_inverse=True)
+    mean = np.bincount(which, weights=reading) / np.bincount(which)
+    slope, _ = pressure.azimuth_derivatives(distinct, mean)
+    return slope[which]
 
 
 def _run_values(spec, linear, measures: dict, dead_taps: list[str]) -> dict[str, float | str]:

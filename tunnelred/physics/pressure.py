@@ -419,7 +419,7 @@ def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
         std = np.sqrt(squares / (count - 1))
         from_centre = wrapped - (b + 0.5) * width
         offset = np.bincount(b, weights=from_centre, minlength=bins) / count
-        spread = np.bincount(b, weights=from_centre**2, minlength=bins) / count
+        mean_square_offset = np.bincount(b, weights=from_centre**2, minlength=bins) / count
     std[count < 2] = np.nan
     series_count = np.bincount(series * bins + b, minlength=max(n_series, 1) * bins)
     series_count = series_count.reshape(-1, bins)[: max(n_series, 1)]
@@ -444,7 +444,7 @@ def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
         u_mean=u_mean,
         thin=count < min_count,
         offset=offset,
-        spread=spread,
+        spread=mean_square_offset,
         series_count=series_count,
     )
 
@@ -529,7 +529,8 @@ def integrate_cp(theta, cp, *, max_gap=30.0) -> tuple[float, float]:
     spline [2]_ and the spline times sin θ (cos θ) is integrated to rounding error by 8-point
     Gauss–Legendre quadrature on each interval; the spline's own error is O(h⁴) in the largest
     spacing h. Bin means are averages over their bin: that attenuates the first harmonic, which
-    alone carries CL and CD, by sin(h/2)/(h/2) (0.03 % for 72 bins), left uncorrected.
+    alone carries CL and CD, by sin(h/2)/(h/2) (0.03 % for 72 bins); the reduction corrects its
+    bins to their centres first (docs/methods.md, bin offset).
 
     References
     ----------
@@ -586,7 +587,9 @@ def _flat_std(b) -> float:
     return float(np.std(finite)) if finite.size > 1 else np.nan
 
 
-def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> dict[str, str]:
+def find_dead_taps(
+    tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3, u=None, k=2.0
+) -> dict[str, str]:
     """Taps to leave out of Cp(θ): flat-lined ones, and ones whose Cp departs from the others'.
 
     Parameters
@@ -599,6 +602,12 @@ def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> d
         Largest accepted median absolute departure from the other taps' median Cp. [-]
     flat_std : float, optional
         A record whose Cp standard deviation is below this (a fraction of q) is flat-lined. [-]
+    u : array_like of shape (n_taps, n_bins), optional
+        Standard uncertainty of each tap's binned Cp from the errors that are the tap's own (its
+        azimuth and tubing delay through the local slope of Cp, its scanner port); errors all
+        taps share (q, the encoder) cancel in the comparison. None: no allowance. [-]
+    k : float, optional
+        Coverage factor of that allowance. [-]
 
     Returns
     -------
@@ -614,17 +623,24 @@ def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> d
     turbulence, so a live tap is never that steady; a blocked or disconnected one is.
 
     Departure: a rotating tap sweeps the same circle as every other, so all see one Cp(θ). For
-    each tap, d = median over the shared bins of abs(Cp_tap − median of the other taps' Cp). The
-    worst tap with d > ``tolerance`` is flagged and dropped from the reference, and the test is
-    repeated, so that one leaking tap cannot drag the reference of the good ones. The median makes
-    both steps robust to a minority of bad taps [1]_. At least three taps must remain (with two,
-    there is no telling which one is wrong); taps that share no bins (a stationary model) are not
+    each tap and shared bin, the gap abs(Cp_tap − median of the other taps' Cp) is reduced by k
+    times its standard uncertainty, u²(gap) = u²_tap + (π/2) mean(u²_others) / n_others (the
+    median of n normal values has about π/2 times the variance of their mean [2]_), and d is the
+    median over the shared bins of that excess: a good tap whose azimuth is known to a few
+    tenths of a degree moves its curve on a steep Cp(θ) by more than any fixed tolerance, a
+    dead or leaking one departs by more than its uncertainty explains. The worst tap with d >
+    ``tolerance`` is flagged and dropped from the reference, and the test is repeated, so that
+    one leaking tap cannot drag the reference of the good ones. The median makes both steps
+    robust to a minority of bad taps [1]_. At least three taps must remain (with two, there is
+    no telling which one is wrong); taps that share no bins (a stationary model) are not
     compared.
 
     References
     ----------
     .. [1] P. J. Huber and E. M. Ronchetti, *Robust Statistics*, 2nd ed., Wiley, 2009, ch. 1 (the
        median as a robust estimate of location).
+    .. [2] A. Stuart and J. K. Ord, *Kendall's Advanced Theory of Statistics*, vol. 1, 6th ed.,
+       Arnold, 1994, §10.10 (variance of the sample median, π σ²/(2 n)) (from memory).
 
     Examples
     --------
@@ -646,6 +662,9 @@ def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> d
         raise ValueError(
             f"find_dead_taps: expected (n_taps, n_bins) binned Cp, found {means.shape}"
         )
+    own_u = np.zeros_like(means)
+    if u is not None:
+        own_u = np.broadcast_to(np.asarray(u, dtype=float), means.shape)
 
     dead: dict[str, str] = {}
     for name, record in zip(names, tap_binned, strict=True):
@@ -664,7 +683,8 @@ def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> d
                 # An all-NaN bin (no other tap there) is expected and simply not compared.
                 warnings.simplefilter("ignore", RuntimeWarning)
                 median = np.nanmedian(means[others], axis=0)
-            gap = np.abs(means[i] - median)
+            spread = np.pi / 2 * np.mean(own_u[others] ** 2, axis=0) / others.sum()
+            gap = np.abs(means[i] - median) - k * np.sqrt(own_u[i] ** 2 + spread)
             gap = gap[np.isfinite(gap)]
             shared[i] = gap.size
             if gap.size:
@@ -672,8 +692,9 @@ def find_dead_taps(tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3) -> d
         if not np.any(departure > tolerance):
             break
         worst = int(np.nanargmax(departure))
+        beyond = "" if u is None else f" beyond {k:g} × its uncertainty"
         dead[names[worst]] = (
-            f"binned Cp departs from the other taps by {departure[worst]:.3f} "
+            f"binned Cp departs from the other taps by {departure[worst]:.3f}{beyond} "
             f"(median over {shared[worst]} shared bins; tolerance {tolerance:g})"
         )
         reference[worst] = False

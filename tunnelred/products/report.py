@@ -1122,8 +1122,9 @@ BUDGET_INPUTS: dict[str, tuple[str, str]] = {
     "span": ("model span", "m"),
     "dpdx": ("empty-tunnel static-pressure gradient", "Pa/m"),
     "p_bin": ("tap pressure, per azimuth bin", "Pa"),
-    "p_scanner": ("pressure scanner", "Pa"),
-    "theta_offset": ("tap azimuth (offset, delay, encoder)", "deg"),
+    "p_scanner": ("pressure scanner, per tap", "Pa"),
+    "tap_azimuth": ("tap azimuth, per tap (installed, tubing delay)", "deg"),
+    "encoder": ("encoder zero", "deg"),
 }
 
 
