@@ -1321,10 +1321,11 @@ def _comparison(b: _Builder, data: _Inputs) -> None:
     b.section(_COMPARISON)
     b.add(
         b.p(
-            "Differences between configurations on a common spin-ratio grid, sweep leg by sweep "
-            "leg at each tunnel speed (tunnelred.products.compare): ΔX = X(configuration) − "
-            "X(reference), with its expanded uncertainty (k = 2). A difference marked * exceeds "
-            "its expanded uncertainty.",
+            "Differences between configurations at the spin ratios both measured, sweep leg by "
+            "sweep leg at each tunnel speed (tunnelred.products.compare): points paired within "
+            f"Δα ≤ {compare.PAIR_TOLERANCE:g}, each moved to the pair's mean α along its own "
+            "slope; ΔX = X(configuration) − X(reference), with its expanded uncertainty (k = 2). "
+            "Flagged runs are left out. A difference marked * exceeds its expanded uncertainty.",
             "intro",
         )
     )

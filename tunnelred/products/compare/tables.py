@@ -245,7 +245,7 @@ def comparison_table(
 
 
 def comparison_section_data(results, *, reference: str | None = None) -> pd.DataFrame:
-    """ΔCL and ΔCD between configurations per α grid point, for the report's comparison section.
+    """ΔCL and ΔCD of configurations at paired spin ratios, for the report's comparison section.
 
     Parameters
     ----------
@@ -256,7 +256,8 @@ def comparison_section_data(results, *, reference: str | None = None) -> pd.Data
     Returns
     -------
     pandas.DataFrame
-        Columns ``config``, ``reference``, ``speed`` [m/s], ``leg``, ``alpha``, and for X in CL,
+        Columns ``config``, ``reference``, ``speed`` [m/s], ``leg``, ``alpha`` (the mean α of a
+        pair of measured points, :func:`paired_difference`), and for X in CL,
         CD: ``dX`` (config − reference), ``u_dX`` (k = 1) and ``sig_dX`` (|ΔX| > 2u). Empty
         (with these columns) when the campaign has a single configuration.
 
