@@ -327,6 +327,44 @@ def test_series_statistics_uncertainty_uses_n_eff():
     assert stats.u_mean > 4 * stats.std / np.sqrt(n)
 
 
+def test_correlation_of_means_of_streams_sharing_a_fluctuation():
+    # Two streams at 200 Hz and 50 Hz, each a common AR(1) fluctuation s plus its own white
+    # noise. For a long record the mean of s has variance sigma_s^2 (1 + phi)/((1 - phi) N)
+    # (Bayley & Hammersley 1946), the same in both streams (the 50 Hz one samples the same s),
+    # and the noises add sigma_i^2 / N_i: r = c var(s_mean) / sqrt(var(a_mean) var(b_mean)).
+    n, phi, c = 400_000, 0.98, -3.0
+    s = _ar1(phi, n, seed=21)
+    rng = np.random.default_rng(22)
+    t = np.arange(n) / 200.0
+    a = s + 3.0 * rng.standard_normal(n)
+    b = c * s[2::4] + 40.0 * rng.standard_normal(n // 4)
+    var_s = 1 / (1 - phi**2) * (1 + phi) / ((1 - phi) * n)
+    expected = c * var_s / np.sqrt((var_s + 9.0 / n) * (c**2 * var_s + 1600.0 / (n // 4)))
+    assert -0.9 < expected < -0.6
+    r = conditions.correlation_of_means([(a, t), (b, t[2::4])])
+    # N_eff of s is about 4000 here: the estimate's sd is about 1/sqrt(4000) ~ 0.016.
+    assert r[0, 1] == pytest.approx(expected, abs=0.08)
+    assert np.allclose(np.diag(r), 1.0)
+    # An independent record: r within 4 sd of zero.
+    other = _ar1(phi, n, seed=23)
+    r = conditions.correlation_of_means([(a, t), (other, t)])
+    assert abs(r[0, 1]) < 4 / np.sqrt(n * (1 - phi) / (1 + phi))
+
+
+def test_correlation_of_means_is_a_correlation_matrix():
+    # Three records that are nearly one: pairwise estimates, each clipped to [-1, 1], can make a
+    # matrix with a negative eigenvalue; the result is positive semi-definite, unit diagonal.
+    rng = np.random.default_rng(3)
+    t = np.arange(2000) / 50.0
+    base = _ar1(0.9, 2000, seed=4)
+    x = base + 0.1 * rng.standard_normal(2000)
+    y = base + 0.1 * rng.standard_normal(2000)
+    r = conditions.correlation_of_means([(x, t), (y, t), (-base, t)])
+    assert np.linalg.eigvalsh(r)[0] >= -1e-12
+    assert np.allclose(np.diag(r), 1.0)
+    assert r[0, 1] > 0.9 and r[0, 2] < -0.9
+
+
 def test_series_statistics_drift_with_and_without_time():
     # A line of slope 0.2 per second over 50 s drifts by 10 (by hand); with no time the samples
     # are evenly spaced, so the same samples drift by the same amount.

@@ -53,7 +53,8 @@ class Systematics:
     calibration: float = 0.0  # the true matrix is the declared one times (1 + calibration)
     tap_azimuth: np.ndarray = field(default_factory=lambda: np.zeros(0))
     tap_delay: np.ndarray = field(default_factory=lambda: np.zeros(0))
-    scanner: np.ndarray = field(default_factory=lambda: np.zeros(0))  # per tap port, added to its reading
+    # per tap port, added to its reading
+    scanner: np.ndarray = field(default_factory=lambda: np.zeros(0))
     encoder: float = 0.0  # added to the encoder angle
     tachometer: float = 0.0  # relative gain error of the rpm reading
     pitot_gain: float = 0.0
@@ -85,8 +86,7 @@ class Systematics:
             tunnel_height=spec.tunnel_height + self.tunnel_height,
             tunnel_width=spec.tunnel_width + self.tunnel_width,
             flow_angle=spec.flow_angle + self.flow_angle,
-            static_pressure_gradient=spec.static_pressure_gradient
-            + self.static_pressure_gradient,
+            static_pressure_gradient=spec.static_pressure_gradient + self.static_pressure_gradient,
             alignment_angle=spec.alignment_angle + self.alignment_angle,
             matrix=matrix,
         )

@@ -164,9 +164,7 @@ class _Writer:
         U_m = math.sqrt(2.0 * q_m / rho_m)
         # A planted hysteresis offsets the down sweep's true lift (0 in the demo).
         offset = s.down_sweep_lift_offset if r.leg == "down" else 0.0
-        state = in_tunnel(
-            true, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m, lift_offset=offset
-        )
+        state = in_tunnel(true, cfg.end_plates, U_m, q_m, omega_m, rho_m, mu_m, lift_offset=offset)
 
         # Tunnel log.
         tt = stream_times(rng, s.tunnel_rate, r.duration)

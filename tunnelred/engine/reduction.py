@@ -174,8 +174,12 @@ def _files_used(campaign, spec) -> dict[str, str]:
 # The time-series layer
 
 
-def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> dict:
-    """Run-level balance inputs: net loads (zero removed), their tares, and their u."""
+def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict):
+    """Run-level balance inputs: net loads (zero removed), their tares, and their u.
+
+    Also the load records behind the means, ``[(name, loads, time, u of the mean)]``, whose
+    fluctuations the dynamic pressure shares (:func:`_shared_fluctuation`).
+    """
     cfg = campaign.config.instruments.balance
     stream = data.streams["balance"]
     t = stream["time"].to_numpy()
@@ -224,7 +228,34 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict) -> 
     inputs["calibration"] = Input(1.0, cfg.u_matrix_relative, "B", "balance calibration factor")
     align = cfg.alignment_angle
     inputs["alignment"] = Input(align, cfg.u_alignment_angle, "B", "balance alignment [deg]")
-    return inputs
+    records = [(name, loads_t[:, k], t, u_a[k]) for k, name in enumerate(("Fx", "Fy", "Mz"))]
+    return inputs, records
+
+
+def _shared_fluctuation(cfg, tunnel, records, inputs: dict) -> dict[tuple[str, str], float]:
+    """Correlations of the time-averaged dynamic pressure and loads, from their records.
+
+    The loads follow the speed sample by sample, so the means of dp and of the loads move
+    together and a coefficient (load over q) scatters far less than either; propagated as
+    independent, u(CL) would count the speed fluctuation twice. Each mean's correlation
+    (:func:`tunnelred.physics.conditions.correlation_of_means`) is scaled by the share of that
+    input's u that is its own record's scatter (the zero's scatter is independent of it).
+    """
+    column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
+    dp = tunnel[column].to_numpy()
+    named = [("dp", dp, tunnel["time"].to_numpy(), float(inputs["dp"].u))] + records
+    R = conditions.correlation_of_means([(values, time) for _, values, time, _ in named])
+    share = []
+    for name, _, _, u_record in named:
+        u = float(inputs[name].u)
+        share.append(u_record / u if u > 0 else 0.0)
+    correlation = {}
+    for i in range(len(named)):
+        for j in range(i + 1, len(named)):
+            r = float(R[i, j]) * share[i] * share[j]
+            if r != 0.0:
+                correlation[(named[i][0], named[j][0])] = r
+    return correlation
 
 
 @dataclass(frozen=True)
@@ -718,8 +749,11 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
 
     has_balance = "balance" in data.streams
     calibration = None
+    correlation: dict[tuple[str, str], float] = {}
     if has_balance:
-        inputs.update(_balance_inputs(campaign, spec, data, spin.omega_mean, measures))
+        balance_inputs, records = _balance_inputs(campaign, spec, data, spin.omega_mean, measures)
+        inputs.update(balance_inputs)
+        correlation.update(_shared_fluctuation(cfg, tunnel, records, inputs))
         calibration = _calibration_step(campaign, spec, data, spin.omega_mean)
     if calibration is not None:
         inputs.update(calibration.inputs)
@@ -735,7 +769,8 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
         integrate=taps.integrate,
         calibration=calibration,
     )
-    correlation = calibration.correlation if calibration is not None else None
+    if calibration is not None:
+        correlation.update(calibration.correlation)
     linear = propagate_linear(model, inputs, correlation=correlation)
 
     values = _run_values(spec, linear, measures, taps.dead_taps)
