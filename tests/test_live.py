@@ -25,6 +25,7 @@ import pytest
 
 from tunnelred.demo.spec import Fault, demo_spec
 from tunnelred.demo.writer import make_campaign
+from tunnelred.inputs.config import load_config
 from tunnelred.live import watcher as live
 from tunnelred.products import store
 
@@ -113,6 +114,10 @@ class Acquisition(threading.Thread):
     def run(self) -> None:
         try:
             self._write("campaign.toml", (self.source / "campaign.toml").read_bytes(), 1)
+            # The files campaign.toml names (model photo, calibration) are there from the start.
+            config, _ = load_config(self.source / "campaign.toml")
+            for rel in config.campaign_files():
+                self._write(rel, (self.source / rel).read_bytes(), 1)
             lines = (self.source / "runs.csv").read_bytes().splitlines(keepends=True)
             (self.dest / "runs.csv").write_bytes(lines[0])
             table = pd.read_csv(self.source / "runs.csv", dtype=str, keep_default_na=False)

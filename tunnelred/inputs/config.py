@@ -268,6 +268,15 @@ class CampaignConfig:
             return self.reduction.tolerances
         return replace(self.reduction.tolerances, **configuration.tolerance_overrides)
 
+    def campaign_files(self) -> tuple[str, ...]:
+        """The campaign files campaign.toml names besides the logs (relative to the campaign).
+
+        Whatever copies a campaign (the watch's snapshot) copies these with campaign.toml.
+        """
+        balance = self.instruments.balance
+        named = (self.model.photo, balance.calibration_file if balance is not None else "")
+        return tuple(name for name in named if name)
+
     def tap(self, name: str) -> TapConfig:
         for t in self.taps:
             if t.name == name:

@@ -613,6 +613,7 @@ class _Watcher:
         self.lines: list[str] = []
         self.runs_key: tuple[int, int] | None = None
         self.snapshot_runs: bytes | None = None  # runs.csv as last written into the snapshot
+        self.named_files: tuple[str, ...] = ()  # files campaign.toml names, copied with it
         self.signatures: dict[str, tuple] = {}
         self.results = None
         self.title = ""
@@ -661,6 +662,12 @@ class _Watcher:
         )
         return _FileState("cut", key, problem)
 
+    def _copy_named_files(self) -> None:
+        for rel in self.named_files:
+            state = self._look(rel, whole_lines=False)
+            if state.state == "ready":
+                self._copy(rel, state.key)
+
     def _copy(self, rel: str, key: tuple[int, int]) -> bool:
         """Copy a settled file into the snapshot; False when it changed meanwhile."""
         if self.copied.get(rel) == key:
@@ -693,8 +700,14 @@ class _Watcher:
         waiting_inputs = [rel for rel, s in inputs.items() if s.state != "ready"]
         if "campaign.toml" not in waiting_inputs:
             if self._copy("campaign.toml", inputs["campaign.toml"].key):
+                # The files it names (model photo, calibration) go into the snapshot with it.
+                source, _ = load_config(self.root / "campaign.toml")
+                self.named_files = source.campaign_files() if source is not None else ()
+                self._copy_named_files()
                 config, _ = load_config(self.snapshot / "campaign.toml")
                 self.title = config.campaign.title if config else ""
+            else:
+                self._copy_named_files()
         if "runs.csv" not in waiting_inputs and inputs["runs.csv"].key != self.runs_key:
             data = (self.root / "runs.csv").read_bytes()
             text = _whole_lines(data).decode("utf-8-sig", errors="replace")
@@ -712,7 +725,8 @@ class _Watcher:
             self._judge(row.run, by_id, states, verdicts, ())
         available = {r.run for r in self.rows if self._available(r.run, by_id, set())}
         snapshot_text = self._snapshot_runs(available)
-        if snapshot_text != self.snapshot_runs and "campaign.toml" in self.copied:
+        named_copied = all(rel in self.copied for rel in self.named_files)
+        if snapshot_text != self.snapshot_runs and "campaign.toml" in self.copied and named_copied:
             store.atomic_write_bytes(self.snapshot / "runs.csv", snapshot_text)
             self.snapshot_runs = snapshot_text
 
@@ -782,7 +796,8 @@ class _Watcher:
             return (rid,)
         own = (row.text, tuple((rel, self.copied.get(rel)) for rel in row.logs))
         deps = tuple(self._signature(n, by_id, visiting | {rid}) for n in row.needs)
-        return (self.copied.get("campaign.toml"), self.lines[0], own, deps)
+        named = tuple(self.copied.get(rel) for rel in self.named_files)
+        return (self.copied.get("campaign.toml"), named, self.lines[0], own, deps)
 
     def _snapshot_runs(self, available: set[str]) -> bytes:
         """runs.csv of the snapshot: the rows of available runs; the others blanked, so that
