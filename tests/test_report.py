@@ -16,6 +16,7 @@ from tunnelred.products import (
     report,
     store,  # noqa: E402
 )
+from tunnelred.products.report import layout, summary  # noqa: E402
 
 # The headings docs/report.md promises, written out here rather than taken from report.SECTIONS.
 HEADINGS = (
@@ -205,8 +206,8 @@ def test_crafted_attributes_neither_embed_a_file_nor_break_markup(reduced, tmp_p
 
 def test_own_markup_refuses_foreign_tags():
     with pytest.raises(ValueError, match="img"):
-        report._check_markup('<b>x</b><img src="a.png"/>')
-    report._check_markup("<b>bold</b> and <i>italic</i>")
+        layout._check_markup('<b>x</b><img src="a.png"/>')
+    layout._check_markup("<b>bold</b> and <i>italic</i>")
 
 
 def test_lift_efficiency_half_crossing_either_way():
@@ -215,14 +216,14 @@ def test_lift_efficiency_half_crossing_either_way():
     # Worked by hand: linear between (1.0, 0.4) and (1.5, 0.6) reaches 0.5 at α = 1.25; the
     # efficiency rises through 50 % there (the old helper saw only a falling crossing).
     alpha = np.array([0.5, 1.0, 1.5, 2.0])
-    assert report._efficiency_half(alpha, np.array([0.3, 0.4, 0.6, 0.7])) == pytest.approx(1.25)
+    assert summary._efficiency_half(alpha, np.array([0.3, 0.4, 0.6, 0.7])) == pytest.approx(1.25)
     # Falling through: (1.0, 0.6) to (2.0, 0.4) gives 1.5; the sign of α does not matter.
-    assert report._efficiency_half(np.array([-1.0, -2.0]), np.array([0.6, 0.4])) == pytest.approx(
+    assert summary._efficiency_half(np.array([-1.0, -2.0]), np.array([0.6, 0.4])) == pytest.approx(
         1.5
     )
     below = np.array([0.2, 0.35, 0.46, 0.44])
-    assert np.isnan(report._efficiency_half(alpha, below))
-    assert report._efficiency_text(alpha, below) == "below 50 % throughout; peak 46 % at α 1.50"
+    assert np.isnan(summary._efficiency_half(alpha, below))
+    assert summary._efficiency_text(alpha, below) == "below 50 % throughout; peak 46 % at α 1.50"
 
 
 def test_report_control_and_method_from_campaign_toml(built, reduced):
