@@ -358,7 +358,10 @@ def test_dead_tap_allowance_for_a_known_azimuth_error():
     assert find_dead_taps(names, cp, u=u, k=2.0) == {}
     cp[3] += 2.0
     found = find_dead_taps(names, cp, u=u, k=2.0)
-    assert list(found) == ["t4"] and "beyond 2 × its uncertainty" in found["t4"]
+    assert list(found) == ["t4"] and "beyond 2.00 × its uncertainty" in found["t4"]
+    # By default k keeps the chance of any false flag among the 4 taps at 1 % (Bonferroni):
+    # the normal quantile of 1 - 0.01/8 is 3.023 (scipy.stats.norm.ppf(0.99875) = 3.0233).
+    assert "beyond 3.02 × its uncertainty" in find_dead_taps(names, cp, u=u)["t4"]
 
 
 def test_bin_cp_centres_and_edges():

@@ -365,9 +365,7 @@ def _pressure_inputs(
         per_tap, u_per_tap = _tap_comparison(
             cfg, thetas, cells, counts, per_tap, q_mean, omega_mean
         )
-    dead = pressure.find_dead_taps(
-        names, per_tap, tolerance=tolerances.dead_tap, u=u_per_tap, k=tolerances.agreement_k
-    )
+    dead = pressure.find_dead_taps(names, per_tap, tolerance=tolerances.dead_tap, u=u_per_tap)
     measures["dead_taps"] = dead
     keep = [i for i, name in enumerate(names) if name not in dead]
     if not keep:
@@ -441,11 +439,14 @@ def _tap_comparison(cfg, thetas, cells, counts, per_tap, q_mean: float, omega_me
         - slope * offset.reshape(per_tap.shape)
         - 0.5 * curvature * square.reshape(per_tap.shape)
     )
-    u_azimuth = np.array(
-        [np.hypot(t.u_azimuth, np.degrees(omega_mean) * t.u_tubing_delay) for t in cfg.taps]
-    )
+    u_azimuth = _azimuth_u(cfg, omega_mean)
     u_cp = np.hypot(slope[None, :] * u_azimuth[:, None], cfg.instruments.u_scanner / q_mean)
     return at_centre, u_cp
+
+
+def _azimuth_u(cfg, omega: float) -> np.ndarray:
+    """Each tap's azimuth uncertainty: its installed azimuth and its tubing delay times ω [deg]."""
+    return np.array([np.hypot(t.u_azimuth, np.degrees(omega) * t.u_tubing_delay) for t in cfg.taps])
 
 
 def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dead: list[str]):
@@ -539,7 +540,7 @@ def _run_model(
     cfg,
     *,
     has_balance: bool,
-    pressure_points=None,
+    pressure_points: _PressureModel | None = None,
     integrate: bool = False,
     calibration: _CalibrationStep | None = None,
 ):
@@ -873,18 +874,16 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
     if spec.pressure_with:
         points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
     n_taps = len(cfg.taps)
-    # Each tap's azimuth error: its installed azimuth, and its tubing delay times the spin rate.
-    u_azimuth = [
-        np.hypot(tap.u_azimuth, np.degrees(spin.omega_mean) * tap.u_tubing_delay)
-        for tap in cfg.taps
-    ]
     inputs = {
         "p_bin": Input(points.reading, points.u_reading, "A", "tap pressure per bin"),
         "p_scanner": Input(
             np.zeros(n_taps), np.full(n_taps, cfg.instruments.u_scanner), "B", "scanner, per tap"
         ),
         "tap_azimuth": Input(
-            np.zeros(n_taps), np.array(u_azimuth), "B", "tap azimuth, per tap (installed, delay)"
+            np.zeros(n_taps),
+            _azimuth_u(cfg, spin.omega_mean),
+            "B",
+            "tap azimuth, per tap (installed, delay)",
         ),
         "encoder": Input(0.0, cfg.instruments.u_encoder, "B", "encoder zero"),
     }

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass
+from statistics import NormalDist
 
 import numpy as np
 
@@ -588,7 +589,7 @@ def _flat_std(b) -> float:
 
 
 def find_dead_taps(
-    tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3, u=None, k=2.0
+    tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3, u=None, k=None, false_alarm=0.01
 ) -> dict[str, str]:
     """Taps to leave out of Cp(θ): flat-lined ones, and ones whose Cp departs from the others'.
 
@@ -607,7 +608,10 @@ def find_dead_taps(
         azimuth and tubing delay through the local slope of Cp, its scanner port); errors all
         taps share (q, the encoder) cancel in the comparison. None: no allowance. [-]
     k : float, optional
-        Coverage factor of that allowance. [-]
+        Coverage factor of that allowance; by default the one that keeps the chance of flagging
+        any of the n taps of a fault-free run by their own errors below ``false_alarm``. [-]
+    false_alarm : float, optional
+        That chance, for the default k. [-]
 
     Returns
     -------
@@ -628,7 +632,9 @@ def find_dead_taps(
     median of n normal values has about π/2 times the variance of their mean [2]_), and d is the
     median over the shared bins of that excess: a good tap whose azimuth is known to a few
     tenths of a degree moves its curve on a steep Cp(θ) by more than any fixed tolerance, a
-    dead or leaking one departs by more than its uncertainty explains. The worst tap with d >
+    dead or leaking one departs by more than its uncertainty explains. Each of the n taps is a
+    test, so the default k is the two-sided normal quantile of 1 − false_alarm/(2n) (Bonferroni
+    [3]_): 2.94 for 3 taps, 3.42 for 16 at 1 %. The worst tap with d >
     ``tolerance`` is flagged and dropped from the reference, and the test is repeated, so that
     one leaking tap cannot drag the reference of the good ones. The median makes both steps
     robust to a minority of bad taps [1]_. At least three taps must remain (with two, there is
@@ -641,6 +647,8 @@ def find_dead_taps(
        median as a robust estimate of location).
     .. [2] A. Stuart and J. K. Ord, *Kendall's Advanced Theory of Statistics*, vol. 1, 6th ed.,
        Arnold, 1994, §10.10 (variance of the sample median, π σ²/(2 n)) (from memory).
+    .. [3] R. G. Miller, *Simultaneous Statistical Inference*, 2nd ed., Springer, 1981, ch. 1
+       (the Bonferroni inequality) (from memory).
 
     Examples
     --------
@@ -662,6 +670,8 @@ def find_dead_taps(
         raise ValueError(
             f"find_dead_taps: expected (n_taps, n_bins) binned Cp, found {means.shape}"
         )
+    if k is None:
+        k = NormalDist().inv_cdf(1.0 - false_alarm / (2.0 * max(len(names), 1)))
     own_u = np.zeros_like(means)
     if u is not None:
         own_u = np.broadcast_to(np.asarray(u, dtype=float), means.shape)
@@ -692,7 +702,7 @@ def find_dead_taps(
         if not np.any(departure > tolerance):
             break
         worst = int(np.nanargmax(departure))
-        beyond = "" if u is None else f" beyond {k:g} × its uncertainty"
+        beyond = "" if u is None else f" beyond {k:.2f} × its uncertainty"
         dead[names[worst]] = (
             f"binned Cp departs from the other taps by {departure[worst]:.3f}{beyond} "
             f"(median over {shared[worst]} shared bins; tolerance {tolerance:g})"
