@@ -4,14 +4,15 @@ The study is benchmarks/coverage_cp.py: campaigns from tunnelred.demo's independ
 (fault-free, rotating taps with 4 ms tubing known to ±0.05 ms, spin ratios 0.5 to 3, about
 1000 rad/s at alpha = 3), each with its own draw of every systematic error from the uncertainty
 campaign.toml declares (SynthSpec.systematic_errors: tap azimuths and delays, encoder, scanner
-ports, pitot, air, tachometer, geometry, balance), hidden from the reduction. Issue 15 measured 0.86, 0.77, 0.61 and 0.53 at alpha = 0.5, 1,
-2, 3 before the azimuth entered each bin; the same study on the code before this change gives
-0.998, 0.881, 0.674, 0.576 (3 campaigns x 5 draws, docs/methods.md).
+ports, pitot, air, tachometer, geometry, balance), hidden from the reduction. Issue 15 measured
+0.86, 0.77, 0.61 and 0.53 at alpha = 0.5, 1, 2, 3 before the azimuth entered each bin; the same
+study on the code before this change gives 0.996, 0.922, 0.648, 0.558 with 3 taps and drops a
+good tap in 70 % of the runs at alpha = 3 (20 campaigns, docs/methods.md).
 
 The quick test is four campaigns (deterministic seeds), so its fractions are coarse: bins of one
-draw share its errors and move together. It asserts what that resolution
-can tell: every alpha well above the old coverage, and no good tap dropped. The full study, 0.93
-to 0.98 at every alpha with 3 and 16 taps, is marked slow.
+draw share its errors and move together. It asserts what that resolution can tell: every alpha
+well above the old coverage, and no good tap dropped. The full study (measured 0.96 to 0.99 at
+every alpha with 3 and 16 taps, docs/methods.md) is marked slow.
 """
 
 from __future__ import annotations
@@ -46,7 +47,7 @@ def quick(tmp_path_factory):
 
 
 def test_cp_bins_are_covered_at_every_spin_ratio(quick):
-    # Without the azimuth in each bin the same study covers 0.67 and 0.58 at alpha 2 and 3
+    # Without the azimuth in each bin the same study covers 0.65 and 0.56 at alpha 2 and 3
     # (module docstring); 4 draws of correlated bins resolve the fraction to about ±0.1.
     assert (quick["Cp bins"] >= 0.85).all(), quick
     assert (quick["Cp bins"] <= 1.0).all()
@@ -84,5 +85,5 @@ def test_a_dead_tap_is_still_found_at_fast_spin(tmp_path, n_taps):
 def test_cp_coverage_full_study():
     table = coverage_cp.run_study(campaigns=40, taps=(3, 16), seconds=4.0)
     # 40 draws per alpha and tap count: the fraction of correlated bins resolves to ±0.03.
-    assert np.all((table["Cp bins"] >= 0.90) & (table["Cp bins"] <= 0.99)), table
+    assert np.all((table["Cp bins"] >= 0.93) & (table["Cp bins"] <= 0.99)), table
     assert np.all(table["dead_tap flagged"] <= 0.01), table
