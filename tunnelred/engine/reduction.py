@@ -6,7 +6,7 @@ A data run is reduced in two layers:
    type-A standard uncertainty from the effective number of independent samples, the zero and tare
    loads from the runs the data run names, Cp binned in azimuth — plus the steadiness measures the
    quality flags judge;
-2. the *run-level model* (:func:`_run_model`) maps those inputs, the instruments' type-B terms and
+2. the *run-level model* (:func:`run_model`) maps those inputs, the instruments' type-B terms and
    the geometry to every reported result. It is vectorised over a leading batch axis, so the same
    code gives the nominal values, the GUM sensitivities (one batched call) and Monte Carlo draws.
 
@@ -28,7 +28,19 @@ from tunnelred.engine.quality import Flag
 from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
 from tunnelred.physics.uncertainty import Input, propagate_linear, propagate_monte_carlo
 
-__all__ = ["RunResult", "reduce_run", "RUN_OUTPUTS"]
+__all__ = [
+    "RunResult",
+    "reduce_run",
+    "RUN_OUTPUTS",
+    "PressureModel",
+    "run_model",
+    "air_data_inputs",
+    "balance_load_inputs",
+    "spin_rate_inputs",
+    "pressure_run_inputs",
+    "geometry_inputs",
+    "reading_slope",
+]
 
 #: Scalar outputs of the run-level model, in the order results list them.
 RUN_OUTPUTS = (
@@ -219,17 +231,31 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict):
             measures["tare_range"] = (float(rates.min()), float(rates.max()))
             measures["omega"] = omega_mean
 
-    u_b = np.asarray(cfg.u_fraction_of_full_scale) * full_scale
+    inputs = balance_load_inputs(cfg, means, np.hypot(u_a, u_zero_loads), tare, u_tare)
+    records = [(name, loads_t[:, k], t, u_a[k]) for k, name in enumerate(("Fx", "Fy", "Mz"))]
+    return inputs, records
+
+
+def balance_load_inputs(
+    cfg, loads: np.ndarray, u_loads: np.ndarray, tare: np.ndarray, u_tare: np.ndarray
+) -> dict[str, Input]:
+    """The balance's run-level inputs from its mean loads, their tares and their type-A u.
+
+    ``cfg`` is the campaign's BalanceConfig; ``loads`` and ``tare`` are (Fx, Fy, Mz) in N, N m
+    (the zero removed), ``u_loads`` their type-A u (the zero's scatter included). The
+    specification, calibration and alignment terms come from ``cfg``. Public so that a test
+    plan (tunnelred.products.plan) builds the inputs a run would have.
+    """
+    u_b = np.asarray(cfg.u_fraction_of_full_scale) * np.array(cfg.full_scale)
     inputs = {}
     for k, name in enumerate(("Fx", "Fy", "Mz")):
-        inputs[name] = Input(means[k], np.hypot(u_a[k], u_zero_loads[k]), "A", f"balance {name}")
+        inputs[name] = Input(loads[k], u_loads[k], "A", f"balance {name}")
         inputs[f"{name}_spec"] = Input(0.0, u_b[k], "B", f"balance {name} specification")
         inputs[f"{name}_tare"] = Input(tare[k], u_tare[k], "A", f"spin tare {name}")
     inputs["calibration"] = Input(1.0, cfg.u_matrix_relative, "B", "balance calibration factor")
     align = cfg.alignment_angle
     inputs["alignment"] = Input(align, cfg.u_alignment_angle, "B", "balance alignment [deg]")
-    records = [(name, loads_t[:, k], t, u_a[k]) for k, name in enumerate(("Fx", "Fy", "Mz"))]
-    return inputs, records
+    return inputs
 
 
 def _shared_fluctuation(cfg, tunnel, records, inputs: dict) -> dict[tuple[str, str], float]:
@@ -501,17 +527,29 @@ def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     u_speed = conditions.series_statistics(fs["U"].to_numpy(), t)
     measures["speed_drift"] = abs(u_speed.drift) / u_speed.mean
     measures["temperature_drift"] = abs(stats["T"].drift)
+    means = {"dp" if name == column else name: (s.mean, s.u_mean) for name, s in stats.items()}
+    return air_data_inputs(cfg, means)
+
+
+def air_data_inputs(cfg, means: dict[str, tuple[float, float]]) -> dict[str, Input]:
+    """The tunnel's run-level inputs from its record means and their type-A u.
+
+    ``means`` maps ``dp`` (the q_source's reading), ``T``, ``p_baro``, ``RH`` to (mean, u of the
+    mean) in SI; the instruments' specification terms come from campaign.toml. Public so that a
+    test plan (tunnelred.products.plan) builds the inputs a run would have.
+    """
+    column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
     ins = cfg.instruments
-    dp = stats[column]
-    u_dp_b = float(np.hypot(ins.u_pitot, ins.u_pitot_relative * abs(dp.mean)))
+    dp, u_dp = means["dp"]
+    u_dp_b = float(np.hypot(ins.u_pitot, ins.u_pitot_relative * abs(dp)))
     inputs = {
-        "dp": Input(dp.mean, dp.u_mean, "A", f"{column} (time average)"),
+        "dp": Input(dp, u_dp, "A", f"{column} (time average)"),
         "dp_spec": Input(0.0, u_dp_b, "B", f"{column} transducer"),
-        "T": Input(stats["T"].mean, stats["T"].u_mean, "A", "air temperature (time average)"),
+        "T": Input(*means["T"], "A", "air temperature (time average)"),
         "T_spec": Input(0.0, ins.u_thermometer, "B", "thermometer"),
-        "p": Input(stats["p_baro"].mean, stats["p_baro"].u_mean, "A", "barometric pressure"),
+        "p": Input(*means["p_baro"], "A", "barometric pressure"),
         "p_spec": Input(0.0, ins.u_barometer, "B", "barometer"),
-        "RH": Input(stats["RH"].mean, stats["RH"].u_mean, "A", "relative humidity"),
+        "RH": Input(*means["RH"], "A", "relative humidity"),
         "RH_spec": Input(0.0, ins.u_hygrometer, "B", "hygrometer"),
     }
     if cfg.tunnel.q_source == "contraction":
@@ -536,17 +574,17 @@ def _stream_overlap(streams) -> float:
 # The run-level model
 
 
-def _run_model(
+def run_model(
     cfg,
     *,
     has_balance: bool,
-    pressure_points: _PressureModel | None = None,
+    pressure_points: PressureModel | None = None,
     integrate: bool = False,
     calibration: _CalibrationStep | None = None,
 ):
     """The vectorised map from run-level inputs to every reported quantity.
 
-    ``pressure_points`` is the run's :class:`_PressureModel` (None: no pressure log);
+    ``pressure_points`` is the run's :class:`PressureModel` (None: no pressure log);
     ``integrate`` is False when its points leave a gap too wide for the pressure forces;
     ``calibration`` adds the loads' change with the balance coefficients (calibration_file).
     """
@@ -680,7 +718,8 @@ def _run_model(
     return model
 
 
-def _geometry_inputs(cfg) -> dict:
+def geometry_inputs(cfg) -> dict[str, Input]:
+    """The geometry, flow angle, gradient and wall-correction inputs of every run."""
     t, m = cfg.tunnel, cfg.model
     return {
         "diameter": Input(m.diameter, m.u_diameter, "B", "model diameter"),
@@ -743,7 +782,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     if implausible:
         raise InputError(implausible)
     inputs = _tunnel_inputs(cfg, tunnel, fs, measures)
-    inputs.update(_geometry_inputs(cfg))
+    inputs.update(geometry_inputs(cfg))
     spin = _spin_inputs(cfg, data, fs, measures)
     inputs.update(spin.inputs)
     measures["stream_overlap"] = _stream_overlap(data.streams)
@@ -763,7 +802,7 @@ def reduce_run(campaign, run_id: str, *, monte_carlo: int = 0, seed: int = 0) ->
     taps = _pressure_step(campaign, spec, data, q_mean, spin, measures)
     inputs.update(taps.inputs)
 
-    model = _run_model(
+    model = run_model(
         cfg,
         has_balance=has_balance,
         pressure_points=taps.model,
@@ -821,16 +860,9 @@ def _spin_inputs(cfg, data, fs, measures: dict) -> _SpinStep:
     t_spin, omega_t, spin_source = conditions.spin_rate(data.streams)
     omega_stats = conditions.series_statistics(omega_t, t_spin)
     omega_mean = omega_stats.mean
-    if spin_source == "tachometer":
-        u_omega_rel = cfg.instruments.u_tachometer_relative
-    else:
-        duration = t_spin[-1] - t_spin[0]
-        u_omega_rel = np.sqrt(2) * np.radians(cfg.instruments.u_encoder) / duration
-        u_omega_rel = u_omega_rel / abs(omega_mean) if omega_mean else 0.0
-    inputs = {
-        "omega": Input(omega_mean, omega_stats.u_mean, "A", f"spin rate ({spin_source})"),
-        "omega_spec": Input(0.0, u_omega_rel, "B", f"{spin_source} (relative)"),
-    }
+    inputs = spin_rate_inputs(
+        cfg, omega_mean, omega_stats.u_mean, spin_source, t_spin[-1] - t_spin[0]
+    )
     tunnel_time = data.streams["tunnel"]["time"].to_numpy()
     steadiness = conditions.spin_steadiness(
         t_spin, omega_t, tunnel_time, fs["U"].to_numpy(), cfg.model.radius
@@ -842,8 +874,27 @@ def _spin_inputs(cfg, data, fs, measures: dict) -> _SpinStep:
     return _SpinStep(inputs, omega_mean, spinning)
 
 
+def spin_rate_inputs(
+    cfg, omega: float, u_omega: float, source: str, duration: float
+) -> dict[str, Input]:
+    """The spin rate's run-level inputs: its mean [rad/s] with type-A u, and its instrument.
+
+    ``source`` is "tachometer" or "encoder" (an encoder's rate is two angle readings over the
+    record ``duration`` [s]). Public so that a test plan builds the inputs a run would have.
+    """
+    if source == "tachometer":
+        u_omega_rel = cfg.instruments.u_tachometer_relative
+    else:
+        u_omega_rel = np.sqrt(2) * np.radians(cfg.instruments.u_encoder) / duration
+        u_omega_rel = u_omega_rel / abs(omega) if omega else 0.0
+    return {
+        "omega": Input(omega, u_omega, "A", f"spin rate ({source})"),
+        "omega_spec": Input(0.0, u_omega_rel, "B", f"{source} (relative)"),
+    }
+
+
 @dataclass(frozen=True)
-class _PressureModel:
+class PressureModel:
     """What the run model needs of the pressure points besides their readings (constants)."""
 
     theta: np.ndarray  # azimuth of each point [deg]
@@ -861,7 +912,7 @@ class _PressureStep:
     dead_taps: list[str]
     integrate: bool  # False when the points leave a gap too wide for the pressure forces
     inputs: dict[str, Input]
-    model: _PressureModel | None = None
+    model: PressureModel | None = None
 
 
 def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measures: dict):
@@ -873,25 +924,12 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
     )
     if spec.pressure_with:
         points, dead_taps = _merged_pressure(campaign, spec, points, q_mean, dead_taps)
-    n_taps = len(cfg.taps)
-    inputs = {
-        "p_bin": Input(points.reading, points.u_reading, "A", "tap pressure per bin"),
-        "p_scanner": Input(
-            np.zeros(n_taps), np.full(n_taps, cfg.instruments.u_scanner), "B", "scanner, per tap"
-        ),
-        "tap_azimuth": Input(
-            np.zeros(n_taps),
-            _azimuth_u(cfg, spin.omega_mean),
-            "B",
-            "tap azimuth, per tap (installed, delay)",
-        ),
-        "encoder": Input(0.0, cfg.instruments.u_encoder, "B", "encoder zero"),
-    }
+    inputs = pressure_run_inputs(cfg, points.reading, points.u_reading, spin.omega_mean)
     delays = np.array([tap.tubing_delay for tap in cfg.taps])
-    model = _PressureModel(
+    model = PressureModel(
         points.theta,
         points.share,
-        _reading_slope(points.theta, points.reading),
+        reading_slope(points.theta, points.reading),
         spin.omega_mean,
         points.share @ delays,
     )
@@ -905,7 +943,31 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
     return _PressureStep(points, dead_taps, integrate, inputs, model)
 
 
-def _reading_slope(theta: np.ndarray, reading: np.ndarray) -> np.ndarray:
+def pressure_run_inputs(
+    cfg, reading: np.ndarray, u_reading: np.ndarray, omega: float
+) -> dict[str, Input]:
+    """The taps' run-level inputs: each point's mean reading [Pa] with type-A u, and per tap
+    its scanner port and its azimuth error (installed azimuth, tubing delay times ``omega``).
+
+    Public so that a test plan (tunnelred.products.plan) builds the inputs a run would have.
+    """
+    n_taps = len(cfg.taps)
+    return {
+        "p_bin": Input(reading, u_reading, "A", "tap pressure per bin"),
+        "p_scanner": Input(
+            np.zeros(n_taps), np.full(n_taps, cfg.instruments.u_scanner), "B", "scanner, per tap"
+        ),
+        "tap_azimuth": Input(
+            np.zeros(n_taps),
+            _azimuth_u(cfg, omega),
+            "B",
+            "tap azimuth, per tap (installed, delay)",
+        ),
+        "encoder": Input(0.0, cfg.instruments.u_encoder, "B", "encoder zero"),
+    }
+
+
+def reading_slope(theta: np.ndarray, reading: np.ndarray) -> np.ndarray:
     """dp/dθ at each point [Pa/deg], points at one azimuth (merged index runs) sharing one."""
     distinct, which = np.unique(np.mod(theta, 360.0), return_inverse=True)
     mean = np.bincount(which, weights=reading) / np.bincount(which)

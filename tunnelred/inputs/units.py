@@ -52,6 +52,7 @@ DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "speed": ("m/s", "m s-1", "a speed (m/s, km/h, ft/s, …)"),
     "force": ("N", "N", "a force (N, kN, lbf, …)"),
     "torque": ("N*m", "N m", "a torque (N m, lbf in, …)"),
+    "frequency": ("Hz", "Hz", "a frequency (Hz, kHz, …)"),
     "fraction": ("", "1", "a dimensionless number or fraction ([1], [%])"),
 }
 

@@ -384,6 +384,10 @@ class BlockageMethod:
         The formulas and the publication, as the report prints them.
     validity : str
         The range the method is valid in, for the report and the docs.
+    diameter_ratio_limit, area_ratio_limit : float or None
+        The numbers of that range a test plan checks in advance (tunnelred.products.plan):
+        the largest d/h, and the largest model-to-section area ratio S/C = d b / (h w); None
+        where the validity text sets none.
     """
 
     choice: MethodChoice
@@ -391,6 +395,8 @@ class BlockageMethod:
     drag_factor: Callable[[Values, Values], Values]
     formula: str
     validity: str
+    diameter_ratio_limit: float | None = None
+    area_ratio_limit: float | None = None
 
     def __post_init__(self) -> None:
         if not isinstance(self.choice, MethodChoice):
@@ -472,6 +478,7 @@ METHODS: dict[str, BlockageMethod] = _registry(
             "(Allen & Vincenti, NACA Report 782, 1944)"
         ),
         validity="a model spanning the section, d/h below about 0.3, thin (attached) wakes",
+        diameter_ratio_limit=0.3,
     ),
     BlockageMethod(
         BLOCKAGE_CHOICES["maskell"],
@@ -492,6 +499,7 @@ METHODS: dict[str, BlockageMethod] = _registry(
             "CD_c = CD_u q/q_c (Maskell, ARC R&M 3400, 1963)"
         ),
         validity="a bluff model of aspect ratio 1 to 10 not spanning the section, S/C up to 0.1",
+        area_ratio_limit=0.1,
     ),
     BlockageMethod(
         BLOCKAGE_CHOICES["none"],

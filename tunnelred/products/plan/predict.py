@@ -1,0 +1,410 @@
+"""One planned point: the run a test would record there, built as the reduction's inputs.
+
+The prediction reuses the reduction's run model and its GUM propagation
+(:func:`tunnelred.engine.reduction.run_model`,
+:func:`tunnelred.physics.uncertainty.propagate_linear`): the planned conditions and the prior's
+coefficients give each input's nominal value, the instruments' declared uncertainties
+(campaign.toml) its type-B terms, and the stated noise levels with the record length its
+type-A terms. A record of length T whose fluctuation has correlation time tau holds
+N_eff = T / (2 tau) independent samples (an AR(1) record sampled finely; capped at the
+sample count), so the mean's standard error is sigma / sqrt(N_eff).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from tunnelred.engine import quality, reduction
+from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
+from tunnelred.physics.uncertainty import propagate_linear
+from tunnelred.products.plan.matrix import PlannedPoint
+from tunnelred.products.plan.prior import Prior
+
+__all__ = ["NoiseLevels", "AirState", "PointPrediction", "predict_point", "PREDICTED"]
+
+#: Outputs whose predicted standard uncertainty the plan reports (u_Cp_max: the largest over
+#: the azimuth points).
+PREDICTED = ("alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p")
+_BUDGETED = ("alpha", "CL", "CD", "CM")
+_LOADS = ("Fx", "Fy", "Mz")
+
+
+@dataclass(frozen=True)
+class NoiseLevels:
+    """The random fluctuations the plan assumes (defaults: the demo campaign's invented levels;
+    put the facility's own, from an earlier entry, in their place).
+
+    turbulence : relative standard deviation of the speed U(t) [-]; q fluctuates by twice it,
+        and the loads with q.
+    turbulence_time : its correlation time [s] (N_eff = T / (2 tau)).
+    balance_noise : white noise on each load per sample, as a fraction of its full scale [-].
+    pitot_noise : white noise on the q reading per sample [Pa].
+    spin_jitter : relative standard deviation of the spin rate [-]; spin_jitter_time its
+        correlation time [s].
+    tap_noise, tap_noise_floor : white noise on each tap reading per sample, as a fraction of
+        q [-] and absolute [Pa], added in quadrature.
+    unsteady_cl : RMS of the fluctuating lift coefficient of vortex shedding at rest [-],
+        falling with the spin as exp(-(alpha / unsteady_cl_decay)^2) (spin suppresses shedding);
+        its correlation time is taken as 1 / (2 pi f), f = St U / d with St = 0.2 (common
+        practice).
+    wind_off_record : length of the zero and spin-tare records [s].
+    """
+
+    turbulence: float = 0.003
+    turbulence_time: float = 0.3
+    balance_noise: float = 1e-4
+    pitot_noise: float = 0.05
+    spin_jitter: float = 0.002
+    spin_jitter_time: float = 0.05
+    tap_noise: float = 0.004
+    tap_noise_floor: float = 0.5
+    unsteady_cl: float = 0.3
+    unsteady_cl_decay: float = 1.5
+    wind_off_record: float = 3.0
+
+
+@dataclass(frozen=True)
+class AirState:
+    """The air the plan assumes: temperature [K], barometric pressure [Pa], RH fraction [-]."""
+
+    T: float = 293.15
+    p_baro: float = 101325.0
+    RH: float = 0.5
+
+
+@dataclass
+class PointPrediction:
+    """One row of plan.csv (``values``), its budgets and its warnings."""
+
+    point: PlannedPoint
+    values: dict[str, float | str]
+    budgets: pd.DataFrame | None
+    warnings: list[str]
+    theta: np.ndarray | None = None
+    u_Cp: np.ndarray | None = None
+
+
+def _n_eff(record: float, rate: float, tau: float) -> float:
+    return float(max(1.0, min(record * rate, record / (2.0 * tau))))
+
+
+@dataclass(frozen=True)
+class _Planned:
+    """The nominal state of a planned point, independent of its record length."""
+
+    rho: float
+    q: float
+    dp: float  # the q source's reading [Pa]
+    omega: float  # [rad/s]
+    alpha: float
+    coefficients: tuple[float, float, float]
+    loads: np.ndarray  # Fx, Fy, Mz on the balance axes [N, N, N m]
+    outside_prior: bool
+
+
+def _nominal(cfg, point: PlannedPoint, prior: Prior, air_state: AirState) -> _Planned:
+    m, t = cfg.model, cfg.tunnel
+    radius = m.diameter / 2.0
+    rho = float(air.density(air_state.T, air_state.p_baro, air_state.RH))
+    U = point.speed_set
+    q = 0.5 * rho * U * U
+    dp = float(conditions.impact_pressure(q, air_state.p_baro))
+    if t.q_source == "contraction":
+        dp = dp / t.contraction_factor
+    omega = point.omega(radius)
+    alpha = float(conditions.spin_ratio(omega, radius, U))
+    cl, cd, cm, outside = prior.coefficients(point.config, alpha)
+    area = m.diameter * m.span
+    lift, drag, torque = cl * q * area, cd * q * area, cm * q * area * radius
+    phi = cfg.instruments.balance.alignment_angle - t.flow_angle
+    # The inverse of balance_to_wind is the rotation by -phi.
+    fx, fy = balance.balance_to_wind(drag, lift, -phi)
+    loads = np.array([float(fx), float(fy), float(torque)])
+    return _Planned(rho, q, dp, omega, alpha, (cl, cd, cm), loads, outside)
+
+
+def _inputs(cfg, point: PlannedPoint, nom: _Planned, noise: NoiseLevels, air_state, record):
+    """The run-level inputs and correlations a run of this record length would have."""
+    b = cfg.instruments.balance
+    full_scale = np.array(b.full_scale)
+    q_rel = 2.0 * noise.turbulence  # q = rho U^2 / 2
+    n_turb_t = _n_eff(record, point.tunnel_rate, noise.turbulence_time)
+    n_turb_b = _n_eff(record, point.balance_rate, noise.turbulence_time)
+    u_dp = np.sqrt(
+        (nom.dp * q_rel) ** 2 / n_turb_t + noise.pitot_noise**2 / (record * point.tunnel_rate)
+    )
+    inputs = reduction.air_data_inputs(
+        cfg,
+        {
+            "dp": (nom.dp, float(u_dp)),
+            "T": (air_state.T, 0.0),
+            "p_baro": (air_state.p_baro, 0.0),
+            "RH": (air_state.RH, 0.0),
+        },
+    )
+    inputs.update(reduction.geometry_inputs(cfg))
+    spin_source = "tachometer"
+    n_spin = _n_eff(record, point.balance_rate, noise.spin_jitter_time)
+    u_omega = abs(nom.omega) * noise.spin_jitter / np.sqrt(n_spin)
+    inputs.update(reduction.spin_rate_inputs(cfg, nom.omega, u_omega, spin_source, record))
+    white = noise.balance_noise * full_scale
+    u_record = np.sqrt(
+        (nom.loads * q_rel) ** 2 / n_turb_b
+        + white**2 / (record * point.balance_rate)
+        + _shedding(cfg, point, nom, noise) ** 2
+        / _n_eff(record, point.balance_rate, _shedding_time(cfg, point))
+    )
+    n_wind_off = noise.wind_off_record * point.balance_rate
+    u_zero = white / np.sqrt(n_wind_off)
+    spinning = quality.is_spinning(nom.alpha)
+    u_tare = u_zero if nom.omega != 0.0 else np.zeros(3)
+    inputs.update(
+        reduction.balance_load_inputs(b, nom.loads, np.hypot(u_record, u_zero), np.zeros(3), u_tare)
+    )
+    # The loads follow q sample by sample: their means and dp's share the turbulence.
+    var_turb = q_rel**2 / max(1.0, record / (2.0 * noise.turbulence_time))
+    named = [("dp", nom.dp)] + list(zip(_LOADS, nom.loads, strict=True))
+    correlation = {}
+    for i in range(len(named)):
+        for j in range(i + 1, len(named)):
+            (a, va), (c, vc) = named[i], named[j]
+            ua, uc = float(inputs[a].u), float(inputs[c].u)
+            if ua > 0 and uc > 0:
+                r = float(np.clip(va * vc * var_turb / (ua * uc), -1.0, 1.0))
+                if r != 0.0:
+                    correlation[(a, c)] = r
+    taps = None
+    if point.pressure_rate > 0 and cfg.taps:
+        taps = _tap_inputs(cfg, point, nom, noise, record, spinning, q_rel)
+        inputs.update(taps[0])
+    return inputs, correlation, taps
+
+
+_STROUHAL = 0.2  # vortex shedding of a circular cylinder (common practice)
+
+
+def _shedding_time(cfg, point) -> float:
+    return cfg.model.diameter / (2.0 * np.pi * _STROUHAL * point.speed_set)
+
+
+def _shedding(cfg, point, nom: _Planned, noise: NoiseLevels) -> np.ndarray:
+    """RMS of the shedding loads on the balance axes [N, N, N m] (lift only)."""
+    cl_rms = noise.unsteady_cl * np.exp(-((nom.alpha / noise.unsteady_cl_decay) ** 2))
+    lift = cl_rms * nom.q * cfg.model.diameter * cfg.model.span
+    phi = np.radians(cfg.instruments.balance.alignment_angle - cfg.tunnel.flow_angle)
+    return np.array([abs(lift * np.sin(phi)), abs(lift * np.cos(phi)), 0.0])
+
+
+def _tap_inputs(cfg, point, nom: _Planned, noise: NoiseLevels, record, spinning, q_rel):
+    """The taps' points as the reduction would bin them, and their inputs."""
+    n_taps = len(cfg.taps)
+    if spinning:
+        bins = cfg.reduction.cp_bins
+        theta = (np.arange(bins) + 0.5) * 360.0 / bins
+        share = np.full((bins, n_taps), 1.0 / n_taps)
+        samples = point.pressure_rate * record * n_taps / bins
+    else:
+        theta = np.array([tap.azimuth % 360.0 for tap in cfg.taps])
+        share = np.eye(n_taps)
+        samples = point.pressure_rate * record
+    # The prior's Cp(theta): potential flow at the spin ratio that lifts as the prior does.
+    alpha_e = -nom.coefficients[0] / (2.0 * np.pi)
+    cp = np.asarray(theory.cp_surface(theta, alpha_e), dtype=float)
+    radius = cfg.model.diameter / 2.0
+    head = float(pressure.centrifugal_head(nom.rho, nom.omega, radius, cfg.model.transducer_radius))
+    reading = cp * nom.q - head
+    sigma = np.hypot(noise.tap_noise * nom.q, noise.tap_noise_floor)
+    n_turb = _n_eff(record, point.pressure_rate, noise.turbulence_time)
+    u_reading = np.sqrt(sigma**2 / samples + (cp * nom.q * q_rel) ** 2 / n_turb)
+    inputs = reduction.pressure_run_inputs(cfg, reading, u_reading, nom.omega)
+    delays = np.array([tap.tubing_delay for tap in cfg.taps])
+    model = reduction.PressureModel(
+        theta, share, reduction.reading_slope(theta, reading), nom.omega, share @ delays
+    )
+    try:
+        pressure.integrate_cp(theta, reading, max_gap=cfg.reduction.max_tap_gap)
+        integrate = True
+    except pressure.CpGapError:
+        integrate = False
+    return inputs, model, integrate, theta, reading
+
+
+def _propagate(cfg, inputs, correlation, taps):
+    model = reduction.run_model(
+        cfg,
+        has_balance=True,
+        pressure_points=None if taps is None else taps[1],
+        integrate=False if taps is None else taps[2],
+    )
+    return propagate_linear(model, inputs, correlation=correlation)
+
+
+def _scalar(x) -> float:
+    return float(np.asarray(x).reshape(-1)[0])
+
+
+def predict_point(
+    cfg,
+    point: PlannedPoint,
+    prior: Prior,
+    noise: NoiseLevels,
+    air_state: AirState,
+    *,
+    target: tuple[str, float] | None = None,
+    eps_limit: float = 0.05,
+) -> PointPrediction:
+    """Predict one planned point (docs/plan.md lists what each value means)."""
+    nom = _nominal(cfg, point, prior, air_state)
+    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, point.record)
+    linear = _propagate(cfg, inputs, correlation, taps)
+    tol = cfg.tolerances_for(point.config)
+    b = cfg.instruments.balance
+    full_scale = np.array(b.full_scale)
+    values: dict[str, float | str] = {
+        "point": point.point,
+        "config": point.config,
+        "speed_set": point.speed_set,
+        "record": point.record,
+        "prior": prior.name,
+    }
+    for name in ("q", "U", "Re", "Mach", "omega", "alpha", "CL", "CD", "CM", "C_power"):
+        values[name] = _scalar(linear.values[name])
+    values["rpm"] = abs(nom.omega) * quality.RPM_PER_RAD_S
+    for name in PREDICTED:
+        values[f"u_{name}"] = _scalar(linear.u[name])
+        values[f"Uk2_{name}"] = 2.0 * values[f"u_{name}"]
+    values["u_Cp_max"] = np.nan
+    u_cp = None
+    theta = None
+    if taps is not None:
+        u_cp = np.asarray(linear.u["Cp"], dtype=float).reshape(-1)
+        theta = taps[3]
+        values["u_Cp_max"] = float(np.max(u_cp))
+    values["Uk2_Cp_max"] = 2.0 * values["u_Cp_max"]
+    warnings: list[str] = []
+
+    # Balance loads: the mean, and a peak of the mean plus three standard deviations of the
+    # samples (turbulence and white noise; tares and imbalance come on top).
+    sample_sd = np.sqrt(
+        (nom.loads * 2.0 * noise.turbulence) ** 2
+        + (noise.balance_noise * full_scale) ** 2
+        + _shedding(cfg, point, nom, noise) ** 2
+    )
+    peak = (np.abs(nom.loads) + 3.0 * sample_sd) / full_scale
+    for k, name in enumerate(_LOADS):
+        values[f"{name}_fraction"] = float(abs(nom.loads[k]) / full_scale[k])
+        values[f"{name}_peak_fraction"] = float(peak[k])
+    values["load_fraction_max"] = float(np.max(peak))
+    if np.max(peak) > tol.overload:
+        which = _LOADS[int(np.argmax(peak))]
+        warnings.append(
+            f"OVERLOAD: {which} peak {100 * np.max(peak):.0f} % of full scale exceeds the "
+            f"overload tolerance {100 * tol.overload:.0f} %"
+        )
+    # Scanner range.
+    values["scanner_fraction"] = np.nan
+    if taps is not None and cfg.instruments.scanner_full_scale:
+        use = float(np.max(np.abs(taps[4])) / cfg.instruments.scanner_full_scale)
+        values["scanner_fraction"] = use
+        if use > 1.0:
+            warnings.append(f"scanner range exceeded: {100 * use:.0f} % of its full scale")
+    # Revolutions per record against min_revolutions (phase binning of the taps).
+    revolutions = abs(nom.omega) * point.record / (2.0 * np.pi)
+    values["revolutions"] = revolutions
+    values["record_for_revolutions"] = (
+        tol.min_revolutions * 2.0 * np.pi / abs(nom.omega) if nom.omega else np.nan
+    )
+    if taps is not None and quality.is_spinning(nom.alpha) and revolutions < tol.min_revolutions:
+        warnings.append(
+            f"record too short: {revolutions:.1f} revolutions, min_revolutions is "
+            f"{tol.min_revolutions:g}; record at least {values['record_for_revolutions']:.1f} s"
+        )
+    # The spin rate against the model's rating.
+    values["spin_fraction_of_limit"] = np.nan
+    if cfg.model.max_spin_rate:
+        fraction = abs(nom.omega) / cfg.model.max_spin_rate
+        values["spin_fraction_of_limit"] = fraction
+        if fraction > 1.0:
+            warnings.append(
+                f"SPIN LIMIT EXCEEDED: {values['rpm']:.0f} rpm is "
+                f"{100 * fraction:.0f} % of the model's max_spin_rate "
+                f"({cfg.model.max_spin_rate * quality.RPM_PER_RAD_S:.0f} rpm); do not run this "
+                "point without the model's designers' approval and the facility's safety rules"
+            )
+    # Spin steadiness the spin_scatter flag will judge: alpha(t) scatters with omega and U.
+    values["spin_scatter"] = float(np.hypot(noise.spin_jitter, noise.turbulence))
+    if quality.is_spinning(nom.alpha) and values["spin_scatter"] > tol.spin_scatter:
+        warnings.append(
+            f"spin scatter {100 * values['spin_scatter']:.1f} % would exceed the spin_scatter "
+            f"tolerance {100 * tol.spin_scatter:.1f} %"
+        )
+    # Wall corrections, as the run model applies them.
+    for name in ("eps_solid", "eps_wake", "delta_CD_buoyancy", "delta_alpha_lift"):
+        values[name] = _scalar(linear.values[name])
+    eps = values["eps_solid"] + values["eps_wake"]
+    values["eps_total"] = eps
+    for name in ("CL", "CD", "CM"):
+        raw = _scalar(linear.values[f"{name}_uncorrected"])
+        values[f"{name}_correction"] = values[name] / raw - 1.0 if raw else np.nan
+    if abs(eps) > eps_limit:
+        warnings.append(
+            f"wall correction large: eps = {100 * eps:.1f} % above the stated limit "
+            f"{100 * eps_limit:.0f} % (a smaller model or a larger section)"
+        )
+    method = corrections.METHODS[cfg.reduction.blockage]
+    d_h = cfg.model.diameter / cfg.tunnel.height
+    s_c = cfg.model.diameter * cfg.model.span / (cfg.tunnel.height * cfg.tunnel.width)
+    values["d_over_h"] = d_h
+    values["area_ratio"] = s_c
+    if method.diameter_ratio_limit is not None and d_h > method.diameter_ratio_limit:
+        warnings.append(f"d/h = {d_h:.3f} beyond {method.name}'s validity ({method.validity})")
+    if method.area_ratio_limit is not None and s_c > method.area_ratio_limit:
+        warnings.append(f"S/C = {s_c:.3f} beyond {method.name}'s validity ({method.validity})")
+    if nom.outside_prior:
+        warnings.append("spin ratio outside the prior's data: coefficients held at its end")
+
+    budgets = None
+    budgeted = [n for n in _BUDGETED if values[f"u_{n}"] > 0]
+    if budgeted:
+        budgets = linear.budgets(budgeted)
+        budgets.insert(0, "point", point.point)
+        for name in budgeted:
+            rows = budgets[(budgets["output"] == name) & (budgets["input"] != "(correlations)")]
+            top = rows.sort_values("share", ascending=False).head(2)
+            values[f"dominant_{name}"] = "; ".join(
+                f"{r.input} {100 * r.share:.0f} %" for r in top.itertuples()
+            )
+    if target is not None:
+        name, wanted = target
+        values[f"record_for_u_{name}"] = _record_for(
+            cfg, point, nom, noise, air_state, name, wanted, values[f"u_{name}"]
+        )
+        needed = values[f"record_for_u_{name}"]
+        if not np.isfinite(needed):
+            warnings.append(
+                f"u({name}) = {wanted:g} is out of reach at this point: the parts that do not "
+                "shrink with the record (instrument specifications, geometry) exceed it"
+            )
+        elif needed > point.record:
+            warnings.append(
+                f"record too short for u({name}) = {wanted:g}: record at least {needed:.1f} s"
+            )
+    values["warnings"] = "; ".join(warnings)
+    return PointPrediction(point, values, budgets, warnings, theta, u_cp)
+
+
+def _record_for(cfg, point, nom, noise, air_state, name: str, wanted: float, u_now: float):
+    """Record length giving u(name) = wanted: u² = B + A / T, fitted at T and 4 T."""
+    longer = 4.0 * point.record
+    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, longer)
+    u_long = _scalar(_propagate(cfg, inputs, correlation, taps).u[name])
+    a = (u_now**2 - u_long**2) / (1.0 / point.record - 1.0 / longer)
+    floor = u_now**2 - a / point.record
+    if wanted**2 <= floor or a <= 0 and wanted < u_now:
+        return float("inf")
+    if a <= 0:
+        return 0.0
+    return float(a / (wanted**2 - floor))
