@@ -21,6 +21,7 @@ import pytest
 import xarray as xr
 from conftest import small_spec
 
+from tunnelred.common.errors import UsageError
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine import reduction
 from tunnelred.pipeline import campaign as engine
@@ -144,7 +145,7 @@ def test_dask_local_cluster_identical_to_serial(campaign_dir):
 
 def test_dask_missing_says_how_to_install(campaign_dir, monkeypatch):
     monkeypatch.setitem(sys.modules, "distributed", None)  # makes the import fail
-    with pytest.raises(ImportError, match=r'pip install "tunnelred\[dask\]"'):
+    with pytest.raises(UsageError, match=r'pip install "tunnelred\[dask\]"'):
         _reduce(campaign_dir, None, workers=2, dask="local")
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import os
 import random
+import shutil
 import signal
 import subprocess
 import sys
@@ -268,3 +269,132 @@ def test_a_failing_write_keeps_the_previous_generation(tmp_path):
                 raise OSError(28, "No space left on device")
         assert (out / "results.csv").read_text() == "old"
         assert len(list((out / ".generations").iterdir())) == 1
+
+
+# ---------------------------------------------------------------------------------------------
+# Interrupts, a full disk, and the command's messages (issue 14 item 8)
+
+SAMPLE = REPO / "sample_runs"
+
+
+@pytest.fixture(scope="module")
+def sample_out(tmp_path_factory) -> Path:
+    """OUT of the sample campaign, reduced once (84 runs: long enough to interrupt mid-run)."""
+    out = tmp_path_factory.mktemp("sample") / "out"
+    done = subprocess.run(
+        [*_command(SAMPLE, out), "--workers", "2"],
+        capture_output=True,
+        text=True,
+        env=_env(),
+        timeout=300,
+    )
+    assert done.returncode == 0, done.stderr
+    return out
+
+
+def _fresh_entries(cache: Path, since: float) -> int:
+    return sum(1 for e in cache.glob("*.npz") if e.stat().st_mtime > since)
+
+
+@pytest.mark.parametrize(
+    ("sig", "group", "status"),
+    [(signal.SIGINT, True, 130), (signal.SIGTERM, False, 143)],
+    ids=["ctrl-c", "sigterm"],
+)
+def test_an_interrupted_pool_stops_at_once_and_silently(sample_out, tmp_path, sig, group, status):
+    """Ctrl-C (SIGINT to the whole process group, as a terminal sends it) or SIGTERM (to the
+    command alone) while two processes reduce: the command ends within seconds with one
+    message, no worker prints anything, no process of it is left, and OUT keeps the previous
+    generation. Before the fix the pool was shut down waiting for its processes, which kept
+    running (and holding the terminal) after the command had gone."""
+    out = tmp_path / "out"
+    shutil.copytree(sample_out, out, symlinks=True)
+    before = assert_one_generation(out)
+    launched = time.time()
+    proc = subprocess.Popen(
+        [*_command(SAMPLE, out), "--workers", "2", "--fresh"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        env=_env(),
+        start_new_session=True,  # its own process group, as a shell job has
+    )
+    try:
+        deadline = time.monotonic() + 120
+        while _fresh_entries(out / ".cache", launched) < 3 and proc.poll() is None:
+            assert time.monotonic() < deadline, "the reduction never got going"
+            time.sleep(0.05)
+        assert proc.poll() is None, "finished before it could be interrupted"
+        sent = time.monotonic()
+        if group:
+            os.killpg(proc.pid, sig)
+        else:
+            proc.send_signal(sig)
+        out_text, err = proc.communicate(timeout=30)  # EOF: no worker holds the pipes either
+        stopped = time.monotonic() - sent
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.communicate()
+    assert proc.returncode == status
+    assert stopped < 10, f"{stopped:.1f} s to stop"
+    lines = err.decode().strip().splitlines()
+    assert len(lines) == 1 and "nothing half-written was kept" in lines[0], err.decode()
+    assert b"Traceback" not in err and b"KeyboardInterrupt" not in err
+    with pytest.raises(ProcessLookupError):  # every process of the group has gone
+        for _ in range(50):
+            os.killpg(proc.pid, 0)
+            time.sleep(0.1)
+    assert assert_one_generation(out) == before
+    assert len(list((out / ".generations").iterdir())) == 1
+
+
+def test_a_full_disk_leaves_out_untouched_with_one_message(sample_out, tmp_path):
+    """A file-size limit (ulimit -f: the writes fail as on a full disk) stops the new
+    generation; OUT keeps the previous one, the command says so once, exit 2."""
+    import resource
+
+    out = tmp_path / "out"
+    shutil.copytree(sample_out, out, symlinks=True)
+    before = assert_one_generation(out)
+    limit = 300 * 1024  # smaller than results.nc, larger than every cache entry
+
+    def limited():
+        resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
+
+    done = subprocess.run(
+        [*_command(SAMPLE, out), "--workers", "1"],
+        capture_output=True,
+        text=True,
+        env=_env(),
+        timeout=300,
+        preexec_fn=limited,
+    )
+    assert done.returncode == 2, done.stdout + done.stderr
+    assert "Traceback" not in done.stderr
+    assert "could not be written" in done.stderr and "previous results are kept" in done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1
+    assert assert_one_generation(out) == before
+    assert len(list((out / ".generations").iterdir())) == 1
+    assert not list(out.glob(".*.tmp"))
+
+
+def test_report_goes_into_the_current_generation(campaign, tmp_path):
+    """`tunnelred report OUT` writes beside the results it was made from (issue 14 item 3):
+    OUT/report.pdf links into the generation, and the next reduction does not keep it."""
+    out = tmp_path / "out"
+    assert _reduce(campaign, out).returncode == 0
+    generation = assert_one_generation(out)
+    made = subprocess.run(
+        [sys.executable, "-m", "tunnelred", "report", str(out)],
+        capture_output=True,
+        text=True,
+        env=_env(),
+        timeout=300,
+    )
+    assert made.returncode == 0, made.stderr
+    assert (out / "report.pdf").is_symlink()
+    assert Path(os.path.realpath(out / "report.pdf")).parent == generation
+    assert (generation / "report.pdf").read_bytes()[:5] == b"%PDF-"
+    assert _reduce(campaign, out).returncode == 0
+    assert not (out / "report.pdf").exists() and not (out / "report.pdf").is_symlink()
+    assert_one_generation(out)

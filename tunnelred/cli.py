@@ -4,21 +4,33 @@ Each subcommand is a pair of functions: ``_add_<name>(subparsers)`` declares its
 ``_run_<name>(args) -> int`` does the work and returns the exit status. Add a subcommand by
 writing the pair and listing ``_add_<name>`` in :data:`_SUBCOMMANDS`.
 
-Exit status: 0 success, 1 problems in the input (or a run that failed), 2 a usage error.
+Exit status: 0 success, 1 problems in the input (or a run that failed), 2 a usage error (or an
+output folder that cannot be used), 130 interrupted by Ctrl-C, 143 stopped by SIGTERM, 141 the
+reader of the output went away (``| head``). No traceback reaches a user: every error ends in
+one message (set ``TUNNELRED_TRACEBACK=1`` to see the traceback of an internal error).
+
+Every string that came from a file (a title, a description, a header cell, a run id, a path) is
+printed through :func:`tunnelred.common.text.printable`, so that no control character in it
+reaches the terminal.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
+import importlib
+import os
+import signal
 import sys
 import textwrap
+import threading
+import traceback
 from collections import Counter, defaultdict
 from pathlib import Path
 
-import numpy as np
-
 from tunnelred import __version__
-from tunnelred.common.errors import InputError, OutputFolderError, TunnelredError
+from tunnelred.common.errors import InputError, OutputFolderError, TunnelredError, UsageError
+from tunnelred.common.text import printable
 
 __all__ = ["main"]
 
@@ -40,8 +52,13 @@ class _HelpFormatter(argparse.HelpFormatter):
 
 
 def _fail_usage(message: str) -> int:
-    print(f"tunnelred: error: {message}", file=sys.stderr)
+    print(f"tunnelred: error: {printable(message)}", file=sys.stderr)
     return 2
+
+
+def _lines(lines) -> str:
+    """Lines of output for the terminal, each escaped (see :func:`printable`)."""
+    return "\n".join(printable(line) for line in lines)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -65,6 +82,8 @@ def _add_check(subparsers) -> None:
 
 
 def _range(values, fmt: str) -> str:
+    import numpy as np  # here: `tunnelred --help` and Ctrl-C at start-up need no numpy
+
     lo, hi = min(values), max(values)
     return fmt.format(lo) if np.isclose(lo, hi) else f"{fmt.format(lo)}–{fmt.format(hi)}"
 
@@ -111,7 +130,7 @@ def _run_check(args) -> int:
         out.append(f"taps: {len(names)} ({shown})")
     for notice in campaign.notices:
         out.append(f"notice: {notice.location()}: {notice.hint}")
-    print("\n".join(out))
+    print(_lines(out))
     from tunnelred.engine.plausibility import campaign_problems
 
     return _print_problems(campaign.problems + campaign_problems(campaign))
@@ -126,14 +145,11 @@ def _print_problems(problems) -> int:
         by_file[p.file].append(p)
     print(f"\n{len(problems)} problems in {len(by_file)} files:")
     for file, items in by_file.items():
-        print(f"\n{file}")
+        print(f"\n{printable(file)}")
         for p in sorted(items, key=lambda p: (p.line or 0, p.column or "")):
-            where = f"{file}:{p.line}" if p.line is not None else file
-            if p.column:
-                where += f" [{p.column}]"
-            print(f"  {where}: expected {p.expected}; found {p.found}.")
+            print(printable(f"  {p.location()}: expected {p.expected}; found {p.found}."))
             if p.hint:
-                print(f"      {p.hint}")
+                print(f"      {printable(p.hint)}")
     return 1
 
 
@@ -170,7 +186,7 @@ def _run_demo(args) -> int:
         write_demo_campaign(dest)
     else:
         write_demo_campaign(dest, seed=args.seed)
-    print(f"demo campaign written to {dest}")
+    print(f"demo campaign written to {printable(dest)}")
     return 0
 
 
@@ -256,9 +272,9 @@ def _run_reduce(args) -> int:
         print("the campaign cannot be reduced as it is (nothing was written):")
         _print_problems(exc.problems)
         return 2
-    print(results.summary())
+    print(results.summary())  # its strings from files are escaped where it is composed
     if args.report:
-        print(f"  report   {results.outputs['report.pdf']}")
+        print(f"  report   {printable(results.outputs['report.pdf'])}")
     return 1 if results.failed else 0
 
 
@@ -300,7 +316,7 @@ def _run_report(args) -> int:
     if args.campaign is not None and not args.campaign.is_dir():
         return _fail_usage(f"{args.campaign}: no such folder")
     pdf = write_report(args.results, args.out, campaign=args.campaign, full_config=args.full_config)
-    print(f"report written to {pdf}")
+    print(f"report written to {printable(pdf)}")
     return 0
 
 
@@ -332,7 +348,7 @@ def _run_export(args) -> int:
         return _fail_usage(f"{args.results}: no such folder")
     if args.xlsx.suffix.lower() != ".xlsx":
         return _fail_usage(f"{args.xlsx}: the workbook's name must end in .xlsx")
-    print(f"workbook written to {write_xlsx(args.results, args.xlsx)}")
+    print(f"workbook written to {printable(write_xlsx(args.results, args.xlsx))}")
     return 0
 
 
@@ -419,11 +435,11 @@ def _run_compare(args) -> int:
         include_flagged=args.include_flagged,
     )
     figures = [name for name in written if name.startswith("figures/")]
-    print(f"comparison by {args.by} written to {args.out}:")
+    print(f"comparison by {args.by} written to {printable(args.out)}:")
     for name, path in written.items():
         if name not in figures:
-            print(f"  {name:18s} {path}")
-    print(f"  {len(figures)} figures in {args.out / 'figures'}")
+            print(printable(f"  {name:18s} {path}"))
+    print(f"  {len(figures)} figures in {printable(args.out / 'figures')}")
     return 0
 
 
@@ -536,25 +552,103 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
-def main(argv=None) -> int:
-    """Run the ``tunnelred`` command; returns the exit status."""
-    parser = _parser()
+_PRELOAD = {"reduce": ("tunnelred.pipeline.campaign",), "watch": ("tunnelred.live.watcher",)}
+
+
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised as an interrupt so that every clean-up made for Ctrl-C runs for it too
+    (pending runs cancelled, pool processes ended, a half-written generation removed)."""
+
+
+def _raise_terminated(signum, frame) -> None:
+    raise _Terminated()
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    if threading.current_thread() is not threading.main_thread():
+        yield  # only the main thread may set a handler (main() called from a thread)
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
     try:
-        args = parser.parse_args(argv)
-    except SystemExit as exc:  # argparse exits 2 on usage errors, 0 for --help/--version
-        return int(exc.code or 0)
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _os_error_text(exc: OSError) -> str:
+    where = f"{exc.filename}: " if exc.filename else ""
+    return f"{where}{exc.strerror or exc}"
+
+
+def _reader_gone() -> int:
+    # `tunnelred ... | head`: the reader left; say nothing more. Python would still try to
+    # flush stdout at exit and report that it failed, so stdout goes to /dev/null.
+    with contextlib.suppress(OSError, ValueError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    return 141
+
+
+def _dispatch(args) -> int:
     try:
-        return args.run(args)
+        status = args.run(args)
+        sys.stdout.flush()  # a closed pipe shows here, not at exit
+        return status
+    except BrokenPipeError:
+        raise
     except InputError as exc:
         print("the input cannot be used as it is:")
         return _print_problems(exc.problems)
-    except OutputFolderError as exc:
+    except (OutputFolderError, UsageError) as exc:
         return _fail_usage(str(exc))
     except TunnelredError as exc:
-        print(f"tunnelred: {exc}", file=sys.stderr)
+        print(f"tunnelred: {printable(exc)}", file=sys.stderr)
         return 1
+    except _Terminated:
+        print("tunnelred: stopped (SIGTERM); nothing half-written was kept", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
-        print("tunnelred: interrupted", file=sys.stderr)
+        print("tunnelred: interrupted; nothing half-written was kept", file=sys.stderr)
+        return 130
+    except MemoryError:
+        print("tunnelred: out of memory", file=sys.stderr)
+        return 1
+    except OSError as exc:
+        print(f"tunnelred: {printable(_os_error_text(exc))}", file=sys.stderr)
+        return 1
+    except Exception as exc:
+        if os.environ.get("TUNNELRED_TRACEBACK"):
+            traceback.print_exc()
+        print(
+            f"tunnelred: internal error: {printable(type(exc).__name__)}: {printable(exc)}\n"
+            "  This is a fault in tunnelred, not in your data; please report it with the "
+            "command you ran (TUNNELRED_TRACEBACK=1 shows where it happened).",
+            file=sys.stderr,
+        )
+        return 1
+
+
+def main(argv=None) -> int:
+    """Run the ``tunnelred`` command; returns the exit status (see the module's docstring)."""
+    try:
+        parser = _parser()
+        try:
+            args = parser.parse_args(argv)
+        except SystemExit as exc:  # argparse exits 2 on usage errors, 0 for --help/--version
+            sys.stdout.flush()
+            return int(exc.code or 0)
+        # The long-running commands' modules first: a SIGTERM while an extension module is
+        # imported could be lost inside its C code; before the handler is set it just ends the
+        # command, which has not started anything yet.
+        for module in _PRELOAD.get(args.command, ()):
+            with contextlib.suppress(Exception):  # a broken install: reported by the command
+                importlib.import_module(module)
+        with _sigterm_as_interrupt():
+            return _dispatch(args)
+    except BrokenPipeError:
+        return _reader_gone()
+    except KeyboardInterrupt:  # while parsing, or while a message above was printed
         return 130
 
 

@@ -9,7 +9,15 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["Problem", "TunnelredError", "InputError", "ReductionError"]
+__all__ = [
+    "Problem",
+    "TunnelredError",
+    "InputError",
+    "ReductionError",
+    "OutputFolderError",
+    "OutsideError",
+    "UsageError",
+]
 
 
 @dataclass(frozen=True)
@@ -130,3 +138,11 @@ class OutputFolderError(TunnelredError):
 
 class OutsideError(OutputFolderError):
     """A path to be written resolves outside the folder it must stay in."""
+
+
+class UsageError(TunnelredError):
+    """Something asked for cannot be done as given; nothing was reduced or written.
+
+    Examples: a ``--dask`` address that is malformed or where no scheduler answers, or an
+    optional dependency that is not installed. The command exits 2, as for a usage error.
+    """

@@ -22,6 +22,8 @@ import json
 import multiprocessing
 import os
 import secrets
+import signal
+import socket
 import stat
 import sys
 import tempfile
@@ -39,7 +41,8 @@ import xarray as xr
 from threadpoolctl import threadpool_limits
 
 from tunnelred import __version__
-from tunnelred.common.errors import InputError, Problem, ReductionError
+from tunnelred.common.errors import InputError, Problem, ReductionError, UsageError
+from tunnelred.common.text import printable
 from tunnelred.engine import quality, reduction
 from tunnelred.inputs.readers import open_campaign
 from tunnelred.products import store
@@ -49,6 +52,10 @@ __all__ = ["CampaignResults", "reduce_campaign", "cache_key"]
 _CACHE_DIR = ".cache"
 _CACHE_SUFFIX = ".npz"
 _DASK_HINT = 'dask is not installed; install it with: pip install "tunnelred[dask]"'
+# Seconds a dask scheduler has to answer before the reduction stops with a message.
+_DASK_CONNECT = 5.0
+# Seconds an interrupted reduction waits for a pool process still starting.
+_STOP_WAIT = 3.0
 # Lines of each list in the one-screen summary before "and N more".
 _SUMMARY_LINES = 12
 
@@ -95,19 +102,23 @@ class CampaignResults:
         return rows
 
     def summary(self) -> str:
-        """The one-screen summary: runs reduced, flagged and failed, and where outputs went."""
+        """The one-screen summary: runs reduced, flagged and failed, and where outputs went.
+
+        Every string from a file in it (title, run ids, reasons, paths) is escaped for a
+        terminal (:func:`tunnelred.common.text.printable`).
+        """
         fresh = self.reduced - self.from_cache
         lines = [
-            f"{self.title or 'campaign'}: {self.reduced + self.failed} data runs in "
+            f"{printable(self.title or 'campaign')}: {self.reduced + self.failed} data runs in "
             f"{self.elapsed:.1f} s",
             f"  reduced  {self.reduced} ({fresh} now, {self.from_cache} from cache)",
             f"  flagged  {self.flagged}",
         ]
-        lines += _capped([f"    {run}  {flags}" for run, flags in self._flagged_runs()])
+        lines += _capped([printable(f"    {run}  {f}") for run, f in self._flagged_runs()])
         lines.append(f"  failed   {self.failed}")
         lines += _capped(
             [
-                f"    {run}  {where + '  ' if where else ''}{reason}"
+                printable(f"    {run}  {where + '  ' if where else ''}{reason}")
                 for run, where, reason in self._failed_runs()
             ]
         )
@@ -117,10 +128,10 @@ class CampaignResults:
             figures = sum(1 for name in self.outputs if name.startswith("figures/"))
             if figures:
                 files.append(f"figures/ ({figures} PNG)")
-            lines.append(f"  outputs  {folder}: {', '.join(files)}")
+            lines.append(f"  outputs  {printable(folder)}: {', '.join(files)}")
         else:
             lines.append("  outputs  none written (no output folder given)")
-        lines += [f"  notice   {text}" for text in self.notices]
+        lines += [f"  notice   {printable(text)}" for text in self.notices]
         return "\n".join(lines)
 
     def __str__(self) -> str:
@@ -471,8 +482,28 @@ def _pool_context():
         context.set_forkserver_preload(
             ["tunnelred.pipeline.campaign", "tunnelred.products.plotting"]
         )
+        _start_forkserver_deaf_to_ctrl_c()
         return context
     return multiprocessing.get_context("spawn")
+
+
+def _start_forkserver_deaf_to_ctrl_c() -> None:
+    """Start the fork server with SIGINT ignored, so that Ctrl-C reaches only this process.
+
+    An ignored signal stays ignored across fork and exec, and Python leaves an ignored SIGINT
+    alone at start-up: the server and every worker it forks then ignore Ctrl-C (none prints a
+    KeyboardInterrupt of its own), and this process stops them itself (:meth:`_PoolStart.finish`).
+    Only the main thread may change a signal's handler; elsewhere the server starts as it would.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        return
+    from multiprocessing import forkserver
+
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        forkserver.ensure_running()
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def _warm(path: str, token: str) -> None:
@@ -519,12 +550,24 @@ class _PoolStart:
         with self._lock:
             return self._submitted
 
-    def finish(self, wait: bool) -> None:
+    def finish(self, wait: bool, *, stop: bool = False) -> None:
+        """Shut the pool down; ``stop`` (an interrupted reduction) ends its processes at once.
+
+        Without ``stop`` a process still reducing finishes its run first; with it, queued runs
+        are cancelled and the processes terminated, so that Ctrl-C or SIGTERM ends the command
+        within a second or two whatever the workers are doing.
+        """
         if wait:
-            # A process still starting when the command exits dies with a traceback of its own.
-            self._thread.join()
+            # A process still starting when the command exits dies with a traceback of its own;
+            # an interrupted reduction waits a little for it, not for ever.
+            self._thread.join(timeout=_STOP_WAIT if stop else None)
         with self._lock:
             self._finished = True
+            if stop:
+                # The executor has no public way to end its processes before Python 3.14.
+                for process in list(getattr(self.executor, "_processes", {}).values()):
+                    with contextlib.suppress(Exception):
+                        process.terminate()
             if self._submitted:
                 self.executor.shutdown(wait=wait, cancel_futures=True)
 
@@ -538,6 +581,7 @@ def _run_pool(campaign, pool: _PoolStart, run_ids, monte_carlo):
     todo = deque(run_ids)
     pending: dict = {}
     broken = False
+    complete = False
     try:
         while todo or pending:
             while todo and not broken and len(pending) < 2 * pool.helpers and pool.ready:
@@ -562,19 +606,61 @@ def _run_pool(campaign, pool: _PoolStart, run_ids, monte_carlo):
                     # The worker process died (BrokenProcessPool) or the outcome did not
                     # come back; the run is failed, the others go on.
                     yield _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+        complete = True
     finally:
+        # Not complete: interrupted (Ctrl-C, SIGTERM) or closed early; stop the processes.
         for future in pending:
             future.cancel()
-        pool.finish(wait=True)
+        pool.finish(wait=True, stop=not complete)
 
 
 def _distributed():
     """dask.distributed, imported only when asked for: it is an optional dependency."""
     try:
         import distributed
-    except ImportError as exc:
-        raise ImportError(_DASK_HINT) from exc
+    except ImportError:
+        raise UsageError(_DASK_HINT) from None
     return distributed
+
+
+def _check_scheduler(address: str) -> None:
+    """Refuse a malformed ``--dask`` address at once, and one where nothing answers quickly.
+
+    The address is parsed as dask.distributed parses it; then a plain connection to its host
+    and port must open within :data:`_DASK_CONNECT` seconds (dask's own client would wait 30 s
+    and then print its tracebacks). Raises :class:`UsageError`; nothing has been reduced.
+    """
+    from distributed.comm.addressing import get_address_host_port
+
+    hint = "give tcp://HOST:PORT of a running dask scheduler, or 'local'"
+    try:
+        host, port = get_address_host_port(address)
+    except (ValueError, TypeError) as exc:
+        raise UsageError(f"--dask {address!r} is not a scheduler address ({exc}); {hint}") from None
+    if not host or not 0 < int(port) < 65536:
+        raise UsageError(f"--dask {address!r} is not a scheduler address; {hint}")
+    try:
+        conn = socket.create_connection((host, int(port)), timeout=_DASK_CONNECT)
+    except OSError as exc:
+        reason = exc.strerror or str(exc) or type(exc).__name__
+        raise UsageError(
+            f"no dask scheduler answers at {address} within {_DASK_CONNECT:g} s ({reason}); "
+            "check that it runs and the address, or use --dask local"
+        ) from None
+    with conn:
+        if not address.startswith("tcp://") and "://" in address:
+            return  # tls and the others: the client speaks first
+        # A dask scheduler sends its handshake as soon as a connection opens; something else
+        # listening there (dask's client would wait on it for ever) says nothing or closes.
+        try:
+            greeting = conn.recv(1)
+        except OSError:
+            greeting = b""
+    if not greeting:
+        raise UsageError(
+            f"{address} does not answer as a dask scheduler within {_DASK_CONNECT:g} s; "
+            "check the address (the scheduler's port, 8786 by default), or use --dask local"
+        )
 
 
 def _dask_client(dask: str, workers: int):
@@ -585,7 +671,13 @@ def _dask_client(dask: str, workers: int):
             n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
         )
         return Client(cluster), cluster
-    return Client(dask), None
+    try:
+        return Client(dask, timeout=f"{_DASK_CONNECT}s"), None
+    except Exception as exc:  # the port answers, but not as a dask scheduler would
+        raise UsageError(
+            f"{dask} does not answer as a dask scheduler within {_DASK_CONNECT:g} s "
+            f"({type(exc).__name__}); check the address, or use --dask local"
+        ) from None
 
 
 def _run_dask(path, token, run_ids, monte_carlo, workers, dask):
@@ -756,6 +848,8 @@ def reduce_campaign(
     started = time.perf_counter()
     if dask is not None:
         _distributed()
+        if dask != "local":
+            _check_scheduler(dask)
     path = Path(path).resolve()
     held = isinstance(out, ResultsFolder)
     if out is not None and not held:

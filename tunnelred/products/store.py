@@ -27,7 +27,7 @@ import pandas as pd
 import xarray as xr
 
 from tunnelred import __version__
-from tunnelred.common.errors import OutsideError
+from tunnelred.common.errors import InputError, OutsideError
 from tunnelred.engine.quality import FLAG_NAMES, flag_columns
 
 if TYPE_CHECKING:
@@ -503,7 +503,10 @@ def write_results(
         for name in ("results.nc", "results.csv", "provenance.json", "failures.csv", "budgets.csv")
     }
     with atomic_path(paths["results.nc"]) as tmp:
-        ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
+        try:
+            ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
+        except RuntimeError as exc:  # the HDF5 library's word for a write that failed
+            raise OSError(f"results.nc: {exc}; is the disk full?") from None
     write_csv(run_table(ds), paths["results.csv"])
     atomic_write_bytes(paths["provenance.json"], _provenance_json(ds))
     failures = _with_columns(failures, FAILURE_COLUMNS)
@@ -568,8 +571,25 @@ def read_results(out_dir_or_file) -> xr.Dataset:
     path = Path(out_dir_or_file)
     if path.is_dir():
         path = path / "results.nc"
-    with xr.open_dataset(path, engine="netcdf4") as ds:
-        return ds.load()
+    hint = "Reduce the campaign first (tunnelred reduce CAMPAIGN -o OUT) and give OUT."
+    if not path.is_file():
+        found = "no results.nc" if path.parent.is_dir() else "no such folder"
+        if (path.parent / "campaign.toml").is_file():
+            found = "a campaign folder (it holds campaign.toml, not results)"
+        raise InputError.single(path.parent, None, None, "a results folder", found, hint)
+    try:
+        with xr.open_dataset(path, engine="netcdf4") as ds:
+            ds = ds.load()
+    except (OSError, ValueError, KeyError, TypeError, RuntimeError) as exc:
+        raise InputError.single(
+            path,
+            None,
+            None,
+            "a NetCDF results file written by tunnelred reduce",
+            f"a file that cannot be read as one ({type(exc).__name__}: {exc})",
+            "Reduce the campaign again into this folder to rewrite it.",
+        ) from None
+    return ds
 
 
 @functools.cache

@@ -19,6 +19,7 @@ this module puts them together in :func:`write_report`.
 
 from __future__ import annotations
 
+import os
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -26,7 +27,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import Frame, PageTemplate, Spacer
 
 from tunnelred import __version__
-from tunnelred.products import plotting, store
+from tunnelred.products import plotting, results_folder, store
 from tunnelred.products.report.appendix import appendix_section
 from tunnelred.products.report.data import ReportData
 from tunnelred.products.report.description import (
@@ -80,9 +81,14 @@ def write_report(out_dir, pdf_path=None, *, campaign=None, full_config: bool = F
     ----------
     out_dir : str or path-like
         An output folder of :func:`tunnelred.pipeline.campaign.reduce_campaign` (results.nc,
-        budgets.csv, failures.csv).
+        budgets.csv, failures.csv), or a folder holding those three files. The results are
+        read from OUT's current generation, so that a reduction switching meanwhile cannot mix
+        two sets.
     pdf_path : str or path-like, optional
-        Where to write; default ``out_dir``/report.pdf. Written atomically.
+        Where to write; default ``out_dir``/report.pdf. Written atomically. The default in an
+        output folder of generations goes into the current generation, beside the results it
+        was made from (OUT is locked meanwhile, and OUT/report.pdf links to it), so that the
+        next reduction, which makes a new generation, does not leave it beside newer results.
     campaign : tunnelred.inputs.readers.Campaign or path-like, optional
         The campaign folder (or the opened campaign); default: the folder the results record,
         if it is still there. It gives the report control ([report]), the model, the
@@ -111,6 +117,29 @@ def write_report(out_dir, pdf_path=None, *, campaign=None, full_config: bool = F
     """
     out = Path(out_dir)
     pdf = Path(pdf_path) if pdf_path is not None else out / "report.pdf"
+    if results_folder.generation_of(out) != out and _is_published(out, pdf):
+        return _report_into_current(out, campaign, full_config)
+    _build(results_folder.generation_of(out), pdf, campaign, full_config)
+    return pdf
+
+
+def _is_published(out: Path, pdf: Path) -> bool:
+    """``pdf`` is OUT/report.pdf, the name a generation publishes (however it was written)."""
+    return pdf.name == "report.pdf" and os.path.realpath(pdf.parent) == os.path.realpath(out)
+
+
+def _report_into_current(out: Path, campaign, full_config: bool) -> Path:
+    with results_folder.open_results_folder(out) as folder:
+        generation = folder.current()
+        if generation is None:  # removed meanwhile: nothing to report on
+            store.read_results(out)  # says so, with the file and a hint
+        _build(generation, generation / "report.pdf", campaign, full_config)
+        results_folder.link_outputs(folder.root)
+        return folder.root / "report.pdf"
+
+
+def _build(out: Path, pdf: Path, campaign, full_config: bool) -> None:
+    """The report of the results in ``out``, written to ``pdf``."""
     data = ReportData(out, campaign)
     faces = register_fonts()
     b = Builder(paragraph_styles(faces))
@@ -148,4 +177,3 @@ def write_report(out_dir, pdf_path=None, *, campaign=None, full_config: bool = F
         frame = Frame(MARGIN, MARGIN, WIDTH, PAGE[1] - 2 * MARGIN, id="body")
         doc.addPageTemplates([PageTemplate(id="page", frames=[frame])])
         doc.multiBuild(b.story, canvasmaker=canvas_class(data.title, data.control.footer, faces))
-    return pdf
