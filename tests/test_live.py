@@ -523,3 +523,100 @@ def test_live_figure_draws_lift_drag_and_the_ideal_line():
         circled = [line for line in ax.get_lines() if line.get_label() == "flagged run"]
         assert len(circled) == 1 and circled[0].get_xdata().tolist() == [1.0]
     assert not any("potential flow" in line.get_label() for line in drag.get_lines())
+
+
+# ---------------------------------------------------------------------------------------------
+# Bad inputs and hostile paths (issue 14 items 2 and 8)
+
+
+def _edit_rows(campaign: Path, edit) -> None:
+    """Rewrite runs.csv with ``edit(table)`` (a DataFrame of strings), rows in order."""
+    table = pd.read_csv(campaign / "runs.csv", dtype=str, keep_default_na=False)
+    edit(table)
+    table.to_csv(campaign / "runs.csv", index=False)
+
+
+def test_bad_inputs_fail_their_run_and_the_watch_goes_on(source, tmp_path):
+    """A log path that is a folder or a FIFO (never opened: it would block), a runs.csv cell
+    over the csv module's 128 KiB field limit, and a row with too few cells: each run is
+    shown failed with its reason, the others are reduced, and the watch keeps watching."""
+    import os
+
+    campaign = _settled_campaign(source, tmp_path / "campaign")
+    (campaign / "logs" / "a_folder.csv").mkdir()
+    os.mkfifo(campaign / "logs" / "a_fifo.csv")
+
+    def edit(table):
+        table.loc[table["run"] == "R002", "balance_log"] = "logs/a_folder.csv"
+        table.loc[table["run"] == "R005", "tunnel_log"] = "logs/a_fifo.csv"
+        table.loc[table["run"] == "R004", "notes"] = "x" * (140 * 1024)
+
+    _edit_rows(campaign, edit)
+    with open(campaign / "runs.csv", "a", encoding="utf-8") as f:
+        f.write("R099,data,plates\n")
+    out = tmp_path / "out"
+    watch = Watch(campaign, out, Recorder())
+    try:
+
+        def settled(status) -> bool:
+            states = _states(status)
+            done = all(states.get(r) in ("reduced", "flagged") for r in ("R001", "R003", "R006"))
+            failed = all(states.get(r) == "failed" for r in ("R002", "R004", "R005", "R099"))
+            return done and failed and not status.busy
+
+        status = watch.wait_for(settled, "the good runs reduced and the bad ones failed")
+        assert "a folder" in _line(status, "R002").reason
+        assert "not a regular file" in _line(status, "R005").reason
+        assert "field larger than field limit" in _line(status, "R004").reason
+        assert "R099" in _line(status, "R099").run and _line(status, "R099").reason
+        assert watch.thread.is_alive()  # still watching
+        # The watch holds OUT: a reduce into it meanwhile is refused (issue 14 item 4).
+        from tunnelred.products.results_folder import OutputFolderError, open_results_folder
+
+        with pytest.raises(OutputFolderError, match="in use"):
+            open_results_folder(out)
+        # live.png is part of the generation in force, beside the results it shows.
+        figure = Path(os.path.realpath(out / "figures" / "live.png"))
+        assert figure.parent.parent == Path(os.path.realpath(out / "current"))
+    finally:
+        final = watch.close()
+    assert final.stopped
+
+
+def test_a_link_followed_by_dotdot_cannot_copy_outside_out(source, tmp_path):
+    """Issue 14 item 2, the planted case: ``l1`` links to ``d1/d2/d3/d4/d5`` inside the
+    campaign, and a log named ``l1/../../../../victim.csv`` resolves to ``d1/victim.csv``,
+    inside it; the copy into the snapshot written as ``snapshot/<path as written>`` climbed
+    four folders up from OUT/.live/campaign, to beside OUT, and replaced the file there."""
+    import os
+
+    campaign = _settled_campaign(source, tmp_path / "campaign")
+    (campaign / "d1" / "d2" / "d3" / "d4" / "d5").mkdir(parents=True)
+    os.symlink("d1/d2/d3/d4/d5", campaign / "l1")
+    table = pd.read_csv(campaign / "runs.csv", dtype=str, keep_default_na=False)
+    log = table.loc[table["run"] == "R001", "balance_log"].item()
+    shutil.copyfile(campaign / log, campaign / "d1" / "victim.csv")
+    _edit_rows(
+        campaign,
+        lambda t: t.__setitem__(
+            "balance_log", t["balance_log"].where(t["run"] != "R001", "l1/../../../../victim.csv")
+        ),
+    )
+    holder = tmp_path / "results"
+    holder.mkdir()
+    out = holder / "out"
+    victim = holder / "victim.csv"
+    victim.write_text("precious\n")
+    before = sorted(p.name for p in tmp_path.rglob("*") if not p.is_relative_to(out))
+    watch = Watch(campaign, out, Recorder())
+    try:
+        status = watch.wait_for(
+            lambda s: _states(s).get("R001") == "failed" and _states(s).get("R002") == "reduced",
+            "R001 failed for its path, the others reduced",
+        )
+        assert "'..'" in _line(status, "R001").reason
+    finally:
+        watch.close()
+    assert victim.read_text() == "precious\n"
+    after = sorted(p.name for p in tmp_path.rglob("*") if not p.is_relative_to(out))
+    assert after == before  # nothing written anywhere but OUT

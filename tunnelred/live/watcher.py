@@ -29,16 +29,18 @@ import math
 import os
 import re
 import shutil
+import stat
 import sys
 import threading
 import time
 from dataclasses import asdict, dataclass, replace
 from datetime import datetime
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 
 import numpy as np
 
-from tunnelred.common.errors import InputError, Problem
+from tunnelred.common.errors import InputError, OutputFolderError, Problem
+from tunnelred.common.text import printable
 from tunnelred.engine import quality
 from tunnelred.inputs.config import load_config
 from tunnelred.inputs.readers import STREAMS
@@ -189,7 +191,8 @@ def _write_status(out_dir: Path, status: Status) -> None:
         for r in record["runs"]
     ]
     text = json.dumps(record, indent=1) + "\n"
-    store.atomic_write_bytes(out_dir / _LIVE_DIR / _STATUS_FILE, text.encode("utf-8"))
+    path = store.contained(out_dir, out_dir / _LIVE_DIR / _STATUS_FILE)
+    store.atomic_write_bytes(path, text.encode("utf-8"))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -240,7 +243,9 @@ def render_lines(status: Status, *, latest: int = _LATEST) -> list[tuple[str, st
     Returns
     -------
     list of (str, str)
-        The text of each line and its kind: ``"title"``, ``"header"``, ``"run"``, ``"flag"``
+        The text of each line (control characters escaped, see
+        :func:`tunnelred.common.text.printable`) and its kind: ``"title"``, ``"header"``,
+        ``"run"``, ``"flag"``
         (a flagged or failed run, or a truncated log: to be shown so that it cannot be missed),
         ``"problem"`` or ``""``.
 
@@ -269,7 +274,8 @@ def render_lines(status: Status, *, latest: int = _LATEST) -> list[tuple[str, st
     if status.fresh:
         lines.append((f"reduced at the latest update: {', '.join(status.fresh)}", ""))
     lines.append((status.note, ""))
-    return lines
+    # Titles, run ids, reasons and paths come from files: no control character is drawn.
+    return [(printable(text), kind) for text, kind in lines]
 
 
 class TerminalView:
@@ -332,17 +338,17 @@ class TerminalView:
         stamp = status.updated[11:19] if len(status.updated) >= 19 else status.updated
         for problem in status.problems:
             if problem not in self._problems:
-                print(f"[{stamp}] !! {problem}", file=self.stream)
+                print(f"[{stamp}] !! {printable(problem)}", file=self.stream)
         self._problems = status.problems
         for r in status.runs:
             said = (r.state, r.reason)
             if self._said.get(r.run) == said:
                 continue
             if r.state != WAITING or r.reason != "":
-                print(f"[{stamp}] {_run_text(r).rstrip()}", file=self.stream)
+                print(f"[{stamp}] {printable(_run_text(r).rstrip())}", file=self.stream)
             self._said[r.run] = said
         if status.stopped:
-            print(f"[{stamp}] {_counts_text(status)}; {status.note}", file=self.stream)
+            print(f"[{stamp}] {_counts_text(status)}; {printable(status.note)}", file=self.stream)
 
 
 class LiveView:
@@ -490,10 +496,20 @@ def live_figure(results):
     return fig
 
 
-def _save_figure(results, out_dir: Path) -> None:
-    fig = live_figure(results)
-    with store.atomic_path(out_dir / "figures" / _FIGURE_FILE) as tmp:
-        fig.savefig(tmp, format="png", dpi=100)
+def _live_figure_into(staging, ds) -> dict[str, Path]:
+    """figures/live.png, drawn into the new generation with the results it shows, so that the
+    switch to it brings the figure along (none while no run has results)."""
+    if not ds.sizes.get("run", 0):
+        return {}
+    name = f"figures/{_FIGURE_FILE}"
+    path = staging.file(name)
+    with store.atomic_path(path) as tmp:
+        live_figure(ds).savefig(tmp, format="png", dpi=100)
+    return {name: path}
+
+
+def _internal_text(doing: str, exc: BaseException) -> str:
+    return f"internal error while {doing}: {type(exc).__name__}: {exc} (the watch goes on)"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -511,6 +527,7 @@ class _Row:
     needs: tuple[str, ...]  # its zero and tare runs
     lines: tuple[int, int]  # first and past-the-last physical line of the record
     text: str  # the record as written, for noticing an edited row
+    problem: str = ""  # why the row cannot be used (the run is shown failed, never reduced)
 
 
 def _whole_lines(data: bytes) -> bytes:
@@ -529,17 +546,28 @@ def _whole_lines(data: bytes) -> bytes:
 
 
 def _inside(root: Path, text: str) -> str | None:
-    """The log path as written (forward slashes), or None when it leads outside the folder.
+    """The log path, relative with forward slashes, or None when it may lead outside the folder.
 
-    The watch must never open a file outside the campaign folder; the readers report such a
-    path as a problem of the run.
+    The readers' rule (tunnelred.inputs.readers): relative, no ``..`` segment, and inside the
+    folder once links are followed. The watch never opens a file outside the campaign folder,
+    and never copies one to a path that ``..`` could lead out of the snapshot; the readers
+    report such a path as a problem of the run.
     """
-    rel = text.replace("\\", "/")
+    posix = text.replace("\\", "/")
+    pure = PurePosixPath(posix)
+    if pure.is_absolute() or re.match(r"^[A-Za-z]:", posix) or ".." in pure.parts:
+        return None
     try:
-        inside = (root / rel).resolve().is_relative_to(root.resolve())
+        inside = Path(os.path.realpath(root / pure)).is_relative_to(os.path.realpath(root))
     except (OSError, RuntimeError, ValueError):
         inside = False
-    return rel if inside else None
+    return pure.as_posix() if inside else None
+
+
+def _cell(line: str, index: int) -> str:
+    """The ``index``-th comma-separated cell of a line that the csv module refused, or ''."""
+    cells = line.split(",")
+    return cells[index].strip()[:64] if 0 <= index < len(cells) else ""
 
 
 def _rows(root: Path, text: str) -> tuple[list[str], list[_Row]]:
@@ -552,7 +580,30 @@ def _rows(root: Path, text: str) -> tuple[list[str], list[_Row]]:
     names = [cell.strip().lstrip("\ufeff") for cell in header]
     rows = []
     first = reader.line_num
-    for record in reader:
+    while True:
+        try:
+            record = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as exc:  # a cell over the csv module's limit (128 KiB), say
+            last = reader.line_num
+            record_text = "".join(lines[first:last])
+            run = _cell(record_text, names.index("run")) if "run" in names else ""
+            where = f"runs.csv:{first + 1}"
+            rows.append(
+                _Row(
+                    run=run or where,
+                    kind="",
+                    config="",
+                    logs=(),
+                    needs=(),
+                    lines=(first, last),
+                    text=record_text,
+                    problem=f"{where}: {exc}; the row cannot be read",
+                )
+            )
+            first = last
+            continue
         last = reader.line_num
         cells = {n: c.strip() for n, c in zip(names, record, strict=False)}
         run = cells.get("run", "")
@@ -583,9 +634,20 @@ class _Changed(Exception):
     """A file changed while it was being copied into the snapshot."""
 
 
+def _bad_file(rel: str, what: str) -> Problem:
+    return Problem(
+        rel,
+        None,
+        None,
+        "a readable regular file",
+        what,
+        "Fix the path in runs.csv or the file; the watch goes on with the other runs.",
+    )
+
+
 @dataclass(frozen=True)
 class _FileState:
-    state: str  # missing, empty, growing, cut, ready
+    state: str  # missing, empty, growing, cut, ready, or bad (a folder, unreadable: never ready)
     key: tuple[int, int] | None = None  # size, mtime_ns
     problem: Problem | None = None
 
@@ -604,6 +666,7 @@ class _Watcher:
         self.root = Path(campaign_dir).resolve()
         self.out = Path(out_dir).resolve()
         self.snapshot = self.out / _LIVE_DIR / _SNAPSHOT_DIR
+        self.folder = None  # the ResultsFolder the watch holds (locked) for the engine
         self.settle = float(settle)
         self.workers = workers
         self.clock = clock
@@ -630,6 +693,9 @@ class _Watcher:
             self.seen.pop(rel, None)
             return _FileState("missing")
         key = (st.st_size, st.st_mtime_ns)
+        if not stat.S_ISREG(st.st_mode):  # a folder, a FIFO, a device: never opened
+            what = "a folder" if stat.S_ISDIR(st.st_mode) else "not a regular file"
+            return _FileState("bad", key, _bad_file(rel, what))
         now = self.clock()
         seen = self.seen.get(rel)
         if seen is None or seen.key != key:
@@ -643,13 +709,17 @@ class _Watcher:
         return seen.tail
 
     def _verdict(self, rel: str, key: tuple[int, int]) -> _FileState:
-        """A settled log: ready, or cut off mid-line (its last line has no line break)."""
-        with open(self.root / rel, "rb") as f:
-            f.seek(-1, os.SEEK_END)
-            if f.read(1) in b"\r\n":
-                return _FileState("ready", key)
-            f.seek(0)
-            data = f.read()
+        """A settled log: ready, cut off mid-line (its last line has no line break), or bad."""
+        try:
+            with open(self.root / rel, "rb") as f:
+                f.seek(-1, os.SEEK_END)
+                if f.read(1) in b"\r\n":
+                    return _FileState("ready", key)
+                f.seek(0)
+                data = f.read()
+        except OSError as exc:
+            unreadable = f"a file that cannot be read ({exc.strerror or exc})"
+            return _FileState("bad", key, _bad_file(rel, unreadable))
         number = len(_NEWLINE.findall(data)) + 1
         last = data[data.rfind(b"\n") + 1 :].decode("utf-8", errors="replace")
         problem = Problem(
@@ -672,7 +742,13 @@ class _Watcher:
         """Copy a settled file into the snapshot; False when it changed meanwhile."""
         if self.copied.get(rel) == key:
             return False
-        source, dest = self.root / rel, self.snapshot / rel
+        source = self.root / rel
+        try:
+            # A log path that passed _inside (no `..`) or a file campaign.toml names; the
+            # copy's path is checked, resolved, to stay inside OUT, as every write into OUT is.
+            dest = store.contained(self.out, self.snapshot / rel)
+        except OutputFolderError:
+            return False
         try:
             st = dest.stat()
             if (st.st_size, st.st_mtime_ns) == key:
@@ -709,7 +785,11 @@ class _Watcher:
             else:
                 self._copy_named_files()
         if "runs.csv" not in waiting_inputs and inputs["runs.csv"].key != self.runs_key:
-            data = (self.root / "runs.csv").read_bytes()
+            try:
+                data = (self.root / "runs.csv").read_bytes()
+            except OSError as exc:
+                inputs["runs.csv"] = _FileState("bad", None, _bad_file("runs.csv", str(exc)))
+                return self._status({}, set(), note=self._note(inputs))
             text = _whole_lines(data).decode("utf-8-sig", errors="replace")
             self.lines, self.rows = _rows(self.root, text)
             self.runs_key = inputs["runs.csv"].key
@@ -727,7 +807,9 @@ class _Watcher:
         snapshot_text = self._snapshot_runs(available)
         named_copied = all(rel in self.copied for rel in self.named_files)
         if snapshot_text != self.snapshot_runs and "campaign.toml" in self.copied and named_copied:
-            store.atomic_write_bytes(self.snapshot / "runs.csv", snapshot_text)
+            store.atomic_write_bytes(
+                store.contained(self.out, self.snapshot / "runs.csv"), snapshot_text
+            )
             self.snapshot_runs = snapshot_text
 
         data_runs = [r for r in self.rows if r.kind == "data"]
@@ -741,10 +823,9 @@ class _Watcher:
             self.fresh = fresh
             busy = self._status(verdicts, available, note=f"reducing {_list(fresh)}")
             publish(replace(busy, busy=True))
-            self._reduce()
-            self.signatures = signatures
-        note = self._note(waiting_inputs)
-        return self._status(verdicts, available, note=note)
+            if self._reduce():
+                self.signatures = signatures
+        return self._status(verdicts, available, note=self._note(inputs))
 
     def _judge(self, rid, by_id, states, verdicts, chain) -> tuple[str, str]:
         """(state, reason) of a run from its own logs and its zero and tare runs."""
@@ -753,6 +834,9 @@ class _Watcher:
         row = by_id.get(rid)
         if row is None:
             return WAITING, f"{rid}: no row in runs.csv yet"
+        if row.problem:
+            verdicts[rid] = (FAILED, row.problem)
+            return verdicts[rid]
         if rid in chain:
             return COMPLETE, ""  # a loop of references is the readers' problem to report
         verdict = (COMPLETE, "")
@@ -762,6 +846,9 @@ class _Watcher:
                 continue
             if s.state == "cut":
                 verdict = (TRUNCATED, str(s.problem))
+                break
+            if s.state == "bad":
+                verdict = (FAILED, str(s.problem))
                 break
             text = {"missing": "not written yet", "empty": "empty so far"}.get(
                 s.state, "still being written"
@@ -781,7 +868,7 @@ class _Watcher:
     def _available(self, rid, by_id, visiting) -> bool:
         """Every log of the run and of its zero and tare runs has a copy in the snapshot."""
         row = by_id.get(rid)
-        if row is None:
+        if row is None or row.problem:
             return False
         if rid in visiting:
             return True
@@ -809,20 +896,32 @@ class _Watcher:
                     lines[i] = lines[i][len(lines[i].rstrip("\r\n")) :]
         return "".join(lines).encode("utf-8")
 
-    def _reduce(self) -> None:
-        try:
-            from tunnelred.pipeline.campaign import reduce_campaign
+    def _reduce(self) -> bool:
+        """Reduce the snapshot into OUT; False when OUT could not take the results (a full
+        disk, say: tried again at the next poll). Nothing here ends the watch."""
+        from tunnelred.pipeline.campaign import reduce_campaign
 
+        try:
             self.results = reduce_campaign(
-                self.snapshot, self.out, workers=self.workers, progress=False, figures=False
+                self.snapshot,
+                self.folder if self.folder is not None else self.out,
+                workers=self.workers,
+                progress=False,
+                figures=False,
+                extras=_live_figure_into,
             )
         except InputError as exc:
             self.problems = tuple(str(p) for p in exc.problems)
-            return
+            return True
+        except OutputFolderError as exc:
+            self.problems = (str(exc),)
+            return False
+        except Exception as exc:  # a fault of ours must not end a watch mid-test
+            self.problems = (_internal_text("reducing", exc),)
+            return True
         self.problems = ()
         self.reductions += 1
-        if self.results.reduced:
-            _save_figure(self.results, self.out)
+        return True
 
     def _status(self, verdicts, available, *, note: str) -> Status:
         values, reasons, failed = {}, {}, {}
@@ -838,7 +937,7 @@ class _Watcher:
         lines = []
         listed = set()
         for row in self.rows:
-            if row.kind != "data":
+            if row.kind != "data" and not row.problem:  # a row too broken to say its kind
                 continue
             listed.add(row.run)
             state, reason = verdicts.get(row.run, (WAITING, ""))
@@ -879,7 +978,11 @@ class _Watcher:
             updated=datetime.now().isoformat(timespec="seconds"),
         )
 
-    def _note(self, waiting_inputs) -> str:
+    def _note(self, inputs: dict[str, _FileState]) -> str:
+        bad = [str(s.problem) for s in inputs.values() if s.state == "bad"]
+        if bad:
+            return "; ".join(bad)
+        waiting_inputs = [rel for rel, s in inputs.items() if s.state != "ready"]
         if waiting_inputs:
             return f"waiting for {' and '.join(waiting_inputs)} to settle"
         return f"watching {self.root} (a file counts once unchanged for {self.settle:g} s)"
@@ -975,9 +1078,14 @@ def watch(
     """
     if settle < 0 or poll <= 0:
         raise ValueError("settle must be 0 or more and poll more than 0 seconds")
+    from tunnelred.products.results_folder import open_results_folder
+
+    # OUT is held (locked) for the whole watch: a reduce into it meanwhile stops at once.
+    folder = open_results_folder(out_dir, campaign_dir)
     watcher = _Watcher(
-        campaign_dir, out_dir, settle=settle, workers=max(1, int(workers)), clock=time.monotonic
+        campaign_dir, folder.root, settle=settle, workers=max(1, int(workers)), clock=time.monotonic
     )
+    watcher.folder = folder
     shown = TerminalView() if view is True else (view or None)
     stop = stop_event if stop_event is not None else threading.Event()
     last: list[Status | None] = [None]
@@ -993,7 +1101,14 @@ def watch(
     how = "stop asked"
     try:
         while True:
-            publish(watcher.cycle(publish))
+            try:
+                status = watcher.cycle(publish)
+            except Exception as exc:  # a fault of ours must not end a watch
+                status = replace(
+                    last[0] or watcher._status({}, set(), note=""),
+                    problems=(_internal_text("looking at the folder", exc),),
+                )
+            publish(status)
             if stop.wait(poll):
                 break
     except KeyboardInterrupt:
@@ -1005,6 +1120,7 @@ def watch(
         try:
             publish(replace(final, stopped=True, note=note))
         finally:
+            folder.close()
             if shown is not None:
                 shown.close()
 
@@ -1014,7 +1130,7 @@ def main_watch(args) -> int:
     ``args.poll`` (and ``args.workers`` if given). Returns the exit status (0; 2 usage error)."""
     campaign = Path(args.campaign)
     if not campaign.is_dir():
-        print(f"tunnelred: error: {campaign}: no such folder", file=sys.stderr)
+        print(f"tunnelred: error: {printable(campaign)}: no such folder", file=sys.stderr)
         return 2
     settle = getattr(args, "settle", None)
     poll = getattr(args, "poll", None)
