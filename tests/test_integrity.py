@@ -31,8 +31,6 @@ REPO = Path(__file__).resolve().parents[1]
 PUBLISHED = ("results.nc", "results.csv", "budgets.csv", "failures.csv", "provenance.json")
 
 
-
-
 @pytest.fixture(scope="module")
 def campaign(tmp_path_factory) -> Path:
     root = tmp_path_factory.mktemp("integrity") / "campaign"

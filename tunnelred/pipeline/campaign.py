@@ -564,12 +564,17 @@ class _PoolStart:
         with self._lock:
             self._finished = True
             if stop:
-                # The executor has no public way to end its processes before Python 3.14.
-                for process in list(getattr(self.executor, "_processes", {}).values()):
-                    with contextlib.suppress(Exception):
-                        process.terminate()
+                _terminate(self.executor)
             if self._submitted:
                 self.executor.shutdown(wait=wait, cancel_futures=True)
+
+
+def _terminate(executor: ProcessPoolExecutor) -> None:
+    """End an executor's processes now (an interrupted reduction waits for none of them)."""
+    # The executor has no public way to do it before Python 3.14.
+    for process in list((getattr(executor, "_processes", None) or {}).values()):
+        with contextlib.suppress(Exception):
+            process.terminate()
 
 
 def _run_pool(campaign, pool: _PoolStart, run_ids, monte_carlo):
@@ -1081,6 +1086,9 @@ def _figure_helpers(settings: _Settings):
     executor = ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context())
     try:
         yield executor, helpers
+    except BaseException:
+        _terminate(executor)  # interrupted: no figure is waited for
+        raise
     finally:
         executor.shutdown(wait=True, cancel_futures=True)
 
