@@ -196,3 +196,41 @@ def test_predicted_u_against_the_spread_over_seeds(tmp_path):
     predicted = plan.table["u_CL"].to_numpy()
     # 12 seeds: the sample sd is within +-40 % of sigma at about 95 % (chi-square, 11 dof).
     assert np.all(np.abs(predicted / spread - 1.0) < 0.4), (predicted, spread)
+
+
+def test_command_line_options_cover_every_noise_level():
+    # A noise level the command line does not offer could never be changed from it.
+    from dataclasses import fields
+
+    from tunnelred.cli import _NOISE_OPTIONS
+
+    assert set(_NOISE_OPTIONS) == {f.name for f in fields(NoiseLevels)}
+
+
+def test_plan_command(simulated, tmp_path, capsys):
+    from tunnelred.cli import main
+
+    folder, _, _, _ = simulated
+    rows = ["point,config,speed_set [m/s],spin_ratio,record [s]", "ok,plates,9,1,4",
+            "heavy,plates,40,0.3,4"]  # fmt: skip
+    matrix = _matrix(tmp_path, rows)
+    out = tmp_path / "out"
+    status = main(["plan", str(folder), "--matrix", matrix, "-o", str(out), "--turbulence",
+                   "0.01", "--target", "CL=0.02"])  # fmt: skip
+    captured = capsys.readouterr()
+    assert status == 0
+    assert "OVERLOAD: Fx" in captured.err and "safety rules" in captured.err
+    table = pd.read_csv(out / "plan.csv")
+    assert "record_for_u_CL" in table
+    assert '"turbulence": 0.01' in (out / "plan.json").read_text()
+    # A results folder gets the plan in its plan/ subfolder; the report finds it there.
+    results = tmp_path / "results"
+    results.mkdir()
+    (results / ".tunnelred").write_text("")
+    assert main(["plan", str(folder), "--matrix", matrix, "-o", str(results)]) == 0
+    assert (results / "plan" / "plan.csv").is_file()
+    # A bad row: exit 1, the file, row and column named, no traceback.
+    bad = _matrix(tmp_path, rows[:1] + ["ok,plates,fast,1,4"])
+    assert main(["plan", str(folder), "--matrix", bad, "-o", str(tmp_path / "o2")]) == 1
+    assert "PLAN.csv:2 [speed_set]" in capsys.readouterr().out
+    assert not (tmp_path / "o2").exists()

@@ -22,6 +22,7 @@ _PUBLIC = {
     "reduce_campaign": "pipeline.campaign",
     "read_results": "products.store",
     "write_report": "products.report",
+    "plan_test": "products.plan",
     "InputError": "common.errors",
     "ReductionError": "common.errors",
 }

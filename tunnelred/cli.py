@@ -522,6 +522,109 @@ def _run_watch(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
+# plan
+
+
+_NOISE_OPTIONS = (
+    "turbulence", "turbulence_time", "balance_noise", "pitot_noise", "spin_jitter",
+    "spin_jitter_time", "tap_noise", "tap_noise_floor", "unsteady_cl", "unsteady_cl_decay",
+    "wind_off_record",
+)  # fmt: skip
+
+
+def _add_plan(subparsers) -> None:
+    p = subparsers.add_parser(
+        "plan",
+        help="pre-test uncertainty analysis of a planned test matrix",
+        description="Predict, for every point of a planned test matrix, the conditions (q, U, "
+        "Re, Mach, rpm), the balance loads as fractions of full scale, the scanner range used, "
+        "the revolutions per record, the size of each wall correction, and the standard and "
+        "expanded (k = 2) uncertainties of alpha, CL, CD, CM, C_power, CL_p and Cp with their "
+        "dominant contributors, using the campaign's tunnel, model, instruments and tolerances "
+        "and the reduction's own uncertainty model. Writes plan.csv, plan.nc, plan_budgets.csv, "
+        "plan.json and figures/ into OUT (into OUT/plan/ when OUT holds results, where "
+        "'tunnelred report' finds it). The coefficients come from a stated prior and the noise "
+        "from stated levels (docs/plan.md). A point past the model's max_spin_rate is warned "
+        "of loudly; the facility's safety rules and licensed engineering practice decide what "
+        "may be run.",
+        epilog="examples:\n  tunnelred plan my-campaign --matrix PLAN.csv -o plan-out\n"
+        "  tunnelred plan my-campaign --matrix PLAN.csv -o out --prior out --target CL=0.01",
+        formatter_class=_HelpFormatter,
+    )
+    p.add_argument("campaign", type=Path, help="campaign folder (campaign.toml is read)")
+    p.add_argument("--matrix", type=Path, required=True, metavar="PLAN.csv",
+                   help="the planned points (docs/plan.md)")  # fmt: skip
+    p.add_argument("-o", "--out", type=Path, required=True, help="output folder")
+    p.add_argument(
+        "--prior",
+        default="illustrative",
+        help="expected coefficients: 'illustrative' (a built-in curve shaped like published "
+        "rotating-cylinder data, not measured data; default), 'potential' (potential flow, an "
+        "upper bound of lift) or the results folder of an earlier campaign",
+    )
+    p.add_argument("--target", metavar="NAME=U",
+                   help="wanted standard uncertainty of an output, e.g. CL=0.01: the record "
+                   "length that reaches it is reported per point")  # fmt: skip
+    p.add_argument("--eps-limit", type=float, default=0.05,
+                   help="total blockage eps above which to warn (default 0.05)")  # fmt: skip
+    # Names only: importing the plan (pandas, xarray) would slow every 'tunnelred --help'.
+    noise = p.add_argument_group(
+        "noise levels assumed (each default, its unit and meaning: docs/plan.md)"
+    )
+    for name in _NOISE_OPTIONS:
+        noise.add_argument(f"--{name.replace('_', '-')}", type=float, dest=f"noise_{name}")
+    air = p.add_argument_group("air assumed (default 293.15 K, 101325 Pa, RH 0.5)")
+    air.add_argument("--temperature", type=float, help="[K]")
+    air.add_argument("--pressure", type=float, help="barometric pressure [Pa]")
+    air.add_argument("--humidity", type=float, help="relative humidity, fraction [-]")
+    p.set_defaults(run=_run_plan)
+
+
+def _run_plan(args) -> int:
+    from tunnelred.products.plan.core import SAFETY, plan_folder, plan_test, write_plan
+    from tunnelred.products.plan.levels import AirState, NoiseLevels
+
+    if not (args.campaign / "campaign.toml").is_file():
+        return _fail_usage(f"{args.campaign}: no campaign.toml there")
+    if not args.matrix.is_file():
+        return _fail_usage(f"{args.matrix}: no such file")
+    target = None
+    if args.target:
+        name, _, value = args.target.partition("=")
+        try:
+            target = (name.strip(), float(value))
+        except ValueError:
+            return _fail_usage(f"--target {args.target!r}: write NAME=U, e.g. CL=0.01")
+        if not target[1] > 0:
+            return _fail_usage(f"--target {args.target!r}: the uncertainty must be positive")
+    given = {k: getattr(args, f"noise_{k}") for k in _NOISE_OPTIONS}
+    noise = NoiseLevels(**{k: v for k, v in given.items() if v is not None})
+    air = AirState(
+        **{
+            key: value
+            for key, value in (
+                ("T", args.temperature), ("p_baro", args.pressure), ("RH", args.humidity)
+            )
+            if value is not None
+        }
+    )  # fmt: skip
+    folder = plan_folder(args.out, args.campaign)
+    prior = args.prior
+    result = plan_test(
+        args.campaign, args.matrix, prior=prior, noise=noise, air=air, target=target,
+        eps_limit=args.eps_limit,
+    )  # fmt: skip
+    write_plan(result, folder)
+    print(f"{len(result.table)} planned points; plan written to {folder}")
+    loud = [w for w in result.warnings if "SPIN LIMIT" in w or "OVERLOAD" in w]
+    for warning in result.warnings:
+        print(f"  warning: {warning}", file=sys.stderr if warning in loud else sys.stdout)
+    if loud:
+        print(f"\n{SAFETY}", file=sys.stderr)
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
 
 _SUBCOMMANDS = (
     _add_init,
@@ -531,6 +634,7 @@ _SUBCOMMANDS = (
     _add_export,
     _add_compare,
     _add_watch,
+    _add_plan,
     _add_demo,
 )
 

@@ -20,59 +20,17 @@ import pandas as pd
 from tunnelred.engine import quality, reduction
 from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
 from tunnelred.physics.uncertainty import propagate_linear
+from tunnelred.products.plan.levels import AirState, NoiseLevels
 from tunnelred.products.plan.matrix import PlannedPoint
 from tunnelred.products.plan.prior import Prior
 
-__all__ = ["NoiseLevels", "AirState", "PointPrediction", "predict_point", "PREDICTED"]
+__all__ = ["PointPrediction", "predict_point", "PREDICTED"]
 
 #: Outputs whose predicted standard uncertainty the plan reports (u_Cp_max: the largest over
 #: the azimuth points).
 PREDICTED = ("alpha", "CL", "CD", "CM", "C_power", "CL_p", "CD_p")
 _BUDGETED = ("alpha", "CL", "CD", "CM")
 _LOADS = ("Fx", "Fy", "Mz")
-
-
-@dataclass(frozen=True)
-class NoiseLevels:
-    """The random fluctuations the plan assumes (defaults: the demo campaign's invented levels;
-    put the facility's own, from an earlier entry, in their place).
-
-    turbulence : relative standard deviation of the speed U(t) [-]; q fluctuates by twice it,
-        and the loads with q.
-    turbulence_time : its correlation time [s] (N_eff = T / (2 tau)).
-    balance_noise : white noise on each load per sample, as a fraction of its full scale [-].
-    pitot_noise : white noise on the q reading per sample [Pa].
-    spin_jitter : relative standard deviation of the spin rate [-]; spin_jitter_time its
-        correlation time [s].
-    tap_noise, tap_noise_floor : white noise on each tap reading per sample, as a fraction of
-        q [-] and absolute [Pa], added in quadrature.
-    unsteady_cl : RMS of the fluctuating lift coefficient of vortex shedding at rest [-],
-        falling with the spin as exp(-(alpha / unsteady_cl_decay)^2) (spin suppresses shedding);
-        its correlation time is taken as 1 / (2 pi f), f = St U / d with St = 0.2 (common
-        practice).
-    wind_off_record : length of the zero and spin-tare records [s].
-    """
-
-    turbulence: float = 0.003
-    turbulence_time: float = 0.3
-    balance_noise: float = 1e-4
-    pitot_noise: float = 0.05
-    spin_jitter: float = 0.002
-    spin_jitter_time: float = 0.05
-    tap_noise: float = 0.004
-    tap_noise_floor: float = 0.5
-    unsteady_cl: float = 0.3
-    unsteady_cl_decay: float = 1.5
-    wind_off_record: float = 3.0
-
-
-@dataclass(frozen=True)
-class AirState:
-    """The air the plan assumes: temperature [K], barometric pressure [Pa], RH fraction [-]."""
-
-    T: float = 293.15
-    p_baro: float = 101325.0
-    RH: float = 0.5
 
 
 @dataclass
@@ -352,7 +310,7 @@ def predict_point(
     if abs(eps) > eps_limit:
         warnings.append(
             f"wall correction large: eps = {100 * eps:.1f} % above the stated limit "
-            f"{100 * eps_limit:.0f} % (a smaller model or a larger section)"
+            f"{100 * eps_limit:.1f} % (a smaller model or a larger section)"
         )
     method = corrections.METHODS[cfg.reduction.blockage]
     d_h = cfg.model.diameter / cfg.tunnel.height
