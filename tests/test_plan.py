@@ -234,3 +234,22 @@ def test_plan_command(simulated, tmp_path, capsys):
     assert main(["plan", str(folder), "--matrix", bad, "-o", str(tmp_path / "o2")]) == 1
     assert "PLAN.csv:2 [speed_set]" in capsys.readouterr().out
     assert not (tmp_path / "o2").exists()
+
+
+def test_report_includes_the_plan_beside_the_results(simulated, tmp_path):
+    from pypdf import PdfReader
+
+    from tunnelred.pipeline.campaign import reduce_campaign
+    from tunnelred.products.plan import plan_folder
+    from tunnelred.products.report import write_report
+
+    folder, spec, reduced, plan = simulated
+    out = tmp_path / "out"
+    reduce_campaign(folder, out, workers=1, progress=False, figures=False)
+    write_plan(plan, plan_folder(out, folder))
+    pdf = write_report(out, tmp_path / "report.pdf")
+    text = " ".join(" ".join(p.extract_text() for p in PdfReader(pdf).pages).split())
+    assert "Pre-test uncertainty analysis" in text
+    # The achieved U(CL) of the run at alpha 2 (one run there) is the reduction's 2 u_CL.
+    at_two = reduced["u_CL"].to_numpy()[SPIN_RATIOS.index(2.0)]
+    assert f"{2 * at_two:.2g} (1)" in text

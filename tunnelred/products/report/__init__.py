@@ -28,6 +28,7 @@ from reportlab.platypus import Frame, PageTemplate, Spacer
 
 from tunnelred import __version__
 from tunnelred.products import plotting, results_folder, store
+from tunnelred.products.plan.core import read_plan
 from tunnelred.products.report.appendix import appendix_section
 from tunnelred.products.report.data import ReportData
 from tunnelred.products.report.description import (
@@ -53,13 +54,15 @@ from tunnelred.products.report.layout import (
 from tunnelred.products.report.method import BUDGET_INPUTS as BUDGET_INPUTS
 from tunnelred.products.report.method import budget_label as budget_label
 from tunnelred.products.report.method import reduction_section, uncertainty_section
+from tunnelred.products.report.plan import plan_section
 from tunnelred.products.report.results import comparison_section, results_section
 from tunnelred.products.report.summary import summary_section
 
 __all__ = ["SECTIONS", "CAUTIONS", "write_report", "format_uncertain"]
 
 #: The numbered sections, in order (a configuration comparison follows the results when the
-#: campaign has more than one configuration and tunnelred.products.compare is installed).
+#: campaign has more than one configuration and tunnelred.products.compare is installed, and a
+#: pre-test uncertainty analysis follows them when a plan sits beside the results).
 SECTIONS = (
     "Summary",
     "Model",
@@ -119,7 +122,7 @@ def write_report(out_dir, pdf_path=None, *, campaign=None, full_config: bool = F
     pdf = Path(pdf_path) if pdf_path is not None else out / "report.pdf"
     if results_folder.generation_of(out) != out and _is_published(out, pdf):
         return _report_into_current(out, campaign, full_config)
-    _build(results_folder.generation_of(out), pdf, campaign, full_config)
+    _build(results_folder.generation_of(out), pdf, campaign, full_config, plan=read_plan(out))
     return pdf
 
 
@@ -133,13 +136,14 @@ def _report_into_current(out: Path, campaign, full_config: bool) -> Path:
         generation = folder.current()
         if generation is None:  # removed meanwhile: nothing to report on
             store.read_results(out)  # says so, with the file and a hint
-        _build(generation, generation / "report.pdf", campaign, full_config)
+        plan = read_plan(out)
+        _build(generation, generation / "report.pdf", campaign, full_config, plan=plan)
         results_folder.link_outputs(folder.root)
         return folder.root / "report.pdf"
 
 
-def _build(out: Path, pdf: Path, campaign, full_config: bool) -> None:
-    """The report of the results in ``out``, written to ``pdf``."""
+def _build(out: Path, pdf: Path, campaign, full_config: bool, *, plan=None) -> None:
+    """The report of the results in ``out``, written to ``pdf`` (with ``plan``, read_plan's)."""
     data = ReportData(out, campaign)
     faces = register_fonts()
     b = Builder(paragraph_styles(faces))
@@ -156,6 +160,8 @@ def _build(out: Path, pdf: Path, campaign, full_config: bool) -> None:
     uncertainty_section(b, data)
     results_section(b, data, runs)
     comparison_section(b, data)
+    if plan is not None:
+        plan_section(b, data, plan)
     quality_section(b, data)
     appendix_section(b, data, full_config)
     b.add(Spacer(1, 6 * mm))
