@@ -694,6 +694,25 @@ def _reader_gone() -> int:
     return 141
 
 
+def _preload(command: str) -> None:
+    """Import a long-running command's modules before any handler is set.
+
+    A KeyboardInterrupt raised in the middle of an import can be swallowed by a library that
+    imports an optional dependency in a try block, leaving that module half-imported (a later
+    AttributeError); SIGINT and SIGTERM then just end the command, which has started nothing.
+    """
+    modules = _PRELOAD.get(command, ())
+    if not modules or threading.current_thread() is not threading.main_thread():
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_DFL)
+    try:
+        for module in modules:
+            with contextlib.suppress(Exception):  # a broken install: reported by the command
+                importlib.import_module(module)
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
 def _dispatch(args) -> int:
     try:
         status = args.run(args)
@@ -742,12 +761,7 @@ def main(argv=None) -> int:
         except SystemExit as exc:  # argparse exits 2 on usage errors, 0 for --help/--version
             sys.stdout.flush()
             return int(exc.code or 0)
-        # The long-running commands' modules first: a SIGTERM while an extension module is
-        # imported could be lost inside its C code; before the handler is set it just ends the
-        # command, which has not started anything yet.
-        for module in _PRELOAD.get(args.command, ()):
-            with contextlib.suppress(Exception):  # a broken install: reported by the command
-                importlib.import_module(module)
+        _preload(args.command)
         with _sigterm_as_interrupt():
             return _dispatch(args)
     except BrokenPipeError:
