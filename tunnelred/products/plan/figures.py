@@ -8,7 +8,8 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from tunnelred.products.plotting import _new_axes, _save, house_style
+from tunnelred.products.plotting.standard import save_figure
+from tunnelred.products.plotting.style import house_style, new_axes
 
 __all__ = ["plot_uncertainty", "plot_load_fractions", "plot_corrections", "save_plan_figures"]
 
@@ -20,7 +21,7 @@ def _by_speed(table: pd.DataFrame):
 
 def plot_uncertainty(table: pd.DataFrame, output: str = "CL", *, ax=None):
     """Predicted expanded uncertainty U (k = 2) of ``output`` against spin ratio, per speed."""
-    ax = _new_axes(ax)
+    ax = new_axes(ax)
     for label, rows in _by_speed(table):
         ax.plot(rows["alpha"], rows[f"Uk2_{output}"], marker="o", label=label)
     ax.set_xlabel("spin ratio α [-]")
@@ -32,7 +33,7 @@ def plot_uncertainty(table: pd.DataFrame, output: str = "CL", *, ax=None):
 
 def plot_load_fractions(table: pd.DataFrame, limit: float, *, ax=None):
     """Predicted peak balance loads as fractions of full scale, per point, with the limit."""
-    ax = _new_axes(ax)
+    ax = new_axes(ax)
     x = np.arange(len(table))
     for k, name in enumerate(("Fx", "Fy", "Mz")):
         ax.bar(x + (k - 1) * 0.27, table[f"{name}_peak_fraction"], width=0.27, label=name)
@@ -46,7 +47,7 @@ def plot_load_fractions(table: pd.DataFrame, limit: float, *, ax=None):
 
 def plot_corrections(table: pd.DataFrame, eps_limit: float, *, ax=None):
     """Wall-correction size: eps (solid + wake) and the relative CL, CD changes, per point."""
-    ax = _new_axes(ax)
+    ax = new_axes(ax)
     for label, rows in _by_speed(table):
         ax.plot(rows["alpha"], 100 * rows["eps_total"], marker="o", label=f"eps, {label}")
         ax.plot(rows["alpha"], 100 * rows["CD_correction"], marker="x", linestyle=":",
@@ -71,5 +72,5 @@ def save_plan_figures(table: pd.DataFrame, folder, *, overload: float, eps_limit
         ):
             fig = Figure(figsize=(6.4, 4.4), layout="constrained")
             draw(fig.add_subplot())
-            paths.append(_save(fig, folder / name))
+            paths.append(save_figure(fig, folder / name))
     return paths

@@ -26,7 +26,8 @@ from tunnelred.products.plotting.runs import (
 )
 
 
-def _save(fig: Figure, path: Path) -> Path:
+def save_figure(fig: Figure, path: Path) -> Path:
+    """Write ``fig`` as a 200 dpi PNG at ``path``, atomically."""
     with store.atomic_path(path) as tmp:
         fig.savefig(tmp, format="png", dpi=200)
     return path
@@ -72,7 +73,7 @@ def draw_standard_figure(results, job: tuple[str, str, tuple], out_dir) -> Path:
     """Draw one job of :func:`standard_figures` into ``out_dir``/figures (atomically)."""
     name, drawer, args = job
     fig = _DRAWERS[drawer](results_dataset(results), *args)
-    return _save(fig, Path(out_dir) / "figures" / name)
+    return save_figure(fig, Path(out_dir) / "figures" / name)
 
 
 def draw_standard_figures(results, jobs, out_dir) -> list[Path]:
