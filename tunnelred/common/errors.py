@@ -17,7 +17,13 @@ __all__ = [
     "OutputFolderError",
     "OutsideError",
     "UsageError",
+    "MAX_PROBLEMS_PER_FILE",
+    "bounded",
+    "brief",
 ]
+
+#: How many problems of one file are listed before one line says how many more there are.
+MAX_PROBLEMS_PER_FILE = 50
 
 
 @dataclass(frozen=True)
@@ -60,6 +66,40 @@ class Problem:
         if self.hint:
             text += f" {self.hint}"
         return text
+
+
+def brief(value: object, limit: int = 60) -> str:
+    """``repr(value)``, cut to about ``limit`` characters: a message quotes, it does not copy."""
+    text = repr(value)
+    if len(text) <= limit:
+        return text
+    return f"{text[:limit]}… ({len(text)} characters)"
+
+
+def bounded(problems: list[Problem], limit: int = MAX_PROBLEMS_PER_FILE) -> list[Problem]:
+    """The first ``limit`` problems of each file, and for a file with more, one that counts them.
+
+    Keeps what ``check`` prints (and holds) bounded however broken a file is.
+    """
+    shown: list[Problem] = []
+    counts: dict[str, int] = {}
+    for p in problems:
+        counts[p.file] = counts.get(p.file, 0) + 1
+        if counts[p.file] <= limit:
+            shown.append(p)
+    for file, count in counts.items():
+        if count > limit:
+            shown.append(
+                Problem(
+                    file,
+                    None,
+                    None,
+                    f"at most {limit} problems listed per file",
+                    f"{count - limit} more problems in this file",
+                    "Fix those listed and check again.",
+                )
+            )
+    return shown
 
 
 class TunnelredError(Exception):

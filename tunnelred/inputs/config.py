@@ -12,10 +12,17 @@ import math
 import re
 import tomllib
 from dataclasses import dataclass, field, replace
-from pathlib import Path, PurePosixPath
+from pathlib import Path
 
-from tunnelred.common.errors import InputError, Problem
+from tunnelred.common.errors import InputError, Problem, bounded, brief
 from tunnelred.inputs.calibration import read_calibration_text
+from tunnelred.inputs.files import (
+    MAX_CONFIG_BYTES,
+    MAX_NAMED_FILE_BYTES,
+    Refusal,
+    inside_campaign,
+    read_regular,
+)
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
 from tunnelred.inputs.schema import names_by_table
 from tunnelred.inputs.units import parse_quantity
@@ -39,6 +46,7 @@ __all__ = [
     "Q_SOURCES",
     "TARE_EXTRAPOLATION",
     "MIN_CP_BINS",
+    "MAX_CP_BINS",
     "load_config",
 ]
 
@@ -53,6 +61,9 @@ TARE_EXTRAPOLATION = ("flag", "refuse")
 
 #: Fewest azimuth bins [reduction] cp_bins accepts (45° bins; fewer cannot resolve Cp(θ)).
 MIN_CP_BINS = 8
+#: Most azimuth bins it accepts (0.1° bins, finer than any tap layout or encoder resolves); the
+#: binned arrays grow with it, and 10⁷ bins took gigabytes.
+MAX_CP_BINS = 3600
 
 
 @dataclass(frozen=True)
@@ -380,7 +391,7 @@ class _Reader:
             return {}
         value = data[key]
         if not isinstance(value, dict):
-            self.problem(path, f"a [{path}] table", f"{value!r}", fatal=required)
+            self.problem(path, f"a [{path}] table", brief(value), fatal=required)
             return {}
         self.check_keys(value, path, allowed)
         return value
@@ -391,7 +402,7 @@ class _Reader:
                 self.problem(
                     f"{path}.{name}",
                     f"a key of [{path}] ({', '.join(allowed)})",
-                    repr(name),
+                    brief(name),
                     "Check the spelling; docs/input-format.md lists every key.",
                 )
 
@@ -414,7 +425,7 @@ class _Reader:
         if value is None:
             return None if required else default
         if check is not None and not check[0](value):
-            self.problem(full, check[1], repr(table[key]), fatal=required)
+            self.problem(full, check[1], brief(table[key]), fatal=required)
             return None if required else default
         return value
 
@@ -433,7 +444,7 @@ class _Reader:
                     self.problem(path, p.expected, p.found, p.hint, fatal=fatal)
                 return None
         if not ok:
-            self.problem(path, _describe(kind), f"{raw!r}", fatal=fatal)
+            self.problem(path, _describe(kind), brief(raw), fatal=fatal)
             return None
         return raw
 
@@ -443,7 +454,7 @@ class _Reader:
             self.problem(
                 f"{path}.{key}",
                 f"one of {', '.join(map(repr, choices))}",
-                repr(value),
+                brief(value),
                 "docs/input-format.md lists the names.",
             )
             return default
@@ -452,7 +463,7 @@ class _Reader:
     def numbers(self, raw, path: str, kinds, *, fatal: bool) -> tuple[float, ...] | None:
         """A list of quantities, one kind per entry."""
         if not isinstance(raw, list) or len(raw) != len(kinds):
-            self.problem(path, f"a list of {len(kinds)} values", f"{raw!r}", fatal=fatal)
+            self.problem(path, f"a list of {len(kinds)} values", brief(raw), fatal=fatal)
             return None
         values = [
             self.convert(v, k, f"{path}[{i}]", fatal=fatal)
@@ -499,7 +510,7 @@ def _shape_text(raw, shape) -> str:
         return f"{shape[0]} × {shape[1]}"
     if isinstance(raw, list) and all(isinstance(r, list) for r in raw):
         return f"rows of lengths {[len(r) for r in raw]}"
-    return repr(raw)
+    return brief(raw)
 
 
 def load_config(path) -> tuple[CampaignConfig | None, list[Problem]]:
@@ -545,20 +556,12 @@ def load_config(path) -> tuple[CampaignConfig | None, list[Problem]]:
     """
     path = Path(path)
     file = path.name
-    try:
-        with open(path, "rb") as stream:
-            raw_bytes = stream.read()
-    except OSError as exc:
-        return None, [
-            Problem(
-                file,
-                None,
-                None,
-                "a readable campaign.toml",
-                exc.strerror or str(exc),
-                "Check the campaign folder.",
-            )
-        ]
+    raw_bytes = read_regular(path, MAX_CONFIG_BYTES, name=file)
+    if isinstance(raw_bytes, Refusal):
+        hint = raw_bytes.hint
+        if raw_bytes.expected == "an existing file":
+            hint = "Each campaign folder needs a campaign.toml."
+        return None, [Problem(file, None, None, raw_bytes.expected, raw_bytes.found, hint)]
     try:
         text = raw_bytes.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -587,14 +590,29 @@ def load_config(path) -> tuple[CampaignConfig | None, list[Problem]]:
                 "Fix the TOML syntax there.",
             )
         ]
+    except RecursionError:
+        return None, [
+            Problem(
+                file,
+                None,
+                None,
+                "TOML nested a few levels deep",
+                "arrays or tables nested too deeply to read",
+                "Check for unbalanced brackets or braces.",
+            )
+        ]
+    except ValueError as exc:  # an integer longer than Python converts (4300 digits)
+        return None, [
+            Problem(file, None, None, "numbers of ordinary size", str(exc), "Check the numbers.")
+        ]
     r = _Reader(file, text)
     for key in data:
         if key not in _TOP:
             r.problem(key, f"a table of {', '.join(_TOP)}", repr(key), "Check the spelling.")
     config = _build(r, data, path.parent)
     if r.fatal or config is None:
-        return None, r.problems
-    return _replace_sha(config, hashlib.sha256(raw_bytes).hexdigest()), r.problems
+        return None, bounded(r.problems)
+    return _replace_sha(config, hashlib.sha256(raw_bytes).hexdigest()), bounded(r.problems)
 
 
 def _replace_sha(config: CampaignConfig, sha: str) -> CampaignConfig:
@@ -677,28 +695,14 @@ def _campaign_file(
     text = r.get(t, path, key, "str", "")
     if not text:
         return None
-    pure = PurePosixPath(text.replace("\\", "/"))
-    full = root / pure
-    try:
-        inside = not pure.is_absolute() and full.resolve().is_relative_to(root.resolve())
-    except (OSError, RuntimeError):
-        inside = False
-    if not inside:
-        r.problem(f"{path}.{key}", "a path inside the campaign folder", repr(text),
-                  "Copy it into the campaign folder and name it relative to it.",
-                  fatal=fatal)  # fmt: skip
-        return None
-    if not full.is_file():
-        r.problem(f"{path}.{key}", "an existing file", f"no regular file {text!r}",
-                  "Check the path and its spelling (paths are case-sensitive).",
-                  fatal=fatal)  # fmt: skip
-        return None
-    try:
-        with open(full, "rb") as stream:
-            return pure.as_posix(), stream.read()
-    except OSError as exc:
-        r.problem(f"{path}.{key}", "a readable file", exc.strerror or str(exc), fatal=fatal)
-        return None
+    found = inside_campaign(root, text)  # the rules of every input file (inputs.files)
+    if not isinstance(found, Refusal):
+        rel, resolved = found
+        found = read_regular(resolved, MAX_NAMED_FILE_BYTES, name=text)
+        if not isinstance(found, Refusal):
+            return rel, found
+    r.problem(f"{path}.{key}", found.expected, found.found, found.hint, fatal=fatal)
+    return None
 
 
 def _photo(r: _Reader, t: dict, path: str, root: Path) -> str:
@@ -809,7 +813,7 @@ def _configurations(r: _Reader, data: dict, model) -> dict[str, Configuration]:
     for label, t in tables.items():
         path = f"{p}.{label}"
         if not _LABEL.match(label):
-            r.problem(path, "a label of letters, digits, '-' and '_'", repr(label))
+            r.problem(path, "a label of letters, digits, '-' and '_'", brief(label))
         t = r.table(tables, label, path, _KEYS["configuration"])
         plate_check = None
         if model is not None:
@@ -897,12 +901,12 @@ def _balance(r: _Reader, instruments: dict, root: Path) -> BalanceConfig | None:
         r.problem(
             f"{p}.channels",
             "a non-empty list of column names (letters, digits, _ . -)",
-            repr(channels),
+            brief(channels),
             fatal=True,
         )
         return None
     if len(set(channels)) != len(channels):
-        r.problem(f"{p}.channels", "each channel once", repr(channels), fatal=True)
+        r.problem(f"{p}.channels", "each channel once", brief(channels), fatal=True)
     for c in channels:
         if c in RESERVED_COLUMNS:
             r.problem(
@@ -1007,7 +1011,7 @@ def _required_array(r: _Reader, t: dict, p: str, key: str, shape):
 def _taps(r: _Reader, data: dict) -> tuple[TapConfig, ...]:
     raw = data.get("taps", [])
     if not isinstance(raw, list) or not all(isinstance(t, dict) for t in raw):
-        r.problem("taps", "[[taps]] tables", repr(raw)[:60], fatal=True)
+        r.problem("taps", "[[taps]] tables", brief(raw), fatal=True)
         return ()
     taps, seen = [], set()
     for i, t in enumerate(raw):
@@ -1020,11 +1024,11 @@ def _taps(r: _Reader, data: dict) -> tuple[TapConfig, ...]:
             r.problem(
                 f"{path}.name",
                 "a column name (letters, digits, _ . -) not reserved",
-                repr(name),
+                brief(name),
                 fatal=True,
             )
         if name in seen:
-            r.problem(f"{path}.name", "each tap name once", repr(name), fatal=True)
+            r.problem(f"{path}.name", "each tap name once", brief(name), fatal=True)
         seen.add(name)
         taps.append(
             TapConfig(
@@ -1078,7 +1082,10 @@ def _reduction(r: _Reader, data: dict, model) -> ReductionConfig:
             "cp_bins",
             "int",
             72,
-            (lambda v: v >= MIN_CP_BINS, f"an integer of {MIN_CP_BINS} or more"),
+            (
+                lambda v: MIN_CP_BINS <= v <= MAX_CP_BINS,
+                f"an integer from {MIN_CP_BINS} to {MAX_CP_BINS}",
+            ),
         ),
         base_arc=base_arc,
         max_tap_gap=r.get(

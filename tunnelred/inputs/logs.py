@@ -22,8 +22,15 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import xarray as xr
 
-from tunnelred.common.errors import InputError, Problem
+from tunnelred.common.errors import InputError, Problem, brief
 from tunnelred.inputs.config import Q_SOURCES, CampaignConfig
+from tunnelred.inputs.files import (
+    MAX_CELL_CHARS,
+    MAX_COLUMNS,
+    MAX_LOG_BYTES,
+    Refusal,
+    read_regular,
+)
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
 __all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns"]
@@ -42,6 +49,15 @@ FIXED_COLUMNS = {
 
 #: How many offending rows a problem lists before saying "and N more".
 SHOWN_ROWS = 3
+
+#: Fewest data rows a log may have: every stream is averaged, differentiated and checked for
+#: drift over time.
+MIN_ROWS = 2
+
+#: Largest magnitude a logged value may have, in SI units. No sensor of a low-speed tunnel reads
+#: near it (a time stamp in seconds since 1970 is 1.8e9), and the reduction's products of a few
+#: such values stay far from floating-point overflow (about 1.8e308).
+MAX_MAGNITUDE = 1e12
 
 _NUMBER = re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
 _NONFINITE = re.compile(r"^[+-]?(?:nan|inf|infinity)$", re.IGNORECASE)
@@ -87,7 +103,19 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
         problems.append(_encoding_problem(file, 1, start + exc.start, data))
         # Latin-1 decodes any byte; reading the header on shows its other problems, if any.
         text = raw.decode("latin-1")
-    cells = next(csv.reader([text]), [])
+    cells = split_line(text)
+    if cells is None or len(cells) > MAX_COLUMNS or any(len(c) > MAX_CELL_CHARS for c in cells):
+        # judged as a whole: a header of a million columns must not make a million problems
+        found = (
+            f"{len(cells)} columns"
+            if cells is not None and len(cells) > MAX_COLUMNS
+            else f"a cell over {MAX_CELL_CHARS} characters"
+        )
+        expected = (
+            f"a header of at most {MAX_COLUMNS} columns of at most {MAX_CELL_CHARS} characters"
+        )
+        hint = "Check the separator and that this is a log of the campaign."
+        return _Header([], [], end, [Problem(file, 1, None, expected, found, hint)])
     names: list[str] = []
     conversions: list = []
     seen: dict[str, int] = {}
@@ -170,6 +198,14 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
     return _Header(names, conversions, end, problems)
 
 
+def split_line(text: str) -> list[str] | None:
+    """The cells of one CSV line, or None when the csv module refuses it (a cell over its limit)."""
+    try:
+        return next(csv.reader([text]), [])
+    except csv.Error:
+        return None
+
+
 def _example_unit(dimension: str | None) -> str:
     return {None: "V", "fraction": "1", "rotation_rate": "rpm", "temperature": "degC"}.get(
         dimension, DIMENSIONS.get(dimension, ("",))[0]
@@ -248,10 +284,19 @@ def _check_values(
         "RH": (lambda v: (v < 0) | (v > 1), "a relative humidity from 0 to 1 (0–100 %)"),
         "p_baro": (lambda v: v <= 0, "a positive barometric pressure"),
     }
-    for name, (test, expected) in ranges.items():
-        if name in columns:
+    magnitude = (
+        lambda v: np.abs(v) > MAX_MAGNITUDE,
+        f"a value of magnitude at most {MAX_MAGNITUDE:g} (SI)",
+        "Check the unit in the header and the logger's output (no reading is this large, and "
+        "products of it would overflow).",
+    )
+    for name, values in columns.items():
+        rules = [magnitude]
+        if name in ranges:
+            rules.append((*ranges[name], "Check the unit in the header."))
+        for test, expected, hint in rules:
             with np.errstate(invalid="ignore"):
-                bad = test(columns[name]) & np.isfinite(columns[name])
+                bad = test(values) & np.isfinite(values)
             if bad.any():
                 problems.append(
                     Problem(
@@ -259,8 +304,8 @@ def _check_values(
                         int(lines[bad][0]),
                         name,
                         expected,
-                        f"{columns[name][bad][0]:g} (SI) on {_rows_text(lines[bad])}",
-                        "Check the unit in the header.",
+                        f"{values[bad][0]:g} (SI) on {_rows_text(lines[bad])}",
+                        hint,
                     )
                 )
     return problems
@@ -313,7 +358,7 @@ def _cells_to_numbers(file: str, table: pa.Table, names: list[str], first_line: 
         reported.append(~ok)
         if not ok.all():
             bad = np.flatnonzero(~ok)
-            examples = ", ".join(repr(text[int(j)].as_py()) for j in bad[:SHOWN_ROWS])
+            examples = ", ".join(brief(text[int(j)].as_py()) for j in bad[:SHOWN_ROWS])
             problems.append(
                 Problem(
                     file,
@@ -333,8 +378,8 @@ def _truncated_tail(data: bytes, start: int, end: int, ncols: int):
     if cut < start:
         return None, end
     last = data[cut + 1 : end].decode("utf-8", errors="replace")
-    cells = next(csv.reader([last]), [])
-    if len(cells) >= ncols:
+    cells = split_line(last)
+    if cells is None or len(cells) >= ncols:
         return None, end
     newlines = data.count(b"\n", 0, end) or data.count(b"\r", 0, end)
     problem = Problem(
@@ -402,9 +447,9 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
         if not text.strip():
             blank.append(line)
             continue
-        cells = next(csv.reader([text]), [])
-        if len(cells) != ncols:
-            if pos >= end and len(cells) < ncols:
+        cells = split_line(text)  # None: a cell over the csv module's limit
+        if cells is None or len(cells) != ncols:
+            if cells is not None and pos >= end and len(cells) < ncols:
                 problems.append(
                     Problem(
                         file,
@@ -417,13 +462,18 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
                 )
             else:
                 short.append(line)
+                found = (
+                    f"a cell over {csv.field_size_limit()} characters"
+                    if cells is None
+                    else f"{len(cells)}: {text[:60]!r}"
+                )
                 problems.append(
                     Problem(
                         file,
                         line,
                         None,
                         f"{ncols} fields",
-                        f"{len(cells)}: {text[:60]!r}",
+                        found,
                         "Each row needs one value per header column.",
                     )
                 )
@@ -437,7 +487,7 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
             else:
                 values.append(np.nan)
                 flags.append(True)
-                bad_cells.setdefault(i, []).append((line, cell))
+                bad_cells.setdefault(i, []).append((line, cell[:100]))
         rows.append(values)
         row_lines.append(line)
         reported.append(flags)
@@ -454,7 +504,7 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
         )
     for i, cells in sorted(bad_cells.items()):
         lines = np.array([n for n, _ in cells])
-        examples = ", ".join(repr(c) for _, c in cells[:SHOWN_ROWS])
+        examples = ", ".join(brief(c) for _, c in cells[:SHOWN_ROWS])
         problems.append(
             Problem(
                 file,
@@ -476,25 +526,9 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
 
 def _parse_log(path: Path, rel: str, expected: dict, optional: dict, hints: dict, stream: str):
     """Parse one log. Returns (Dataset or None, problems, LogInfo or None, sha256)."""
-    try:
-        with open(path, "rb") as f:
-            data = f.read()
-    except OSError as exc:
-        return (
-            None,
-            [
-                Problem(
-                    rel,
-                    None,
-                    None,
-                    "a readable file",
-                    exc.strerror or str(exc),
-                    "Check the path in runs.csv.",
-                )
-            ],
-            None,
-            "",
-        )
+    data = read_regular(path, MAX_LOG_BYTES, name=rel)
+    if isinstance(data, Refusal):
+        return None, [Problem(rel, None, None, data.expected, data.found, data.hint)], None, ""
     sha = hashlib.sha256(data).hexdigest()
     if not data.strip():
         return (
@@ -518,6 +552,8 @@ def _parse_log(path: Path, rel: str, expected: dict, optional: dict, hints: dict
     while end > header.end and data[end - 1] in b"\r\n":
         end -= 1
     ncols = len(header.names)
+    if ncols == 0 and problems:
+        return None, problems, None, sha
     if ncols == 0:
         problems.insert(
             0,
@@ -575,6 +611,16 @@ def _parse_log(path: Path, rel: str, expected: dict, optional: dict, hints: dict
     if problems:
         return None, problems, None, sha
     time = usable["time"]
+    if len(time) < MIN_ROWS:  # said only of a log otherwise good: one problem at a time
+        problem = Problem(
+            rel,
+            int(lines[-1]),
+            None,
+            f"at least {MIN_ROWS} data rows (a time series)",
+            f"{len(time)} row",
+            "The logger stopped after its first sample; repeat the run or remove it.",
+        )
+        return None, [problem], None, sha
     info = LogInfo(
         rows=len(time),
         start=float(time[0]),

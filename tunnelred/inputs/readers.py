@@ -15,13 +15,24 @@ import re
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime
-from pathlib import Path, PurePosixPath
+from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
-from tunnelred.common.errors import InputError, Problem
+from tunnelred.common.errors import InputError, Problem, bounded, brief
 from tunnelred.inputs.config import CampaignConfig, load_config
+from tunnelred.inputs.files import (
+    MAX_CELL_CHARS,
+    MAX_COLUMNS,
+    MAX_LOG_BYTES,
+    MAX_RUNS,
+    MAX_RUNS_BYTES,
+    Refusal,
+    check_regular,
+    inside_campaign,
+    read_regular,
+)
 from tunnelred.inputs.logs import (
     _NUMBER,
     LogInfo,
@@ -32,6 +43,7 @@ from tunnelred.inputs.logs import (
     _stream_hints,
     log_columns,
     read_log,
+    split_line,
 )
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
@@ -155,20 +167,9 @@ class _FileHashes(Mapping):
 def _read_runs(path: Path, problems: list[Problem]):
     """Parse runs.csv. Returns (rows, fatal) with rows as (line, {column: text}) pairs."""
     file = "runs.csv"
-    try:
-        with open(path, "rb") as f:
-            data = f.read()
-    except OSError as exc:
-        problems.append(
-            Problem(
-                file,
-                None,
-                None,
-                "a readable runs.csv",
-                exc.strerror or str(exc),
-                "Each campaign folder needs a runs.csv.",
-            )
-        )
+    data = read_regular(path, MAX_RUNS_BYTES, name=file)
+    if isinstance(data, Refusal):
+        problems.append(Problem(file, None, None, data.expected, data.found, data.hint))
         return [], {}, True
     try:
         text = data.decode("utf-8-sig")
@@ -178,11 +179,18 @@ def _read_runs(path: Path, problems: list[Problem]):
         )
         return [], {}, True
     reader = csv.reader(io.StringIO(text, newline=""))
-    header = next(reader, None)
+    try:
+        header = next(reader, None)
+    except csv.Error as exc:
+        problems.append(_csv_problem(file, reader.line_num, exc))
+        return [], {}, True
     if not header or not any(c.strip() for c in header):
         problems.append(
             Problem(file, None, None, "a header row and one row a run", "an empty file")
         )
+        return [], {}, True
+    if len(header) > MAX_COLUMNS:
+        problems.append(_too_many_columns(file, len(header)))
         return [], {}, True
     names, units = [], {}
     fatal = False
@@ -201,7 +209,7 @@ def _read_runs(path: Path, problems: list[Problem]):
                     1,
                     base,
                     "each column once",
-                    f"{base!r} twice",
+                    f"{brief(base)} twice",
                     "Delete one of them.",
                 )
             )
@@ -215,7 +223,7 @@ def _read_runs(path: Path, problems: list[Problem]):
                     1,
                     base,
                     f"only the columns {', '.join(known)}",
-                    f"{base!r}",
+                    brief(base),
                     "Check the spelling; put remarks in notes.",
                 )
             )
@@ -243,27 +251,51 @@ def _read_runs(path: Path, problems: list[Problem]):
                         1,
                         base,
                         f"'{base} [unit]'",
-                        f"{base!r} without a unit",
+                        f"{brief(base)} without a unit",
                         "Add the unit in brackets.",
                     )
                 )
         elif unit is not None:
-            problems.append(Problem(file, 1, base, f"{base!r} without a unit", repr(cell)))
+            problems.append(Problem(file, 1, base, f"{base!r} without a unit", brief(cell)))
     for name in _RUNS_REQUIRED:
         if name not in names:
             problems.append(Problem(file, 1, name, f"a column {name!r}", "none", "Add it."))
             fatal = True
     rows = []
-    for cells in reader:
+    while True:
+        try:
+            cells = next(reader, None)
+        except csv.Error as exc:
+            # the reader cannot go on past a cell over its limit: runs.csv is unusable
+            problems.append(_csv_problem(file, reader.line_num, exc))
+            return rows, units, True
+        if cells is None:
+            break
         line = reader.line_num
         if not any(c.strip() for c in cells):
             continue
-        if len(cells) != len(names):
-            run = (
-                cells[names.index("run")].strip()
-                if "run" in names and len(cells) > names.index("run")
-                else None
+        if len(rows) == MAX_RUNS:
+            problems.append(
+                Problem(
+                    file,
+                    line,
+                    None,
+                    f"at most {MAX_RUNS} runs",
+                    "more rows",
+                    "Split the campaign into several folders.",
+                )
             )
+            return rows, units, True
+        # a row too broken to use is still listed under its run id, when it has a usable one
+        at = names.index("run") if "run" in names else len(cells)
+        run = cells[at].strip() if at < len(cells) and len(cells[at]) <= MAX_CELL_CHARS else None
+        long = [i for i, c in enumerate(cells) if len(c) > MAX_CELL_CHARS]
+        if long:
+            column = names[long[0]] if long[0] < len(names) else None
+            problems.append(_long_cell(file, line, column, len(cells[long[0]])))
+            rows.append((line, None, run))
+            continue
+        if len(cells) != len(names):
             problems.append(
                 Problem(
                     file,
@@ -280,57 +312,49 @@ def _read_runs(path: Path, problems: list[Problem]):
     return rows, units, fatal
 
 
+def _csv_problem(file: str, line: int, exc: csv.Error) -> Problem:
+    limit = csv.field_size_limit()
+    if "field larger than field limit" in str(exc):
+        return _long_cell(file, line, None, limit)
+    return Problem(file, line, None, "a CSV row", str(exc), "Check the quoting on that line.")
+
+
+def _long_cell(file: str, line: int, column: str | None, length: int) -> Problem:
+    return Problem(
+        file,
+        line,
+        column,
+        f"cells of at most {MAX_CELL_CHARS} characters",
+        f"a cell of {length} characters" + (" or more" if length >= csv.field_size_limit() else ""),
+        "Check for a missing closing quote; shorten the text.",
+    )
+
+
+def _too_many_columns(file: str, count: int) -> Problem:
+    return Problem(
+        file,
+        1,
+        None,
+        f"at most {MAX_COLUMNS} columns",
+        f"{count} columns",
+        "Check the separator and that this is the right file.",
+    )
+
+
 def _split_ids(text: str) -> tuple[str, ...]:
     return tuple(s.strip() for s in text.split(";") if s.strip())
 
 
 def _check_path(root: Path, text: str, file: str, line: int, column: str, problems) -> str | None:
-    """A log path from runs.csv, made relative and checked to stay inside the folder."""
-    posix = text.replace("\\", "/")
-    pure = PurePosixPath(posix)
-    outside = "a path inside the campaign folder (relative, no '..')"
-    if pure.is_absolute() or re.match(r"^[A-Za-z]:", posix) or ".." in pure.parts:
-        problems.append(
-            Problem(
-                file,
-                line,
-                column,
-                outside,
-                repr(text),
-                "Copy the log into the campaign folder and name it relative to it.",
-            )
-        )
-        return None
-    full = root / pure
-    try:
-        inside = full.resolve().is_relative_to(root.resolve())
-    except (OSError, RuntimeError):
-        inside = False
-    if not inside:
-        problems.append(
-            Problem(
-                file,
-                line,
-                column,
-                outside,
-                f"{text!r}, a link that resolves outside the folder",
-                "Replace the link by a copy of the file.",
-            )
-        )
-        return None
-    if not full.is_file():
-        problems.append(
-            Problem(
-                file,
-                line,
-                column,
-                "an existing log file",
-                f"no file {text!r}",
-                "Check the path and its spelling (paths are case-sensitive).",
-            )
-        )
-        return None
-    return pure.as_posix()
+    """A log path from runs.csv, relative, checked by the input-file rules (inputs.files)."""
+    found = inside_campaign(root, text)
+    if not isinstance(found, Refusal):
+        rel, resolved = found
+        found = check_regular(resolved, MAX_LOG_BYTES, name=text)
+        if found is None:
+            return rel
+    problems.append(Problem(file, line, column, found.expected, found.found, found.hint))
+    return None
 
 
 def _parse_start(text: str) -> datetime | None:
@@ -365,7 +389,7 @@ def _build_runs(root, rows, units, config, problems):
 
         run = row.get("run", "")
         if not _RUN_ID.match(run):
-            bad("run", "a run id of letters, digits, '-', '_', '.'", repr(run))
+            bad("run", "a run id of letters, digits, '-', '_', '.'", brief(run))
             problems.extend(mine)
             continue
         if run in runs or run in unreadable:
@@ -373,7 +397,7 @@ def _build_runs(root, rows, units, config, problems):
             bad(
                 "run",
                 "a unique run id",
-                f"{run!r}, already on line {first}",
+                f"{brief(run)}, already on line {first}",
                 "Give each run its own id.",
             )
             problems.extend(mine)
@@ -381,13 +405,13 @@ def _build_runs(root, rows, units, config, problems):
             continue
         kind = row.get("kind", "")
         if kind not in KINDS:
-            bad("kind", f"one of {', '.join(KINDS)}", repr(kind))
+            bad("kind", f"one of {', '.join(KINDS)}", brief(kind))
         start = _parse_start(row.get("start", ""))
         if start is None:
             bad(
                 "start",
                 "an ISO 8601 date and time, e.g. 2026-11-16T09:14:05",
-                repr(row.get("start", "")),
+                brief(row.get("start", "")),
             )
         label = row.get("config", "")
         if label or kind in ("tare", "data"):
@@ -402,7 +426,7 @@ def _build_runs(root, rows, units, config, problems):
                 bad(
                     "config",
                     f"a [configurations] label ({', '.join(sorted(labels))})",
-                    repr(label),
+                    brief(label),
                     "Add the configuration to campaign.toml or fix the label.",
                 )
         logs: dict[str, str] = {}
@@ -427,8 +451,8 @@ def _build_runs(root, rows, units, config, problems):
             if not text or units.get(name) is None:
                 set_points[name] = None
                 continue
-            if not (_NUMBER.match(text)):
-                bad(name, "a finite number", repr(text))
+            if not _NUMBER.match(text) or not np.isfinite(float(text)):
+                bad(name, "a finite number", brief(text))
                 set_points[name] = None
                 continue
             value = float(units[name](float(text)))
@@ -456,15 +480,15 @@ def _build_runs(root, rows, units, config, problems):
         if len(zero) > 2:
             bad("zero", "one or two zero runs (before, after)", f"{len(zero)}")
         if tare and kind != "data":
-            bad("tare", "tare runs only on a data run", repr(row["tare"]))
+            bad("tare", "tare runs only on a data run", brief(row["tare"]))
         if tare and kind == "data" and not row.get("balance_log"):
-            bad("tare", "tare runs only with a balance log", repr(row["tare"]))
+            bad("tare", "tare runs only with a balance log", brief(row["tare"]))
         pressure_with = _split_ids(row.get("pressure_with", ""))
         if pressure_with and (kind != "data" or not row.get("pressure_log")):
             bad(
                 "pressure_with",
                 "other runs' pressure only on a data run with a pressure log",
-                repr(row["pressure_with"]),
+                brief(row["pressure_with"]),
             )
         problems.extend(mine)
         if kind not in KINDS or start is None:
@@ -491,7 +515,10 @@ def _build_runs(root, rows, units, config, problems):
         for column, wanted in (("zero", "zero"), ("tare", "tare"), ("pressure_with", "data")):
             for ref in getattr(spec, column):
                 target = runs.get(ref)
-                if target is None:
+                if ref == spec.run:
+                    found = f"{brief(ref)}, the run itself"
+                    wanted = "different data"
+                elif target is None:
                     found = f"{ref!r}, which " + (
                         "could not be read" if ref in unreadable else "runs.csv does not hold"
                     )
@@ -521,7 +548,38 @@ def _build_runs(root, rows, units, config, problems):
                 )
                 problems.append(p)
                 by_run[spec.run].append(p)
+    for spec, cycle in _merge_cycles(runs):
+        p = Problem(
+            file,
+            spec.line,
+            "pressure_with",
+            "runs that do not merge this run's pressure back",
+            f"a cycle {' → '.join(cycle)}",
+            "Name the runs to merge in one run's pressure_with only.",
+        )
+        problems.append(p)
+        by_run[spec.run].append(p)
     return runs, by_run, unreadable
+
+
+def _merge_cycles(runs: dict[str, RunSpec]) -> list[tuple[RunSpec, list[str]]]:
+    """Each run whose pressure_with leads back to it through other runs, with that path."""
+    found = []
+    for spec in runs.values():
+        paths = {ref: [spec.run, ref] for ref in spec.pressure_with if ref != spec.run}
+        todo = list(paths)
+        while todo:
+            rid = todo.pop()
+            other = runs.get(rid)
+            for ref in other.pressure_with if other is not None else ():
+                if ref == spec.run:
+                    found.append((spec, [*paths[rid], ref]))
+                    todo = []
+                    break
+                if ref not in paths and ref != rid:
+                    paths[ref] = [*paths[rid], ref]
+                    todo.append(ref)
+    return found
 
 
 # ---------------------------------------------------------------------------------------------
@@ -577,6 +635,10 @@ class Campaign:
             if spec is not None:
                 todo += list(spec.uses)
         return order
+
+    def shared_problems(self) -> list[Problem]:
+        """Problems that stop every run: those of campaign.toml and of runs.csv as a whole."""
+        return list(self._global)
 
     def run_problems(self, run_id: str) -> list[Problem]:
         """Problems that keep ``run_id`` from being reduced.
@@ -676,14 +738,18 @@ class Campaign:
         )
 
 
+# Bytes read for a log's header when its data are left for later (check_logs=False); a header
+# longer than this is read in full by the full parse, which judges it.
+_HEADER_BYTES = 1 << 16
+
+
 def _header_names(path: Path) -> set[str]:
     """Base names in a log's first line (for cross-log rules; problems come from the parse)."""
-    try:
-        with open(path, "rb") as f:
-            first = f.readline(1 << 16)
-        cells = next(csv.reader([first.decode("utf-8-sig", errors="replace")]), [])
-    except OSError:
+    first = read_regular(path, MAX_LOG_BYTES, head=_HEADER_BYTES)
+    if isinstance(first, Refusal):
         return set()
+    line = first.splitlines()[0] if first else b""
+    cells = split_line(line.decode("utf-8-sig", errors="replace")) or []
     names = set()
     for cell in cells:
         try:
@@ -735,11 +801,19 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
                 "Give the folder that holds campaign.toml and runs.csv.",
             )
         )
+    # campaign.toml and runs.csv are held to the rules of the logs (inputs.files)
+    outside = [
+        Problem(name, None, None, found.expected, found.found, found.hint)
+        for name in ("campaign.toml", "runs.csv")
+        if isinstance(found := inside_campaign(root, name), Refusal)
+    ]
+    if outside:
+        raise InputError(outside)
     config, problems = load_config(root / "campaign.toml")
     config_problems = list(problems)
     rows, units, runs_fatal = _read_runs(root / "runs.csv", problems)
     if config is None or runs_fatal:
-        raise InputError(problems)
+        raise InputError(bounded(problems))
     # A problem of one runs.csv row stops that run (and those using it), not the campaign.
     global_problems = [p for p in problems if not (p.file == "runs.csv" and (p.line or 1) > 1)]
     runs, by_run, unreadable = _build_runs(root, rows, units, config, problems)
@@ -807,9 +881,14 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
             campaign._parse_file(rel)
         else:
             required, optional, hints, stream = files[rel]
-            with open(root / rel, "rb") as f:
-                first = f.read(1 << 16)
-            header = _read_header(first, rel, required, optional, hints)
-            campaign._by_file[rel] = header.problems
-            campaign.problems += header.problems
+            first = read_regular(root / rel, MAX_LOG_BYTES, name=rel, head=_HEADER_BYTES)
+            if isinstance(first, Refusal):
+                # unreadable now (permissions, or changed since runs.csv was checked): the
+                # runs that use it fail with the reason, the others go on
+                found = [Problem(rel, None, None, first.expected, first.found, first.hint)]
+            else:
+                found = _read_header(first, rel, required, optional, hints).problems
+            campaign._by_file[rel] = found
+            campaign.problems += found
+    campaign.problems = bounded(campaign.problems)
     return campaign

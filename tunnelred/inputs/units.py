@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import pint
 
-from tunnelred.common.errors import InputError, Problem
+from tunnelred.common.errors import InputError, Problem, brief
 
 __all__ = [
     "ureg",
@@ -89,6 +89,15 @@ def _units_of(text: str) -> pint.Unit:
     return ureg.parse_units(text)
 
 
+def _is_offset_delta(units: pint.Unit) -> bool:
+    """A difference of an offset unit (pint names them ``delta_…``: delta_degC, delta_degF, …).
+
+    Such a unit has the dimension of a temperature, so pint's dimensional check lets it stand
+    for an absolute temperature, and 19.8 delta_degC would be read as 19.8 K.
+    """
+    return any(name.startswith("delta_") for name in units._units)
+
+
 def _is_angular(units: pint.Unit, root: pint.Unit) -> bool:
     return ureg.get_root_units(units)[1] == root
 
@@ -123,19 +132,24 @@ def conversion(unit_text: str, dimension: str | None) -> Conversion:
     try:
         units = _units_of(unit_text)
     except Exception as exc:  # pint raises several types for unparsable text
-        raise ValueError(f"unknown unit {unit_text!r}") from exc
+        raise ValueError(f"unknown unit {brief(unit_text)}") from exc
     if dimension is None:
         return _conversion_any(units)
     target, attr, _ = DIMENSIONS[dimension]
     target_units = _units_of(target)
     if units.dimensionality != target_units.dimensionality:
-        raise ValueError(f"{unit_text!r}, a unit of {_describe(units)}")
+        raise ValueError(f"{brief(unit_text)}, a unit of {_describe(units)}")
     if dimension == "angle" and not _is_angular(units, _ANGLE_ROOT):
-        raise ValueError(f"{unit_text!r}, which is not an angular unit")
+        raise ValueError(f"{brief(unit_text)}, which is not an angular unit")
     if dimension == "rotation_rate" and not _is_angular(units, _RATE_ROOT):
-        raise ValueError(f"{unit_text!r}, which does not say cycles or radians per time")
+        raise ValueError(f"{brief(unit_text)}, which does not say cycles or radians per time")
     if dimension == "fraction" and _is_angular(units, _ANGLE_ROOT):
-        raise ValueError(f"{unit_text!r}, a unit of {_describe(units)}")
+        raise ValueError(f"{brief(unit_text)}, a unit of {_describe(units)}")
+    if dimension == "temperature" and _is_offset_delta(units):
+        raise ValueError(
+            f"{brief(unit_text)}, a temperature difference (an absolute temperature is in K, degC "
+            "or degF)"
+        )
     zero = ureg.Quantity(0.0, units)
     one = ureg.Quantity(1.0, units)
     if dimension == "temperature_difference":
@@ -209,12 +223,12 @@ def parse_header(name: str) -> tuple[str, str]:
     """
     match = _HEADER.match(name)
     if not match:
-        raise ValueError(f"{name!r} has no unit in brackets")
+        raise ValueError(f"{brief(name)} has no unit in brackets")
     base, unit = match.group(1), match.group(2).strip()
     if not base:
-        raise ValueError(f"{name!r} has no name before its unit")
+        raise ValueError(f"{brief(name)} has no name before its unit")
     if not unit:
-        raise ValueError(f"{name!r} has empty brackets")
+        raise ValueError(f"{brief(name)} has empty brackets")
     return base, unit
 
 
@@ -260,17 +274,22 @@ def parse_quantity(value, dimension: str, *, file: str, key: str) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float | str):
         raise fail(f"a {type(value).__name__} ({value!r})", 'Write a number or "number unit".')
     if isinstance(value, int | float):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:  # an integer of hundreds of digits
+            number = math.inf
         if not math.isfinite(number):
-            raise fail(repr(value), "Write a finite number.")
+            raise fail(brief(value), "Write a finite number.")
         return number
     match = _NUMBER_UNIT.match(value)
     if not match:
-        raise fail(repr(value), 'Write a number followed by its unit, e.g. "110 mm".')
+        raise fail(brief(value), 'Write a number followed by its unit, e.g. "110 mm".')
     number, unit_text = float(match.group(1)), match.group(2)
-    if not unit_text:
-        return number
-    try:
-        return float(conversion(unit_text, dimension)(number))
-    except ValueError as exc:
-        raise fail(str(exc), f"Give {key} in {expected}.") from None
+    if unit_text:
+        try:
+            number = float(conversion(unit_text, dimension)(number))
+        except ValueError as exc:
+            raise fail(str(exc), f"Give {key} in {expected}.") from None
+    if not math.isfinite(number):
+        raise fail(brief(value), "Write a finite number.")
+    return number

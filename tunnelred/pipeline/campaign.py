@@ -826,8 +826,8 @@ def reduce_campaign(
     Raises
     ------
     InputError
-        campaign.toml or runs.csv is unusable as a whole (every run would fail); nothing is
-        written.
+        campaign.toml or runs.csv is unusable as a whole, or has a problem that would stop every
+        run (an unknown blockage method, a misspelt key): nothing is written.
     OutputFolderError
         ``out`` cannot be used (inside the campaign, locked by another process, not writable,
         a foreign non-empty folder) or the new results could not be written (a full disk): the
@@ -871,6 +871,10 @@ def reduce_campaign(
         report=report,
     )
     campaign = open_campaign(path, check_logs=False)
+    shared = campaign.shared_problems()
+    if shared:
+        # every run would fail with these same problems: stop once, before OUT is touched
+        raise InputError(shared)
     plan = _plan(campaign, settings)  # an unknown run id is refused before OUT is touched
     folder = out if held or out is None else open_results_folder(out, path, force=force)
     try:
