@@ -36,7 +36,9 @@ F = Fault
 
 #: The fault planted for each flag, at its own set point (config, speed [m/s], spin ratio).
 FAULTS = {
-    "stagnation_cp": F("stagnation_cp", CONFIG, 6.0, 0.0, 2.0),  # 2 Pa on q ≈ 22 Pa
+    # 8 Pa on q ≈ 22 Pa: Cp_max ≈ 0.64, past 0.05 + k u(Cp_max) ≈ 0.23 (a 2 Pa leak, 1.3 times
+    # the scanner's declared 1.5 Pa, is within what the uncertainties explain).
+    "stagnation_cp": F("stagnation_cp", CONFIG, 6.0, 0.0, 8.0),
     "few_revolutions": F("few_revolutions", CONFIG, 6.0, 1.0, 1.0),  # 1 s at ≈ 15 rev/s
     "zero_shift": F("zero_shift", CONFIG, 6.0, 2.0, 0.006),  # 3 × the 0.2 % tolerance
     "overload": F("overload", CONFIG, 6.0, 3.0, 0.95),  # knock alone past the 90 % tolerance
@@ -272,7 +274,7 @@ def _stagnation_cp(c, run, reason):
     _, table, truth, _ = c
     cp_max = _numbers(reason)[1]
     assert cp_max == pytest.approx(table.loc[run, "Cp_max"], abs=5e-4)
-    # Planted: every tap reads 2 Pa low, so the windward tap's Cp is 1 − 2 Pa / q (Bernoulli at
+    # Planted: every tap reads 8 Pa low, so the windward tap's Cp is 1 − 8 Pa / q (Bernoulli at
     # the stagnation point, J. D. Anderson, Fundamentals of Aerodynamics, §3.13, gives 1 without
     # the fault), and the blockage correction 1 − Cp_c = (1 − Cp_u) / (1 + eps)² (Allen &
     # Vincenti, NACA Report 782) scales the miss. The windward tap sits within 0.3° of θ = 0

@@ -136,6 +136,16 @@ def test_stagnation_cp_only_on_non_spinning_runs():
     assert _judge("stagnation_cp", alpha=1.2, Cp_max=0.5) is None
 
 
+def test_stagnation_cp_allows_for_the_uncertainty_of_cp_max():
+    # A miss the declared uncertainties explain is no fault: the limit is the tolerance plus
+    # k u(Cp_max). With u = 0.03 (a 1.5 Pa scanner at q = 50 Pa) and k = 2.6 a miss of 0.09 is
+    # 3 u, inside 0.05 + 0.078; 0.14 is outside. Without u the tolerance alone judges.
+    assert _judge("stagnation_cp", alpha=0.0, Cp_max=0.91, u_Cp_max=0.03) is None
+    flag = _judge("stagnation_cp", alpha=0.0, Cp_max=0.86, u_Cp_max=0.03)
+    assert flag is not None and "k = 2.6" in flag.reason and "0.030" in flag.reason
+    assert _judge("stagnation_cp", alpha=0.0, Cp_max=0.91, u_Cp_max=0.0) is not None
+
+
 def test_set_point_agreement():
     # The case: dp_pitot logged in Pa under an [mbar] header reads 100 times high, so
     # U = sqrt(2 q / rho) comes out 10 times the set 6 m/s (Bernoulli, U ~ sqrt(q)).

@@ -1025,6 +1025,8 @@ def _agreement_measures(measures: dict, values: dict, linear, both: bool, points
     """The measures judged on the reduced values: Cp_max, balance/pressure lift, alpha."""
     if points is not None:
         measures["Cp_max"] = values["Cp_max"]
+        if np.isfinite(values["u_Cp_max"]):
+            measures["u_Cp_max"] = values["u_Cp_max"]
     if both:
         measures.update(
             CL=values["CL"],
