@@ -341,6 +341,43 @@ def test_an_interrupted_pool_stops_at_once_and_silently(sample_out, tmp_path, si
     assert len(list((out / ".generations").iterdir())) == 1
 
 
+def test_a_killed_command_leaves_no_pool_process_behind(sample_out, tmp_path):
+    """SIGKILL to the command alone while its pool reduces (kill -9 of the pid): the command
+    cannot stop its pool, so the pool's processes must notice and end themselves. Before the
+    fix the fork server and its workers waited on their queues for ever, holding the caller's
+    pipes open (the kill loop above then hung in communicate())."""
+    out = tmp_path / "out"
+    shutil.copytree(sample_out, out, symlinks=True)
+    before = assert_one_generation(out)
+    launched = time.time()
+    proc = subprocess.Popen(
+        [*_command(SAMPLE, out), "--workers", "2", "--fresh"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        env=_env(),
+        start_new_session=True,
+    )
+    try:
+        deadline = time.monotonic() + 120
+        while _fresh_entries(out / ".cache", launched) < 3 and proc.poll() is None:
+            assert time.monotonic() < deadline, "the reduction never got going"
+            time.sleep(0.05)
+        assert proc.poll() is None, "finished before it could be killed"
+        proc.kill()
+        proc.communicate(timeout=30)  # EOF: no process of the pool holds the pipes any more
+    finally:
+        try:
+            os.killpg(proc.pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+        proc.communicate()
+    with pytest.raises(ProcessLookupError):  # every process of the group has gone
+        for _ in range(100):
+            os.killpg(proc.pid, 0)
+            time.sleep(0.1)
+    assert assert_one_generation(out) == before
+
+
 def test_a_full_disk_leaves_out_untouched_with_one_message(sample_out, tmp_path):
     """A file-size limit (ulimit -f: the writes fail as on a full disk) stops the new
     generation; OUT keeps the previous one, the command says so once, exit 2."""

@@ -487,6 +487,54 @@ def _pool_context():
     return multiprocessing.get_context("spawn")
 
 
+def _process_pool(helpers: int) -> ProcessPoolExecutor:
+    """A pool of ``helpers`` processes whose every process ends when this one dies."""
+    return ProcessPoolExecutor(
+        max_workers=helpers,
+        mp_context=_pool_context(),
+        initializer=_end_with_owner,
+        initargs=(os.getpid(),),
+    )
+
+
+def _end_with_owner(owner: int) -> None:
+    """Pool process start-up: exit once ``owner``, the process that made the pool, is gone.
+
+    A SIGKILL gives the owner no chance to stop its pool; the workers would then wait on their
+    queue for ever (the fork server with them, as each worker holds its liveness pipe), keeping
+    the terminal or a caller's pipes open. The owner is this process's parent (spawn) or the
+    fork server's parent; a dead owner's children are re-parented at once, zombie or not.
+    """
+
+    def watch() -> None:
+        while _is_ancestor(owner):
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="tunnelred-owner-watch", daemon=True).start()
+
+
+def _is_ancestor(pid: int, depth: int = 2) -> bool:
+    here = os.getppid()
+    for _ in range(depth):
+        if here == pid:
+            return True
+        try:
+            # /proc/<pid>/stat: "pid (comm) state ppid ..."; comm may hold spaces and ")".
+            stat_line = Path(f"/proc/{here}/stat").read_text()
+            here = int(stat_line.rsplit(")", 1)[1].split()[1])
+        except (OSError, ValueError, IndexError):
+            # No /proc: fall back to "the owner still exists" (a zombie counts as alive).
+            try:
+                os.kill(pid, 0)
+            except ProcessLookupError:
+                return False
+            except OSError:
+                pass
+            return True
+    return False
+
+
 def _start_forkserver_deaf_to_ctrl_c() -> None:
     """Start the fork server with SIGINT ignored, so that Ctrl-C reaches only this process.
 
@@ -527,7 +575,7 @@ class _PoolStart:
         self.path = path
         self.helpers = helpers
         self.token = secrets.token_hex(8)
-        self.executor = ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context())
+        self.executor = _process_pool(helpers)
         self._lock = threading.Lock()
         self._submitted = False
         self._finished = False
@@ -1087,7 +1135,7 @@ def _figure_helpers(settings: _Settings):
     if helpers < 1:
         yield None, 0
         return
-    executor = ProcessPoolExecutor(max_workers=helpers, mp_context=_pool_context())
+    executor = _process_pool(helpers)
     try:
         yield executor, helpers
     except BaseException:
