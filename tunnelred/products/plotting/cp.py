@@ -103,30 +103,39 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
             linewidth=1.0,
             label=rf"potential flow $1-(\alpha+2\sin\theta)^2$, $\alpha$ = {alpha:.3f}",
         )
+        low = float(np.nanmin(cp - k * u))  # the bottom of the band
         if polar:
-            ax.set_theta_zero_location("W")
-            ax.set_theta_direction(1)
-            low = float(np.nanmin([np.nanmin(cp - k * u), ideal.min()]))
-            ax.set_rlim(math.floor(low), 1.5)
-            ax.set_title(f"Cp around the section, run {run} (flow from the left)")
-            ax.legend(loc="lower center", bbox_to_anchor=(0.5, -0.32), fontsize=7)
+            _polar_frame(ax, run, float(np.nanmin([low, ideal.min()])))
         else:
-            ax.set_xlim(-180, 180)
-            ax.set_xticks(np.arange(-180, 181, 45))
-            ax.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
-            ax.set_ylabel(r"pressure coefficient $C_p$")
-            ax.set_title(f"Surface pressure, run {run}")
-            # At high spin the potential-flow suction peak (1 - (α + 2)²) lies far below any
-            # real one; the axis then keeps to the data and the theory line runs off it. At low
-            # spin (peak above -5, e.g. -3 at α = 0) the whole theory curve stays in view.
-            low = float(np.nanmin(cp - k * u))
-            if ideal.min() < min(-5.0, 1.0 + 1.5 * (low - 1.0)):
-                ax.set_ylim(low - 0.3 * (1.5 - low), 1.5)
-                ax.annotate("potential-flow minimum "
-                            f"{ideal.min():.1f} off scale", xy=(0.02, 0.03),
-                            xycoords="axes fraction", fontsize=7, color=THEORY_COLOR)  # fmt: skip
-            ax.legend(loc="best")
+            _cartesian_frame(ax, run, low, float(ideal.min()))
     return ax
+
+
+def _polar_frame(ax: Axes, run: str, low: float) -> None:
+    """Flow from the left, θ counter-clockwise; the radius from below ``low`` to 1.5."""
+    ax.set_theta_zero_location("W")
+    ax.set_theta_direction(1)
+    ax.set_rlim(math.floor(low), 1.5)
+    ax.set_title(f"Cp around the section, run {run} (flow from the left)")
+    ax.legend(loc="lower center", bbox_to_anchor=(0.5, -0.32), fontsize=7)
+
+
+def _cartesian_frame(ax: Axes, run: str, low: float, ideal_min: float) -> None:
+    """θ from −180° to 180°; Cp down to the band's bottom ``low``, or the theory's minimum."""
+    ax.set_xlim(-180, 180)
+    ax.set_xticks(np.arange(-180, 181, 45))
+    ax.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
+    ax.set_ylabel(r"pressure coefficient $C_p$")
+    ax.set_title(f"Surface pressure, run {run}")
+    # At high spin the potential-flow suction peak (1 - (α + 2)²) lies far below any
+    # real one; the axis then keeps to the data and the theory line runs off it. At low
+    # spin (peak above -5, e.g. -3 at α = 0) the whole theory curve stays in view.
+    if ideal_min < min(-5.0, 1.0 + 1.5 * (low - 1.0)):
+        ax.set_ylim(low - 0.3 * (1.5 - low), 1.5)
+        ax.annotate("potential-flow minimum "
+                    f"{ideal_min:.1f} off scale", xy=(0.02, 0.03),
+                    xycoords="axes fraction", fontsize=7, color=THEORY_COLOR)  # fmt: skip
+    ax.legend(loc="best")
 
 
 def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:

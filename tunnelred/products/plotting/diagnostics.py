@@ -68,60 +68,68 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
         if fig is None:
             fig = Figure(figsize=(7.0, 8.0), layout="constrained")
         ax_alpha, ax_speed, ax_zero = fig.subplots(3, 1)
-        style_a, style_u, _ = HOUSE_STYLE[:3]
-
         flow = None
         if "tunnel" in data.streams:
             flow = conditions.free_stream(data.streams["tunnel"], cfg)
-        t_spin, omega, source = conditions.spin_rate(data.streams)
-        if flow is not None and source != "none":
-            steady = conditions.spin_steadiness(
-                t_spin, omega, flow["time"].values, flow["U"].values, cfg.model.diameter / 2
-            )
-            mean = steady.alpha_mean
-            ax_alpha.plot(steady.time, steady.alpha, color=style_a.color, linewidth=0.8)
-            ax_alpha.axhline(mean, color=THEORY_COLOR, linewidth=1.0, label=f"mean {mean:.4f}")
-            band = abs(mean) * tol.spin_scatter
-            ax_alpha.axhspan(
-                mean - band,
-                mean + band,
-                color=style_a.color,
-                alpha=0.12,
-                label=f"mean ± {100 * tol.spin_scatter:g} % (spin_scatter tolerance)",
-            )
-            ax_alpha.set_title(
-                f"Spin ratio, run {run} ({source}): scatter {100 * steady.scatter:.2f} %, "
-                f"drift {100 * steady.drift:+.2f} %"
-            )
-            ax_alpha.legend(loc="best")
-        else:
-            ax_alpha.set_title(f"Spin ratio, run {run}: not spinning or no tunnel log")
-        ax_alpha.set_ylabel(r"$\alpha(t)$")
-        _stream_time_label(ax_alpha)
-
-        if flow is not None:
-            t, U = flow["time"].values, flow["U"].values
-            stats = conditions.series_statistics(U, t)
-            ax_speed.plot(t, U, color=style_u.color, linewidth=0.8)
-            ax_speed.axhline(stats.mean, color=THEORY_COLOR, linewidth=1.0)
-            band = stats.mean * tol.speed_drift
-            ax_speed.axhspan(
-                stats.mean - band,
-                stats.mean + band,
-                color=style_u.color,
-                alpha=0.12,
-                label=f"mean ± {100 * tol.speed_drift:g} % (speed_drift tolerance)",
-            )
-            ax_speed.set_title(
-                f"Free-stream speed (uncorrected): mean {stats.mean:.2f} m/s, "
-                f"drift {100 * stats.drift / stats.mean:+.2f} %"
-            )
-            ax_speed.legend(loc="best")
-        ax_speed.set_ylabel(r"$U(t)$ [m/s]")
-        _stream_time_label(ax_speed)
-
+        _alpha_panel(ax_alpha, data, flow, cfg.model.diameter / 2, tol, run)
+        _speed_panel(ax_speed, flow, tol)
         _zero_panel(ax_zero, campaign, spec)
     return fig
+
+
+def _alpha_panel(ax: Axes, data, flow, radius: float, tol, run: str) -> None:
+    """α(t) of the run with its mean and the spin_scatter band (or why there is none)."""
+    style = HOUSE_STYLE[0]
+    t_spin, omega, source = conditions.spin_rate(data.streams)
+    if flow is not None and source != "none":
+        steady = conditions.spin_steadiness(
+            t_spin, omega, flow["time"].values, flow["U"].values, radius
+        )
+        mean = steady.alpha_mean
+        ax.plot(steady.time, steady.alpha, color=style.color, linewidth=0.8)
+        ax.axhline(mean, color=THEORY_COLOR, linewidth=1.0, label=f"mean {mean:.4f}")
+        band = abs(mean) * tol.spin_scatter
+        ax.axhspan(
+            mean - band,
+            mean + band,
+            color=style.color,
+            alpha=0.12,
+            label=f"mean ± {100 * tol.spin_scatter:g} % (spin_scatter tolerance)",
+        )
+        ax.set_title(
+            f"Spin ratio, run {run} ({source}): scatter {100 * steady.scatter:.2f} %, "
+            f"drift {100 * steady.drift:+.2f} %"
+        )
+        ax.legend(loc="best")
+    else:
+        ax.set_title(f"Spin ratio, run {run}: not spinning or no tunnel log")
+    ax.set_ylabel(r"$\alpha(t)$")
+    _stream_time_label(ax)
+
+
+def _speed_panel(ax: Axes, flow, tol) -> None:
+    """U(t) (uncorrected) with its mean and the speed_drift band."""
+    style = HOUSE_STYLE[1]
+    if flow is not None:
+        t, U = flow["time"].values, flow["U"].values
+        stats = conditions.series_statistics(U, t)
+        ax.plot(t, U, color=style.color, linewidth=0.8)
+        ax.axhline(stats.mean, color=THEORY_COLOR, linewidth=1.0)
+        band = stats.mean * tol.speed_drift
+        ax.axhspan(
+            stats.mean - band,
+            stats.mean + band,
+            color=style.color,
+            alpha=0.12,
+            label=f"mean ± {100 * tol.speed_drift:g} % (speed_drift tolerance)",
+        )
+        ax.set_title(
+            f"Free-stream speed (uncorrected): mean {stats.mean:.2f} m/s, "
+            f"drift {100 * stats.drift / stats.mean:+.2f} %"
+        )
+        ax.legend(loc="best")
+    ax.set_ylabel(r"$U(t)$ [m/s]")
+    _stream_time_label(ax)
 
 
 def _zero_panel(ax: Axes, campaign, spec) -> None:

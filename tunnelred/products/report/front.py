@@ -35,17 +35,45 @@ STATEMENTS = (
 
 
 def title_page(b: Builder, data: ReportData, date: str) -> None:
-    ds = data.ds
+    """The first two pages: report control, signatures, statements and cautions; then revision
+    history, campaign notes, provenance and the contents.
+    """
+    _heading(b, data)
+    _control_table(b, data, date)
+    _signatures(b, data.control)
+    for text in STATEMENTS:
+        b.add(b.p(text, "caution"))
+    b.add(b.p("Cautions", "h2"))
+    for text in CAUTIONS:
+        b.add(b.p(f"• {text}", "caution"))
+    b.add(PageBreak())
+    _revision_history(b, data)
+    _provenance(b, data)
+    _contents(b)
+
+
+def _campaign_info(data: ReportData):
+    """The [campaign] table of campaign.toml, or None when the campaign is not known."""
+    return data.campaign.config.campaign if data.campaign is not None else None
+
+
+def _heading(b: Builder, data: ReportData) -> None:
     control = data.control
-    info = data.campaign.config.campaign if data.campaign is not None else None
     b.add(Spacer(1, 8 * mm))
     b.add(b.p("Wind-tunnel test report", "subtitle"))
     b.add(b.p(data.title, "title"))
-    facility = str(ds.attrs.get("facility", ""))
+    facility = str(data.ds.attrs.get("facility", ""))
     b.add(b.p(control.laboratory or facility or "(laboratory not stated)", "subtitle"))
     if control.laboratory_address:
         b.add(b.p(control.laboratory_address, "subtitle"))
     b.add(Spacer(1, 4 * mm))
+
+
+def _control_table(b: Builder, data: ReportData, date: str) -> None:
+    ds = data.ds
+    control = data.control
+    info = _campaign_info(data)
+    facility = str(ds.attrs.get("facility", ""))
     n_runs = ds.sizes["run"]
     n_failed = data.failures["run"].nunique() if "run" in data.failures else 0
     n_flagged = int(plotting.flagged_runs(ds).sum())
@@ -67,6 +95,9 @@ def title_page(b: Builder, data: ReportData, date: str) -> None:
         ],
     ]
     b.table(["report control", ""], rows, [1.1, 3.0])
+
+
+def _signatures(b: Builder, control) -> None:
     b.add(b.p("Signatures", "h2"))
     rows = [
         [role, or_blank(name), _SIGNATURE, "date: ________"]
@@ -78,12 +109,12 @@ def title_page(b: Builder, data: ReportData, date: str) -> None:
     ]
     b.table(["", "name", "signature", ""], rows, [0.9, 1.5, 1.5, 0.9], padding=6)
     b.add(b.p("Approved by: the person who authorises this report for issue.", "small"))
-    for text in STATEMENTS:
-        b.add(b.p(text, "caution"))
-    b.add(b.p("Cautions", "h2"))
-    for text in CAUTIONS:
-        b.add(b.p(f"• {text}", "caution"))
-    b.add(PageBreak())
+
+
+def _revision_history(b: Builder, data: ReportData) -> None:
+    """The revisions campaign.toml lists (else this one as the first issue), and its notes."""
+    control = data.control
+    info = _campaign_info(data)
     b.add(b.p("Revision history", "h2"))
     history = [
         [str(getattr(h, key, "")) for key in ("revision", "date", "change")]
@@ -93,6 +124,10 @@ def title_page(b: Builder, data: ReportData, date: str) -> None:
     if info is not None and info.notes:
         b.add(b.p("Campaign notes", "h2"))
         b.add(b.p(info.notes))
+
+
+def _provenance(b: Builder, data: ReportData) -> None:
+    ds = data.ds
     b.add(b.p("Provenance", "h2"))
     methods = data.methods
     rows = [
@@ -107,6 +142,9 @@ def title_page(b: Builder, data: ReportData, date: str) -> None:
         ["results folder", str(data.out)],
     ]
     b.table(["item", "value"], rows, [1, 2.6])
+
+
+def _contents(b: Builder) -> None:
     b.add(b.p("Contents", "h2"))
     toc = TableOfContents()
     toc.levelStyles = [b.s["toc"]]
