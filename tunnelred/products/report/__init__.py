@@ -13,8 +13,9 @@ One module for each part of the report: :mod:`.layout` (page, styles, furniture,
 :mod:`.formatting` (how values print), :mod:`.data` (what the report is written from),
 :mod:`.front` (title page), :mod:`.summary`, :mod:`.description` (model, run log, conditions,
 instrumentation, procedures), :mod:`.method` (data reduction, uncertainty), :mod:`.results`
-(results and the configuration comparison), :mod:`.flags` (quality flags) and :mod:`.appendix`;
-this module puts them together in :func:`write_report`.
+(results and the configuration comparison), :mod:`.plan` (the pre-test uncertainty analysis),
+:mod:`.flags` (quality flags) and :mod:`.appendix`; this module puts them together in
+:func:`write_report`.
 """
 
 from __future__ import annotations
