@@ -209,6 +209,12 @@ def _balance_inputs(campaign, spec, data, omega_mean: float, measures: dict):
     if len(spec.zero) > 1:
         shift_loads = balance.loads_from_signals(shift, matrix, None)
         measures["zero_shift"] = _components(np.abs(np.asarray(shift_loads)) / full_scale)
+    if spec.provisional:
+        # The closing zero is not in: the drift since the opening zero is unobserved. A drift
+        # the zero_shift check would pass is at most its tolerance of full scale by the closing
+        # zero, so it enters as a rectangular term of that half-width (GUM 4.3.7).
+        tolerance = campaign.config.tolerances_for(spec.config).zero_shift
+        u_zero_loads = np.hypot(u_zero_loads, tolerance * full_scale / np.sqrt(3.0))
 
     tare = np.zeros(3)
     u_tare = np.zeros(3)
@@ -982,6 +988,7 @@ def _run_values(spec, linear, measures: dict, dead_taps: list[str]) -> dict[str,
         "start": spec.start.isoformat(),
         "speed_set": np.nan if spec.speed_set is None else spec.speed_set,
         "spin_set": np.nan if spec.spin_set is None else spec.spin_set,
+        "provisional": bool(spec.provisional),
     }
     for name in RUN_OUTPUTS:
         values[name] = float(np.asarray(linear.values[name]).reshape(-1)[0])

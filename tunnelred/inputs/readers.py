@@ -13,7 +13,7 @@ import hashlib
 import io
 import re
 from collections.abc import Iterable, Iterator, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime
 from pathlib import Path
 
@@ -90,7 +90,9 @@ class RunSpec:
 
     ``logs`` maps a stream name (:data:`STREAMS`) to its log's path relative to the campaign
     folder (forward slashes). ``speed_set`` is in m/s and ``spin_set`` in rpm (signed), None
-    when not given. ``line`` is the row's line in runs.csv.
+    when not given. ``line`` is the row's line in runs.csv. ``provisional`` is true only for a
+    data run opened by the watch before its closing zero is in (``zero`` then holds the opening
+    zero alone; see :func:`open_campaign`).
     """
 
     run: str
@@ -105,6 +107,7 @@ class RunSpec:
     notes: str = ""
     line: int = 0
     pressure_with: tuple[str, ...] = ()
+    provisional: bool = False
 
     @property
     def uses(self) -> tuple[str, ...]:
@@ -366,7 +369,7 @@ def _parse_start(text: str) -> datetime | None:
         return None
 
 
-def _build_runs(root, rows, units, config, problems):
+def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bool = False):
     """RunSpecs from runs.csv rows; problems go to ``problems`` keyed by run id."""
     file = "runs.csv"
     labels = set(config.configurations) if config is not None else None
@@ -511,7 +514,9 @@ def _build_runs(root, rows, units, config, problems):
         )
         by_run.setdefault(run, []).extend(mine)
     # references can point forward, so they are checked once every row is read
-    for spec in runs.values():
+    for spec in list(runs.values()):
+        if closing_zero_pending:
+            spec = runs[spec.run] = _without_closing_zero(spec, runs, unreadable)
         for column, wanted in (("zero", "zero"), ("tare", "tare"), ("pressure_with", "data")):
             for ref in getattr(spec, column):
                 target = runs.get(ref)
@@ -580,6 +585,25 @@ def _merge_cycles(runs: dict[str, RunSpec]) -> list[tuple[RunSpec, list[str]]]:
                     paths[ref] = [*paths[rid], ref]
                     todo.append(ref)
     return found
+
+
+def _without_closing_zero(spec: RunSpec, runs: dict[str, RunSpec], unreadable) -> RunSpec:
+    """A data run whose second zero has no row yet, reduced from its opening zero alone.
+
+    Only when the run names two zeros, one of them has no row in runs.csv (it is still to be
+    taken) and the other is a zero run that started before this one; any other missing zero is
+    the readers' usual problem.
+    """
+    if spec.kind != "data" or len(spec.zero) != 2:
+        return spec
+    absent = [z for z in spec.zero if z not in runs and z not in unreadable]
+    present = [runs[z] for z in spec.zero if z in runs]
+    if len(absent) != 1 or len(present) != 1:
+        return spec
+    opening = present[0]
+    if opening.kind != "zero" or None in (opening.start, spec.start) or opening.start > spec.start:
+        return spec
+    return replace(spec, zero=(opening.run,), provisional=True)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -759,7 +783,7 @@ def _header_names(path: Path) -> set[str]:
     return names
 
 
-def open_campaign(path, *, check_logs: bool = True) -> Campaign:
+def open_campaign(path, *, check_logs: bool = True, closing_zero_pending: bool = False) -> Campaign:
     """Open a campaign folder: read campaign.toml and runs.csv and check every reference.
 
     Parameters
@@ -770,6 +794,10 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
         True: parse every log fully and collect its problems (the data are not kept).
         False: check each log's header row only, so that a large campaign opens quickly; the
         logs' data are checked by :meth:`Campaign.load_run`.
+    closing_zero_pending : bool
+        For the watch only (``tunnelred reduce`` never sets it): a data run naming two zeros of
+        which the one after it has no row yet is opened as *provisional*, with its opening zero
+        alone (:attr:`RunSpec.provisional`), instead of failing for the missing zero.
 
     Returns
     -------
@@ -816,7 +844,9 @@ def open_campaign(path, *, check_logs: bool = True) -> Campaign:
         raise InputError(bounded(problems))
     # A problem of one runs.csv row stops that run (and those using it), not the campaign.
     global_problems = [p for p in problems if not (p.file == "runs.csv" and (p.line or 1) > 1)]
-    runs, by_run, unreadable = _build_runs(root, rows, units, config, problems)
+    runs, by_run, unreadable = _build_runs(
+        root, rows, units, config, problems, closing_zero_pending=closing_zero_pending
+    )
     global_problems = config_problems + [p for p in global_problems if p not in config_problems]
 
     def stop_all(p: Problem):

@@ -95,7 +95,8 @@ class RunLine:
 
     ``state`` is one of waiting, truncated, complete (queued for the engine), reduced, flagged
     or failed; ``reason`` says why it waits, which flags it raised and why, or why it failed.
-    The coefficients are NaN until the run is reduced.
+    The coefficients are NaN until the run is reduced. ``provisional`` marks results reduced
+    before the run's closing zero was in (from its opening zero alone; docs/live.md).
     """
 
     run: str
@@ -106,6 +107,7 @@ class RunLine:
     CD: float = math.nan
     u_CL: float = math.nan
     reason: str = ""
+    provisional: bool = False
 
 
 @dataclass(frozen=True)
@@ -135,8 +137,9 @@ class Status:
         """Data runs by state: complete (all inputs in), reduced, flagged, failed, waiting.
 
         ``complete`` counts every run whose inputs are all in (queued, reduced, flagged or
-        failed); ``reduced`` those with results (flagged ones included); ``waiting`` those still
-        being written, truncated ones included.
+        failed); ``reduced`` those with results (flagged ones included), ``provisional`` those
+        of them still waiting for their closing zero; ``waiting`` those still being written,
+        truncated ones included.
         """
         states = [r.state for r in self.runs]
         done = (COMPLETE, REDUCED, FLAGGED, FAILED)
@@ -144,6 +147,7 @@ class Status:
             "complete": sum(s in done for s in states),
             "reduced": sum(s in (REDUCED, FLAGGED) for s in states),
             "flagged": states.count(FLAGGED),
+            "provisional": sum(r.provisional and r.state in (REDUCED, FLAGGED) for r in self.runs),
             "failed": states.count(FAILED),
             "waiting": sum(s in (WAITING, TRUNCATED) for s in states),
         }
@@ -213,13 +217,16 @@ def _run_text(line: RunLine) -> str:
         f"{mark} {line.run:<10} {line.config:<8} {_number(line.alpha)} {_number(line.CL)} "
         f"{_number(line.CD)} {_number(line.u_CL, 7, 4)}  {state:<9}"
     )
+    if line.provisional:
+        text += " PROVISIONAL"
     return f"{text} {line.reason}" if line.reason else text
 
 
 def _counts_text(status: Status) -> str:
     c = status.count()
     return (
-        f"data runs: {c['complete']} complete, {c['reduced']} reduced, {c['flagged']} flagged, "
+        f"data runs: {c['complete']} complete, {c['reduced']} reduced "
+        f"({c['provisional']} provisional), {c['flagged']} flagged, "
         f"{c['failed']} failed, {c['waiting']} waiting"
     )
 
@@ -299,7 +306,7 @@ class TerminalView:
         self.stream = stream if stream is not None else sys.stdout
         self.tty = bool(tty if tty is not None else getattr(self.stream, "isatty", bool)())
         self._drawn = 0
-        self._said: dict[str, tuple[str, str]] = {}
+        self._said: dict[str, tuple[str, str, bool]] = {}
         self._problems: tuple[str, ...] = ()
 
     def update(self, status: Status) -> None:
@@ -341,7 +348,7 @@ class TerminalView:
                 print(f"[{stamp}] !! {printable(problem)}", file=self.stream)
         self._problems = status.problems
         for r in status.runs:
-            said = (r.state, r.reason)
+            said = (r.state, r.reason, r.provisional)
             if self._said.get(r.run) == said:
                 continue
             if r.state != WAITING or r.reason != "":
@@ -432,20 +439,25 @@ class LiveView:
 # The figure
 
 
-def live_figure(results):
-    """CL and CD against the spin ratio for the runs so far, flagged runs circled.
+def live_figure(results, *, stamp: str | None = None):
+    """CL and CD against the spin ratio for the runs so far, flagged runs circled and labelled.
 
     Parameters
     ----------
     results : xarray.Dataset, CampaignResults or path-like
         Campaign results (see :func:`tunnelred.products.plotting.results_dataset`).
+    stamp : str, optional
+        When the figure was drawn, shown in its top right corner (the watch gives the time of
+        the reduction it shows).
 
     Returns
     -------
     matplotlib.figure.Figure
         Two Axes: CL with the potential-flow line −2πα, and CD; wall-corrected values with
         expanded-uncertainty bars (k = 2), drawn by
-        :func:`tunnelred.products.plotting.plot_coefficient`.
+        :func:`tunnelred.products.plotting.plot_coefficient`. Each flagged run is circled and
+        labelled with its run id; the latest run (the last in run order) is drawn as a large
+        star labelled ``latest run <id>``; a provisional result adds "provisional" to both.
 
     Notes
     -----
@@ -472,16 +484,23 @@ def live_figure(results):
     ds = plotting.results_dataset(results)
     fig = Figure(figsize=(11.0, 4.4), layout="constrained")
     axes = fig.subplots(1, 2)
+    runs = [str(r) for r in ds["run"].values]
     flagged = np.array([bool(f) for f in ds["flags"].values]) if "flags" in ds else None
+    provisional = ds["provisional"].values.astype(bool) if "provisional" in ds else None
+
+    def worded(i: int, text: str) -> str:
+        return f"{text} (provisional)" if provisional is not None and provisional[i] else text
+
     for ax, name in zip(axes, ("CL", "CD"), strict=True):
         if name not in ds:
             ax.set_title(f"no {name} yet")
             continue
         plotting.plot_coefficient(ds, name, ax=ax, uncorrected=False, theory=name == "CL")
+        x, y = ds["alpha"].values, ds[name].values
         if flagged is not None and flagged.any():
             ax.plot(
-                ds["alpha"].values[flagged],
-                ds[name].values[flagged],
+                x[flagged],
+                y[flagged],
                 linestyle="none",
                 marker="o",
                 markersize=14,
@@ -491,8 +510,32 @@ def live_figure(results):
                 label="flagged run",
                 zorder=4,
             )
-            legend = ax.get_legend()
-            ax.legend(title=legend.get_title().get_text() if legend else None)
+            for i in np.flatnonzero(flagged):
+                ax.annotate(
+                    worded(i, runs[i]),
+                    (x[i], y[i]),
+                    xytext=(8, 8),
+                    textcoords="offset points",
+                    fontsize=8,
+                    fontweight="bold",
+                )
+        if runs:
+            last = len(runs) - 1
+            ax.plot(
+                x[last:],
+                y[last:],
+                linestyle="none",
+                marker="*",
+                markersize=16,
+                markerfacecolor="gold",
+                markeredgecolor="black",
+                label=worded(last, f"latest run {runs[last]}"),
+                zorder=5,
+            )
+        legend = ax.get_legend()
+        ax.legend(title=legend.get_title().get_text() if legend else None)
+    if stamp:
+        fig.suptitle(f"updated {stamp}", x=0.99, ha="right", fontsize=9)
     return fig
 
 
@@ -504,7 +547,8 @@ def _live_figure_into(staging, ds) -> dict[str, Path]:
     name = f"figures/{_FIGURE_FILE}"
     path = staging.file(name)
     with store.atomic_path(path) as tmp:
-        live_figure(ds).savefig(tmp, format="png", dpi=100)
+        stamp = datetime.now().isoformat(sep=" ", timespec="seconds")
+        live_figure(ds, stamp=stamp).savefig(tmp, format="png", dpi=100)
     return {name: path}
 
 
@@ -528,6 +572,7 @@ class _Row:
     lines: tuple[int, int]  # first and past-the-last physical line of the record
     text: str  # the record as written, for noticing an edited row
     problem: str = ""  # why the row cannot be used (the run is shown failed, never reduced)
+    zeros: tuple[str, ...] = ()  # its zero runs, as runs.csv names them (before, after)
 
 
 def _whole_lines(data: bytes) -> bytes:
@@ -622,6 +667,7 @@ def _rows(root: Path, text: str) -> tuple[list[str], list[_Row]]:
                     config=cells.get("config", ""),
                     logs=logs,
                     needs=needs,
+                    zeros=tuple(z.strip() for z in cells.get("zero", "").split(";") if z.strip()),
                     lines=(first, last),
                     text="".join(lines[first:last]),
                 )
@@ -678,6 +724,7 @@ class _Watcher:
         self.snapshot_runs: bytes | None = None  # runs.csv as last written into the snapshot
         self.named_files: tuple[str, ...] = ()  # files campaign.toml names, copied with it
         self.signatures: dict[str, tuple] = {}
+        self.pending: dict[str, str] = {}  # data run -> the closing zero it is reduced without
         self.results = None
         self.title = ""
         self.problems: tuple[str, ...] = ()
@@ -801,9 +848,14 @@ class _Watcher:
                 self._copy(rel, s.key)
 
         verdicts: dict[str, tuple[str, str]] = {}
+        self.pending = {}
         for row in self.rows:
             self._judge(row.run, by_id, states, verdicts, ())
-        available = {r.run for r in self.rows if self._available(r.run, by_id, set())}
+        available = {
+            r.run
+            for r in self.rows
+            if self._available(r.run, by_id, set(), skip=self.pending.get(r.run))
+        }
         snapshot_text = self._snapshot_runs(available)
         named_copied = all(rel in self.copied for rel in self.named_files)
         if snapshot_text != self.snapshot_runs and "campaign.toml" in self.copied and named_copied:
@@ -813,7 +865,11 @@ class _Watcher:
             self.snapshot_runs = snapshot_text
 
         data_runs = [r for r in self.rows if r.kind == "data"]
-        signatures = {r.run: self._signature(r.run, by_id) for r in data_runs if r.run in available}
+        signatures = {
+            r.run: self._signature(r.run, by_id, skip=self.pending.get(r.run))
+            for r in data_runs
+            if r.run in available
+        }
         fresh = tuple(rid for rid, sig in signatures.items() if self.signatures.get(rid) != sig)
         # The engine runs when a data run is new, changed or gone, and once at the start so that
         # OUT matches a snapshot an earlier watch left.
@@ -856,17 +912,35 @@ class _Watcher:
             verdict = (WAITING, f"{rel}: {text}")
             break
         if verdict[0] == COMPLETE:
+            closing, pending = self._closing_zero(row, by_id), None
             for need in row.needs:
                 state, reason = self._judge(need, by_id, states, verdicts, (*chain, rid))
-                if state != COMPLETE:
+                if state != COMPLETE and need == closing:
+                    pending = closing  # reduced provisionally from the opening zero meanwhile
+                elif state != COMPLETE:
                     prefix = f"{need}: " if not reason.startswith(f"{need}:") else ""
                     verdict = (state, f"{prefix}{reason}")
                     break
+            else:
+                if pending is not None:
+                    self.pending[rid] = pending
         verdicts[rid] = verdict
         return verdict
 
-    def _available(self, rid, by_id, visiting) -> bool:
-        """Every log of the run and of its zero and tare runs has a copy in the snapshot."""
+    @staticmethod
+    def _closing_zero(row: _Row, by_id) -> str | None:
+        """The zero a data run names after it (its row absent or further down runs.csv), when
+        the other zero it names comes before it: the one a provisional result may go without.
+        The readers check the same pair by start time (open_campaign, closing_zero_pending)."""
+        if row.kind != "data" or len(row.zeros) != 2:
+            return None
+        after = [z for z in row.zeros if z not in by_id or by_id[z].lines[0] > row.lines[0]]
+        before = [z for z in row.zeros if z not in after]
+        return after[0] if len(after) == 1 and len(before) == 1 else None
+
+    def _available(self, rid, by_id, visiting, skip: str | None = None) -> bool:
+        """Every log of the run and of its zero and tare runs (but ``skip``, a closing zero
+        still pending) has a copy in the snapshot."""
         row = by_id.get(rid)
         if row is None or row.problem:
             return False
@@ -874,17 +948,18 @@ class _Watcher:
             return True
         visiting = visiting | {rid}
         own = all(rel is None or rel in self.copied for rel in row.logs)
-        return own and all(self._available(n, by_id, visiting) for n in row.needs)
+        return own and all(self._available(n, by_id, visiting) for n in row.needs if n != skip)
 
-    def _signature(self, rid, by_id, visiting=frozenset()) -> tuple:
-        """What the run's reduction reads, as the watch knows it: rows and copied versions."""
+    def _signature(self, rid, by_id, visiting=frozenset(), skip: str | None = None) -> tuple:
+        """What the run's reduction reads, as the watch knows it: rows and copied versions
+        (without ``skip``, the closing zero a provisional result goes without)."""
         row = by_id.get(rid)
         if row is None or rid in visiting:
             return (rid,)
         own = (row.text, tuple((rel, self.copied.get(rel)) for rel in row.logs))
-        deps = tuple(self._signature(n, by_id, visiting | {rid}) for n in row.needs)
+        deps = tuple(self._signature(n, by_id, visiting | {rid}) for n in row.needs if n != skip)
         named = tuple(self.copied.get(rel) for rel in self.named_files)
-        return (self.copied.get("campaign.toml"), named, self.lines[0], own, deps)
+        return (self.copied.get("campaign.toml"), named, self.lines[0], own, deps, skip)
 
     def _snapshot_runs(self, available: set[str]) -> bytes:
         """runs.csv of the snapshot: the rows of available runs; the others blanked, so that
@@ -909,6 +984,7 @@ class _Watcher:
                 progress=False,
                 figures=False,
                 extras=_live_figure_into,
+                provisional=True,
             )
         except InputError as exc:
             self.problems = tuple(str(p) for p in exc.problems)
@@ -946,10 +1022,15 @@ class _Watcher:
                 lines.append(RunLine(row.run, FAILED, row.config, reason=failed[row.run]))
                 continue
             if rec is not None:
+                provisional = bool(rec.get("provisional", False))
                 if state == COMPLETE:
                     flags = str(rec.get("flags") or "")
                     state = FLAGGED if flags else REDUCED
                     reason = reasons.get(row.run, "")
+                    if provisional:
+                        closing = self.pending.get(row.run, "the closing zero")
+                        wait = f"provisional until {closing} is in (opening zero only)"
+                        reason = f"{reason}; {wait}" if reason else wait
                 else:
                     reason = f"{reason} (results of the previous version)"
                 lines.append(
@@ -959,6 +1040,7 @@ class _Watcher:
                         str(rec.get("config", row.config)),
                         *(float(rec.get(k, math.nan)) for k in ("alpha", "CL", "CD", "u_CL")),
                         reason=reason,
+                        provisional=provisional,
                     )
                 )
                 continue

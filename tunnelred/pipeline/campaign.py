@@ -829,6 +829,7 @@ def reduce_campaign(
     report: bool = False,
     extras=None,
     force: bool = False,
+    provisional: bool = False,
 ) -> CampaignResults:
     """Reduce every data run of a campaign folder and write the results.
 
@@ -866,6 +867,11 @@ def reduce_campaign(
         switched to (``staging.file(name)`` gives each path); returns a dict name → path or None.
     force : bool
         Write into a non-empty folder that is not a tunnelred results folder.
+    provisional : bool
+        For the watch only: a data run whose closing zero has no row yet is reduced from its
+        opening zero and marked ``provisional`` (see
+        :func:`tunnelred.inputs.readers.open_campaign`); such runs are reduced in this process.
+        ``tunnelred reduce`` never sets it, so its results are all final.
 
     Returns
     -------
@@ -917,8 +923,9 @@ def reduce_campaign(
         run_ids=None if run_ids is None else tuple(run_ids),
         figures=figures,
         report=report,
+        provisional=provisional,
     )
-    campaign = open_campaign(path, check_logs=False)
+    campaign = open_campaign(path, check_logs=False, closing_zero_pending=provisional)
     shared = campaign.shared_problems()
     if shared:
         # every run would fail with these same problems: stop once, before OUT is touched
@@ -945,6 +952,7 @@ class _Settings:
     run_ids: tuple[str, ...] | None  # None: every data run
     figures: bool
     report: bool
+    provisional: bool = False  # closing zeros may be pending: reduced here, not in workers
 
 
 @dataclass
@@ -994,7 +1002,10 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
     bar.update(len(plan.failures) + len(outcomes))
     caching = cache is not None
     try:
-        if settings.dask is not None:
+        if settings.provisional:
+            # Workers open the campaign afresh, as `reduce` does: they would not know.
+            stream = _run_serial(campaign, todo, mc)
+        elif settings.dask is not None:
             token = _token(campaign, plan.keys)
             stream = _run_dask(str(settings.path), token, todo, mc, settings.workers, settings.dask)
         elif settings.workers == 1 or len(todo) <= 1:

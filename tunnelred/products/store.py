@@ -102,6 +102,7 @@ _VARIABLES_BASE: dict[str, tuple[str, str]] = {
     "dead_taps": ("", "taps excluded from the integration, ';'-separated"),
     "corr_CL_alpha": ("1", "correlation coefficient of CL with alpha"),
     "flags": ("", "raised quality flags, ';'-separated"),
+    "provisional": ("", "reduced by the watch before the closing zero was in (opening zero only)"),
     "flag_reasons": ("", "why each flag was raised, 'name: reason' separated by ' | '"),
     "Cp": ("1", "surface pressure coefficient, binned in azimuth"),
     "Cp_count": ("1", "samples in the azimuth bin"),
@@ -318,7 +319,8 @@ def results_to_dataset(
     names: dict[str, None] = {}
     for r in results:
         names.update(dict.fromkeys(r.values))
-    for derived in ("run", "config", "flags", "flag_reasons", *(f"flag_{n}" for n in FLAG_NAMES)):
+    derived_names = ("run", "config", "provisional", "flags", "flag_reasons")
+    for derived in (*derived_names, *(f"flag_{n}" for n in FLAG_NAMES)):
         names.pop(derived, None)
     names = dict.fromkeys(sorted(names, key=_column_order))
     unknown = [n for n in names if not _known(n)]
@@ -339,6 +341,9 @@ def results_to_dataset(
             array = np.array([np.nan if v is None else v for v in column], dtype=float)
         data[name] = xr.DataArray(array, dims="run")
 
+    # Only the watch reduces before a run's closing zero is in; every other result is final.
+    provisional = [bool(r.values.get("provisional", False)) for r in results]
+    data["provisional"] = xr.DataArray(np.array(provisional, dtype=bool), dims="run")
     # The flags are rebuilt from the Flag objects: the campaign may have added some to a run.
     flag_rows = [flag_columns(r.flags) for r in results]
     for text in ("flags", "flag_reasons"):
