@@ -230,36 +230,8 @@ def _read_runs(path: Path, problems: list[Problem]):
                     "Check the spelling; put remarks in notes.",
                 )
             )
-        elif base in _RUNS_WITH_UNITS:
-            dimension = _RUNS_WITH_UNITS[base]
-            try:
-                units[base] = conversion(unit or "", dimension) if unit else None
-            except ValueError as exc:
-                units[base] = None
-                problems.append(
-                    Problem(
-                        file,
-                        1,
-                        base,
-                        DIMENSIONS[dimension][2],
-                        str(exc),
-                        f"Write e.g. '{base} [{_example_unit(dimension)}]'.",
-                    )
-                )
-                continue
-            if unit is None:
-                problems.append(
-                    Problem(
-                        file,
-                        1,
-                        base,
-                        f"'{base} [unit]'",
-                        f"{brief(base)} without a unit",
-                        "Add the unit in brackets.",
-                    )
-                )
-        elif unit is not None:
-            problems.append(Problem(file, 1, base, f"{base!r} without a unit", brief(cell)))
+        else:
+            units[base] = column_unit(file, cell, base, unit, _RUNS_WITH_UNITS.get(base), problems)
     for name in _RUNS_REQUIRED:
         if name not in names:
             problems.append(Problem(file, 1, name, f"a column {name!r}", "none", "Add it."))
@@ -342,6 +314,46 @@ def _too_many_columns(file: str, count: int) -> Problem:
         f"{count} columns",
         "Check the separator and that this is the right file.",
     )
+
+
+def column_unit(
+    file: str, cell: str, base: str, unit: str | None, dimension: str | None, problems: list
+):
+    """The conversion of a header column's bracketed unit to SI, or None with a problem.
+
+    ``dimension`` is the column's (units.DIMENSIONS), None for a column that takes no unit;
+    ``cell`` the header cell as written. Shared by runs.csv and a test plan's PLAN.csv.
+    """
+    if dimension is None:
+        if unit is not None:
+            problems.append(Problem(file, 1, base, f"{base!r} without a unit", brief(cell)))
+        return None
+    if unit is None:
+        problems.append(
+            Problem(
+                file,
+                1,
+                base,
+                f"'{base} [unit]'",
+                f"{brief(base)} without a unit",
+                "Add the unit in brackets.",
+            )
+        )
+        return None
+    try:
+        return conversion(unit, dimension)
+    except ValueError as exc:
+        problems.append(
+            Problem(
+                file,
+                1,
+                base,
+                DIMENSIONS[dimension][2],
+                str(exc),
+                f"Write e.g. '{base} [{_example_unit(dimension)}]'.",
+            )
+        )
+        return None
 
 
 def _split_ids(text: str) -> tuple[str, ...]:

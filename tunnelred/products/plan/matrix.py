@@ -15,7 +15,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from tunnelred.common.errors import InputError, Problem
-from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
+from tunnelred.inputs.readers import column_unit
+from tunnelred.inputs.units import parse_header
 
 __all__ = ["PlannedPoint", "read_matrix", "DEFAULT_RATES", "MATRIX_COLUMNS"]
 
@@ -134,26 +135,9 @@ def _header(file: str, header: list[str], problems: list[Problem]):
             continue
         if base in names:
             problems.append(Problem(file, 1, base, "each column once", f"{base!r} twice"))
-        dimension = MATRIX_COLUMNS[base]
-        if dimension is not None:
-            if unit is None:
-                problems.append(
-                    Problem(
-                        file,
-                        1,
-                        base,
-                        f"'{base} [unit]'",
-                        f"{base!r} without a unit",
-                        f"Write e.g. '{base} [{DIMENSIONS[dimension][0]}]'.",
-                    )
-                )
-            else:
-                try:
-                    units[base] = conversion(unit, dimension)
-                except ValueError as exc:
-                    problems.append(Problem(file, 1, base, DIMENSIONS[dimension][2], str(exc)))
-        elif unit is not None:
-            problems.append(Problem(file, 1, base, f"{base!r} without a unit", repr(cell)))
+        converted = column_unit(file, cell, base, unit, MATRIX_COLUMNS[base], problems)
+        if converted is not None:
+            units[base] = converted
         names.append(base)
     for name in _REQUIRED:
         if name not in names:
