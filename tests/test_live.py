@@ -358,6 +358,30 @@ def test_a_run_is_provisional_before_its_closing_zero_and_final_after(source, tm
     assert np.all(provisional_u > ds["u_CL"].values[: len(block)])
 
 
+def test_a_closing_zero_cut_off_is_shown_not_hidden_behind_a_provisional_result(source, tmp_path):
+    """A closing zero still to be taken lets its runs go provisional; one whose log was cut off
+    mid-line is a fault to show on the runs that need it (docs/live.md), as before."""
+    campaign = _settled_campaign(source, tmp_path / "campaign")
+    rel = "logs/Z005_balance.csv"
+    (campaign / rel).write_bytes((campaign / rel).read_bytes()[:-7])
+    out = tmp_path / "out"
+    watch = Watch(campaign, out, Recorder())
+    try:
+        status = watch.wait_for(
+            lambda s: (
+                all(_states(s).get(r) in ("reduced", "flagged") for r in DATA_RUNS[:4])
+                and all(_states(s).get(r) == "truncated" for r in DATA_RUNS[4:])
+            ),
+            "the plates runs reduced and the bare runs shown truncated",
+        )
+        for run in DATA_RUNS[4:]:
+            line = _line(status, run)
+            assert not line.provisional and line.reason.startswith(f"Z005: {rel}:")
+        assert not any(r.provisional for r in status.runs)
+    finally:
+        watch.close()
+
+
 def test_reduce_never_gives_provisional_results(source, tmp_path):
     """Without the watch's option a missing closing zero is the readers' usual problem: the runs
     that name it fail (docs/input-format.md, zero column); with it they are provisional."""

@@ -915,8 +915,10 @@ class _Watcher:
             closing, pending = self._closing_zero(row, by_id), None
             for need in row.needs:
                 state, reason = self._judge(need, by_id, states, verdicts, (*chain, rid))
-                if state != COMPLETE and need == closing:
-                    pending = closing  # reduced provisionally from the opening zero meanwhile
+                if state == WAITING and need == closing:
+                    # Not taken yet: reduced provisionally from the opening zero meanwhile. A
+                    # closing zero cut off or unusable is shown on the run, as any other need.
+                    pending = closing
                 elif state != COMPLETE:
                     prefix = f"{need}: " if not reason.startswith(f"{need}:") else ""
                     verdict = (state, f"{prefix}{reason}")
@@ -1143,6 +1145,11 @@ def watch(
     - none of those files, nor campaign.toml and runs.csv, has changed size or modification
       time over polls spanning ``settle`` seconds (measured on this machine's clock, so a file
       server's clock does not matter).
+
+    A data run naming a zero before it and one after it does not wait for the one after: once
+    everything else is complete it is reduced *provisionally*, from the opening zero alone, its
+    loads' u widened by the drift the zero_shift check would let pass, and shown
+    ``PROVISIONAL``; it is reduced again, final, once the closing zero is complete (docs/live.md).
 
     A log that has settled without a line break at its end is *truncated* (the logger stopped
     mid-line): it is shown as such and waited for, never read as data. Complete inputs are copied
