@@ -39,6 +39,15 @@ def check_kind(result, argument, kind: str) -> None:
         np.testing.assert_array_equal(result["time"], argument["time"])
 
 
+def first_of_kind(func, arguments, kind: str) -> float:
+    """``func`` called on ``arguments`` given as ``kind``; its result checked to be of that kind
+    (:func:`check_kind`) and its first value returned."""
+    args = [as_kind(a, kind) for a in arguments]
+    result = func(*args)
+    check_kind(result, args[0], kind)
+    return result if kind == "scalar" else np.asarray(result)[0]
+
+
 # ICAO Doc 7488/3 (1993), sea level: T0 = 288.15 K, p0 = 101325 Pa.
 T0, P0 = 288.15, 101325.0
 
@@ -157,11 +166,7 @@ def test_density_broadcasts_over_monte_carlo_draws():
 )
 def test_input_kinds(func, arguments, reference, kind):
     # STYLE.md: every vectorised function takes scalar, ndarray, Series and DataArray alike.
-    args = [as_kind(a, kind) for a in arguments]
-    result = func(*args)
-    check_kind(result, args[0], kind)
-    first = result if kind == "scalar" else np.asarray(result)[0]
-    assert first == pytest.approx(reference, rel=2.4e-4)
+    assert first_of_kind(func, arguments, kind) == pytest.approx(reference, rel=2.4e-4)
 
 
 def test_dataarrays_on_different_times_are_refused():

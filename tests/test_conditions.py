@@ -9,7 +9,7 @@ import pytest
 import xarray as xr
 from scipy.optimize import brentq
 from scipy.signal import lfilter
-from test_air import KINDS, as_kind, check_kind
+from test_air import KINDS, first_of_kind
 
 from tunnelred.common.errors import ReductionError
 from tunnelred.inputs.config import (
@@ -413,11 +413,7 @@ def test_series_statistics_rejects_2d():
 def test_input_kinds(func, arguments, reference, kind):
     # STYLE.md: every vectorised function takes scalar, ndarray, Series and DataArray alike;
     # references carry 7 digits -> rtol 1e-6.
-    args = [as_kind(a, kind) for a in arguments]
-    result = func(*args)
-    check_kind(result, args[0], kind)
-    first = result if kind == "scalar" else np.asarray(result)[0]
-    assert first == pytest.approx(reference, rel=1e-6)
+    assert first_of_kind(func, arguments, kind) == pytest.approx(reference, rel=1e-6)
 
 
 def test_fft_length_is_scipys_next_fast_len():

@@ -151,17 +151,21 @@ def test_duplicate_tap_and_reserved_name(tmp_path):
     ]
 
 
+def _with_configuration_a_tolerances(lines: str) -> str:
+    """CAMPAIGN_TOML with a [configurations.A.tolerances] table holding ``lines``."""
+    return CAMPAIGN_TOML.replace(
+        '[configurations.A]\ndescription = "bare cylinder"',
+        '[configurations.A]\ndescription = "bare cylinder"\n\n'
+        f"[configurations.A.tolerances]\n{lines}",
+    )
+
+
 def test_configuration_tolerances_replace_the_campaign_ones(tmp_path):
     # A bare cylinder's mid-span pressure lift exceeds its whole-span balance lift (end effects):
     # the configuration states the expected difference; the other configuration keeps the default.
-    text = CAMPAIGN_TOML.replace(
-        '[configurations.A]\ndescription = "bare cylinder"',
-        '[configurations.A]\ndescription = "bare cylinder"\n\n'
-        "[configurations.A.tolerances]\ncl_agreement = 0.2\nspin_scatter = 0.05",
+    cfg, problems = load(
+        tmp_path, _with_configuration_a_tolerances("cl_agreement = 0.2\nspin_scatter = 0.05")
     )
-    path = tmp_path / "campaign.toml"
-    path.write_text(text, encoding="utf-8")
-    cfg, problems = load_config(path)
     assert problems == []
     assert cfg.tolerances_for("A").cl_agreement == 0.2
     assert cfg.tolerances_for("A").spin_scatter == 0.05
@@ -170,14 +174,7 @@ def test_configuration_tolerances_replace_the_campaign_ones(tmp_path):
 
 
 def test_configuration_tolerance_unknown_key_is_reported(tmp_path):
-    text = CAMPAIGN_TOML.replace(
-        '[configurations.A]\ndescription = "bare cylinder"',
-        '[configurations.A]\ndescription = "bare cylinder"\n\n'
-        "[configurations.A.tolerances]\nwobble = 1",
-    )
-    path = tmp_path / "campaign.toml"
-    path.write_text(text, encoding="utf-8")
-    _, problems = load_config(path)
+    _, problems = load(tmp_path, _with_configuration_a_tolerances("wobble = 1"))
     assert any(p.column == "configurations.A.tolerances.wobble" for p in problems), problems
 
 

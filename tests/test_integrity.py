@@ -289,17 +289,9 @@ def _fresh_entries(cache: Path, since: float) -> int:
     return sum(1 for e in cache.glob("*.npz") if e.stat().st_mtime > since)
 
 
-@pytest.mark.parametrize(
-    ("sig", "group", "status"),
-    [(signal.SIGINT, True, 130), (signal.SIGTERM, False, 143)],
-    ids=["ctrl-c", "sigterm"],
-)
-def test_an_interrupted_pool_stops_at_once_and_silently(sample_out, tmp_path, sig, group, status):
-    """Ctrl-C (SIGINT to the whole process group, as a terminal sends it) or SIGTERM (to the
-    command alone) while two processes reduce: the command ends within seconds with one
-    message, no worker prints anything, no process of it is left, and OUT keeps the previous
-    generation. Before the fix the pool was shut down waiting for its processes, which kept
-    running (and holding the terminal) after the command had gone."""
+def _pool_reducing_sample(sample_out: Path, tmp_path: Path):
+    """A copy of ``sample_out`` and a two-process ``--fresh`` reduction into it, caught once its
+    pool has written a few cache entries: (out, its generation before, the running process)."""
     out = tmp_path / "out"
     shutil.copytree(sample_out, out, symlinks=True)
     before = assert_one_generation(out)
@@ -316,7 +308,27 @@ def test_an_interrupted_pool_stops_at_once_and_silently(sample_out, tmp_path, si
         while _fresh_entries(out / ".cache", launched) < 3 and proc.poll() is None:
             assert time.monotonic() < deadline, "the reduction never got going"
             time.sleep(0.05)
-        assert proc.poll() is None, "finished before it could be interrupted"
+        assert proc.poll() is None, "finished before it could be stopped"
+    except BaseException:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.communicate()
+        raise
+    return out, before, proc
+
+
+@pytest.mark.parametrize(
+    ("sig", "group", "status"),
+    [(signal.SIGINT, True, 130), (signal.SIGTERM, False, 143)],
+    ids=["ctrl-c", "sigterm"],
+)
+def test_an_interrupted_pool_stops_at_once_and_silently(sample_out, tmp_path, sig, group, status):
+    """Ctrl-C (SIGINT to the whole process group, as a terminal sends it) or SIGTERM (to the
+    command alone) while two processes reduce: the command ends within seconds with one
+    message, no worker prints anything, no process of it is left, and OUT keeps the previous
+    generation. Before the fix the pool was shut down waiting for its processes, which kept
+    running (and holding the terminal) after the command had gone."""
+    out, before, proc = _pool_reducing_sample(sample_out, tmp_path)
+    try:
         sent = time.monotonic()
         if group:
             os.killpg(proc.pid, sig)
@@ -346,23 +358,8 @@ def test_a_killed_command_leaves_no_pool_process_behind(sample_out, tmp_path):
     cannot stop its pool, so the pool's processes must notice and end themselves. Before the
     fix the fork server and its workers waited on their queues for ever, holding the caller's
     pipes open (the kill loop above then hung in communicate())."""
-    out = tmp_path / "out"
-    shutil.copytree(sample_out, out, symlinks=True)
-    before = assert_one_generation(out)
-    launched = time.time()
-    proc = subprocess.Popen(
-        [*_command(SAMPLE, out), "--workers", "2", "--fresh"],
-        stdout=subprocess.PIPE,
-        stderr=subprocess.PIPE,
-        env=_env(),
-        start_new_session=True,
-    )
+    out, before, proc = _pool_reducing_sample(sample_out, tmp_path)
     try:
-        deadline = time.monotonic() + 120
-        while _fresh_entries(out / ".cache", launched) < 3 and proc.poll() is None:
-            assert time.monotonic() < deadline, "the reduction never got going"
-            time.sleep(0.05)
-        assert proc.poll() is None, "finished before it could be killed"
         proc.kill()
         proc.communicate(timeout=30)  # EOF: no process of the pool holds the pipes any more
     finally:

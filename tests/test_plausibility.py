@@ -31,6 +31,21 @@ def _check(root, capsys) -> tuple[int, str]:
     return status, capsys.readouterr().out
 
 
+def _density_when_relabelled(
+    campaign_dir, capsys, column: str, unit: str, wrong_unit: str, shown: str
+) -> float:
+    """``check`` after the tunnel log's ``column`` header says ``wrong_unit`` over data in
+    ``unit``: it fails, names line 2 of that file, the column and the value ``shown``, and
+    reports the air density found outside its range (returned)."""
+    _relabel(campaign_dir / "logs/d1_tun.csv", f"{column} [{unit}]", f"{column} [{wrong_unit}]")
+    status, out = _check(campaign_dir, capsys)
+    assert status == 1
+    assert f"logs/d1_tun.csv:2 [{column}]" in out and shown in out
+    density = re.search(r"air density from 0.5 to 1.7 kg/m\^3; found ([\d.]+) kg/m\^3", out)
+    assert density
+    return float(density.group(1))
+
+
 def test_fixture_campaign_is_plausible(campaign_dir):
     assert plausibility.campaign_problems(open_campaign(campaign_dir)) == []
 
@@ -39,24 +54,16 @@ def test_kelvin_header_on_celsius_data(campaign_dir, capsys):
     # 20 degC logged under [K]: 20 K, and ideal-gas rho = p / (R T) = 101325 / (287.05 * 20)
     # = 17.6 kg/m3 (R of dry air, ICAO Doc 7488/3): both far outside RANGES. (The CIPM-2007
     # moist-air formula, used far outside its range here, gives more; the order is the point.)
-    _relabel(campaign_dir / "logs/d1_tun.csv", "T [degC]", "T [K]")
-    status, out = _check(campaign_dir, capsys)
-    assert status == 1
-    assert "logs/d1_tun.csv:2 [T]" in out and "20 K" in out
-    density = re.search(r"air density from 0.5 to 1.7 kg/m\^3; found ([\d.]+) kg/m\^3", out)
-    assert density and float(density.group(1)) > 15.0
+    density = _density_when_relabelled(campaign_dir, capsys, "T", "degC", "K", "20 K")
+    assert density > 15.0
 
 
 def test_pascal_header_on_hectopascal_data(campaign_dir, capsys):
     # 1013.25 hPa logged under [Pa]: 1013 Pa, rho = 1013.25 / (287.05 * 293.15) = 0.0120 kg/m3
     # for dry air (ideal gas); the 45 % humidity, at 23 hPa of vapour pressure, is then most of
     # the gas and lowers it further (water's R is 461.5 J/(kg K)).
-    _relabel(campaign_dir / "logs/d1_tun.csv", "p_baro [hPa]", "p_baro [Pa]")
-    status, out = _check(campaign_dir, capsys)
-    assert status == 1
-    assert "logs/d1_tun.csv:2 [p_baro]" in out and "1013 Pa" in out
-    density = re.search(r"air density from 0.5 to 1.7 kg/m\^3; found ([\d.]+) kg/m\^3", out)
-    assert density and 0.0 < float(density.group(1)) < 0.013
+    density = _density_when_relabelled(campaign_dir, capsys, "p_baro", "hPa", "Pa", "1013 Pa")
+    assert 0.0 < density < 0.013
 
 
 def test_millibar_header_on_pascal_data_past_the_incompressible_range(campaign_dir, capsys):

@@ -44,6 +44,27 @@ TABLES = {
     "tolerances": "[reduction.tolerances]",
 }
 
+
+def _calibration_keys(table: str) -> tuple[Key, Key]:
+    """The two keys every instrument table has for its calibration certificate."""
+    return (
+        Key(
+            table,
+            "calibration_reference",
+            "string",
+            "the calibration certificate's reference",
+            "Calibration.reference",
+        ),
+        Key(
+            table,
+            "calibration_date",
+            "string or TOML date",
+            "the date of that calibration",
+            "Calibration.date",
+        ),
+    )
+
+
 # fmt: off
 KEYS: tuple[Key, ...] = (
     # [campaign]
@@ -109,38 +130,30 @@ KEYS: tuple[Key, ...] = (
     Key("balance", "alignment_angle", "angle", "balance x axis relative to tunnel x, positive toward +y", "BalanceConfig.alignment_angle"),  # noqa: E501
     Key("balance", "u_alignment_angle", "angle", "", "BalanceConfig.u_alignment_angle"),
     Key("balance", "calibration_file", "string", "a CSV inside the campaign folder with the calibration coefficients (linear, optional second order) and optionally their covariance, in place of matrix and second_order; the covariance is propagated in place of u_matrix_relative (docs/input-format.md)", "BalanceConfig.calibration_file"),  # noqa: E501
-    Key("balance", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("balance", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("balance"),
     # [scanner]
     Key("scanner", "full_scale", "pressure", "range of the pressure scanner (optional)", "InstrumentsConfig.scanner_full_scale"),  # noqa: E501
     Key("scanner", "u", "pressure", "type-B standard uncertainty of each tap reading", "InstrumentsConfig.u_scanner"),  # noqa: E501
-    Key("scanner", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("scanner", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("scanner"),
     # [pitot]
     Key("pitot", "u", "pressure", "of dp_pitot (or dp_contraction)", "InstrumentsConfig.u_pitot"),
     Key("pitot", "u_relative", "number", "relative part, added in quadrature", "InstrumentsConfig.u_pitot_relative"),  # noqa: E501
-    Key("pitot", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("pitot", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("pitot"),
     # [thermometer]
     Key("thermometer", "u", "temperature difference (K)", "", "InstrumentsConfig.u_thermometer"),
-    Key("thermometer", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("thermometer", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("thermometer"),
     # [barometer]
     Key("barometer", "u", "pressure", "", "InstrumentsConfig.u_barometer"),
-    Key("barometer", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("barometer", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("barometer"),
     # [hygrometer]
     Key("hygrometer", "u", "fraction", "", "InstrumentsConfig.u_hygrometer"),
-    Key("hygrometer", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("hygrometer", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("hygrometer"),
     # [tachometer]
     Key("tachometer", "u_relative", "number", "of the spin rate", "InstrumentsConfig.u_tachometer_relative"),  # noqa: E501
-    Key("tachometer", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("tachometer", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("tachometer"),
     # [encoder]
     Key("encoder", "u", "angle", "of the encoder angle", "InstrumentsConfig.u_encoder"),
-    Key("encoder", "calibration_reference", "string", "the calibration certificate's reference", "Calibration.reference"),  # noqa: E501
-    Key("encoder", "calibration_date", "string or TOML date", "the date of that calibration", "Calibration.date"),  # noqa: E501
+    *_calibration_keys("encoder"),
     # [tap]
     Key("tap", "name", "string", "the pressure-log column (unique; letters, digits, `_ . -`; not a fixed log name)", "TapConfig.name"),  # noqa: E501
     Key("tap", "azimuth", "angle", "tap azimuth θ from the windward point when the encoder reads 0 (stationary model: its fixed azimuth)", "TapConfig.azimuth"),  # noqa: E501

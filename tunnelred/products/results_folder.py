@@ -34,7 +34,7 @@ from pathlib import Path
 
 from tunnelred import __version__
 from tunnelred.common.errors import OutputFolderError, OutsideError
-from tunnelred.products.store import contained
+from tunnelred.products.store import contained, fsync_dir
 
 try:
     import fcntl
@@ -179,19 +179,6 @@ def _remove(path: Path) -> None:
             shutil.rmtree(path, ignore_errors=True)
 
 
-def _fsync_dir(path: Path) -> None:
-    try:
-        fd = os.open(path, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(fd)
-    except OSError:
-        pass
-    finally:
-        os.close(fd)
-
-
 class Staging:
     """A generation being written: files go into :attr:`path`; :meth:`carry` reuses old ones."""
 
@@ -326,7 +313,7 @@ class ResultsFolder:
         try:
             path.mkdir()
             yield staging
-            _fsync_dir(path)
+            fsync_dir(path)
             self._switch(path)
         except OSError as exc:
             _remove(path)
@@ -348,7 +335,7 @@ class ResultsFolder:
         except BaseException:
             _remove(link)
             raise
-        _fsync_dir(self.root)
+        fsync_dir(self.root)
 
 
 def _link_entries(root: Path, generation: Path | None) -> None:

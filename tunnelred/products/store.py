@@ -610,7 +610,8 @@ def _fsync_path(path: Path) -> None:
         os.fsync(handle.fileno())
 
 
-def _fsync_dir(path: Path) -> None:
+def fsync_dir(path: Path) -> None:
+    """Make a rename inside ``path`` durable (a no-op where the OS cannot sync a folder)."""
     # The rename itself is durable only once the folder is synced; not possible on every OS.
     try:
         fd = os.open(path, os.O_RDONLY)
@@ -704,7 +705,7 @@ def atomic_path(path) -> Iterator[Path]:
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
-    _fsync_dir(path.parent)
+    fsync_dir(path.parent)
 
 
 def atomic_write_bytes(path, data: bytes | Iterable[bytes]) -> Path:

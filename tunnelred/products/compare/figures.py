@@ -76,14 +76,7 @@ def plot_sweeps(
             # The measured α themselves are on the grid, so a line ends on the point before a gap.
             grid = np.union1d(np.linspace(lo, hi, 101), alpha[np.isfinite(alpha)])
             curve = on_grid(sweep, name, grid, max_gap=limit, include_flagged=include_flagged)
-            ax.fill_between(
-                curve.alpha,
-                curve.value - k * curve.u,
-                curve.value + k * curve.u,
-                color=style.color,
-                alpha=0.2,
-                linewidth=0,
-            )
+            _band(ax, curve.alpha, curve.value, k * curve.u, style.color)
             ax.plot(
                 curve.alpha,
                 curve.value,
@@ -116,6 +109,13 @@ def plot_sweeps(
     return ax
 
 
+def _band(ax: Axes, x, centre, half_width, color) -> None:
+    """The shaded band centre ± half_width that sweeps and differences are drawn with."""
+    ax.fill_between(
+        x, centre - half_width, centre + half_width, color=color, alpha=0.2, linewidth=0
+    )
+
+
 def plot_difference(d: Difference, *, ax: Axes | None = None) -> Axes:
     """A difference against α with its k = 2 band; significant points filled, others open.
 
@@ -136,14 +136,7 @@ def plot_difference(d: Difference, *, ax: Axes | None = None) -> Axes:
         ax = _axes(ax)
         ax.axhline(0.0, color="#777777", linewidth=0.8)
         if d.method == "grid":
-            ax.fill_between(
-                d.alpha,
-                d.delta - k * d.u,
-                d.delta + k * d.u,
-                color=style.color,
-                alpha=0.2,
-                linewidth=0,
-            )
+            _band(ax, d.alpha, d.delta, k * d.u, style.color)
             ax.plot(d.alpha, d.delta, color=style.color, linestyle=style.linestyle)
         else:
             # Pairs are separate spin ratios: bars, and no line drawn between them.

@@ -83,22 +83,29 @@ def _hysteresis_pairs(sweeps: list[Sweep]) -> list[tuple[Sweep, Sweep]]:
     return pairs
 
 
+def _pair_columns(a: Sweep, b: Sweep) -> dict:
+    """The columns naming the two sweeps of a comparison row, a's beside b's."""
+    return {
+        "a": a.key,
+        "b": b.key,
+        "config_a": a.config,
+        "config_b": b.config,
+        "speed_a": a.speed,
+        "speed_b": b.speed,
+        "Re_a": a.Re,
+        "Re_b": b.Re,
+        "leg_a": a.leg,
+        "leg_b": b.leg,
+    }
+
+
 def _difference_rows(kind: str, a: Sweep, b: Sweep, d: Difference) -> pd.DataFrame:
     keep = d.covered
     return pd.DataFrame(
         {
             "kind": kind,
             "method": d.method,
-            "a": a.key,
-            "b": b.key,
-            "config_a": a.config,
-            "config_b": b.config,
-            "speed_a": a.speed,
-            "speed_b": b.speed,
-            "Re_a": a.Re,
-            "Re_b": b.Re,
-            "leg_a": a.leg,
-            "leg_b": b.leg,
+            **_pair_columns(a, b),
             "quantity": d.name,
             "alpha": d.alpha[keep],
             "alpha_a": d.alpha_a[keep],
@@ -120,16 +127,7 @@ def _figure_rows(kind: str, a: Sweep, b: Sweep, fa: dict, fb: dict) -> pd.DataFr
         {
             "kind": kind,
             "method": "figure",
-            "a": a.key,
-            "b": b.key,
-            "config_a": a.config,
-            "config_b": b.config,
-            "speed_a": a.speed,
-            "speed_b": b.speed,
-            "Re_a": a.Re,
-            "Re_b": b.Re,
-            "leg_a": a.leg,
-            "leg_b": b.leg,
+            **_pair_columns(a, b),
             "quantity": names,
             "alpha": np.nan,
             "alpha_a": np.nan,
