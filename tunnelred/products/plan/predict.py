@@ -63,7 +63,17 @@ class _Planned:
     outside_prior: bool
 
 
-def _nominal(cfg, point: PlannedPoint, prior: Prior, air_state: AirState) -> _Planned:
+def _nominal(
+    cfg,
+    point: PlannedPoint,
+    prior: Prior,
+    air_state: AirState,
+    scale=(1.0, 1.0, 1.0),
+    alpha_free: float = 1.0,
+) -> _Planned:
+    """The point's nominal state; ``scale`` turns the prior's free-air CL, CD, CM into the
+    tunnel's (uncorrected over corrected, from the run model's own wall correction), and the
+    prior is read at the free-air spin ratio, ``alpha_free`` times the tunnel's."""
     m, t = cfg.model, cfg.tunnel
     radius = m.diameter / 2.0
     rho = float(air.density(air_state.T, air_state.p_baro, air_state.RH))
@@ -74,7 +84,8 @@ def _nominal(cfg, point: PlannedPoint, prior: Prior, air_state: AirState) -> _Pl
         dp = dp / t.contraction_factor
     omega = point.omega(radius)
     alpha = float(conditions.spin_ratio(omega, radius, U))
-    cl, cd, cm, outside = prior.coefficients(point.config, alpha)
+    cl, cd, cm, outside = prior.coefficients(point.config, alpha * alpha_free)
+    cl, cd, cm = cl * scale[0], cd * scale[1], cm * scale[2]
     area = m.diameter * m.span
     lift, drag, torque = cl * q * area, cd * q * area, cm * q * area * radius
     phi = cfg.instruments.balance.alignment_angle - t.flow_angle
@@ -216,6 +227,17 @@ def predict_point(
 ) -> PointPrediction:
     """Predict one planned point (docs/plan.md lists what each value means)."""
     nom = _nominal(cfg, point, prior, air_state)
+    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, point.record)
+    linear = _propagate(cfg, inputs, correlation, taps)
+    # The prior is free air, the balance sees the tunnel: one step of the run model's own
+    # correction backwards (its second-order remainder is far below the prior's own doubt).
+    scale = []
+    for name in ("CL", "CD", "CM"):
+        corrected = _scalar(linear.values[name])
+        raw = _scalar(linear.values[f"{name}_uncorrected"])
+        scale.append(raw / corrected if corrected and np.isfinite(raw / corrected) else 1.0)
+    alpha_free = _scalar(linear.values["alpha"]) / nom.alpha if nom.alpha else 1.0
+    nom = _nominal(cfg, point, prior, air_state, tuple(scale), alpha_free)
     inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, point.record)
     linear = _propagate(cfg, inputs, correlation, taps)
     tol = cfg.tolerances_for(point.config)
