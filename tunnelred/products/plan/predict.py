@@ -256,13 +256,14 @@ def predict_point(
     for name in PREDICTED:
         values[f"u_{name}"] = _scalar(linear.u[name])
         values[f"Uk2_{name}"] = 2.0 * values[f"u_{name}"]
-    values["u_Cp_max"] = np.nan
+    values["u_Cp_max"] = values["u_Cp_median"] = np.nan
     u_cp = None
     theta = None
     if taps is not None:
         u_cp = np.asarray(linear.u["Cp"], dtype=float).reshape(-1)
         theta = taps[3]
         values["u_Cp_max"] = float(np.max(u_cp))
+        values["u_Cp_median"] = float(np.median(u_cp))
     values["Uk2_Cp_max"] = 2.0 * values["u_Cp_max"]
     warnings: list[str] = []
 
