@@ -255,6 +255,11 @@ def test_plan_command(simulated, tmp_path, capsys):
     bad = _matrix(tmp_path, rows[:1] + ["ok,plates,fast,1,4"])
     assert main(["plan", str(folder), "--matrix", bad, "-o", str(tmp_path / "o2")]) == 1
     assert "PLAN.csv:2 [speed_set]" in capsys.readouterr().out
+    # A prior that is neither built in nor a folder is named as such.
+    matrix = _matrix(tmp_path, rows)
+    assert main(["plan", str(folder), "--matrix", matrix, "-o", str(tmp_path / "o3"),
+                 "--prior", "measured"]) == 1  # fmt: skip
+    assert "prior: expected one of illustrative, potential" in capsys.readouterr().out
     assert not (tmp_path / "o2").exists()
 
 

@@ -565,18 +565,20 @@ def _add_plan(subparsers) -> None:
     p.add_argument("--target", metavar="NAME=U",
                    help="wanted standard uncertainty of an output, e.g. CL=0.01: the record "
                    "length that reaches it is reported per point")  # fmt: skip
-    p.add_argument("--eps-limit", type=float, default=0.05,
+    p.add_argument("--eps-limit", type=float, default=0.05, metavar="EPS",
                    help="total blockage eps above which to warn (default 0.05)")  # fmt: skip
     # Names only: importing the plan (pandas, xarray) would slow every 'tunnelred --help'.
     noise = p.add_argument_group(
         "noise levels assumed (each default, its unit and meaning: docs/plan.md)"
     )
     for name in _NOISE_OPTIONS:
-        noise.add_argument(f"--{name.replace('_', '-')}", type=float, dest=f"noise_{name}")
+        noise.add_argument(
+            f"--{name.replace('_', '-')}", type=float, dest=f"noise_{name}", metavar="X"
+        )
     air = p.add_argument_group("air assumed (default 293.15 K, 101325 Pa, RH 0.5)")
-    air.add_argument("--temperature", type=float, help="[K]")
-    air.add_argument("--pressure", type=float, help="barometric pressure [Pa]")
-    air.add_argument("--humidity", type=float, help="relative humidity, fraction [-]")
+    air.add_argument("--temperature", type=float, metavar="K", help="[K]")
+    air.add_argument("--pressure", type=float, metavar="PA", help="barometric pressure [Pa]")
+    air.add_argument("--humidity", type=float, metavar="RH", help="relative humidity, fraction [-]")
     p.set_defaults(run=_run_plan)
 
 

@@ -74,6 +74,16 @@ def make_prior(prior: str | Path, end_plates: dict[str, bool], configs) -> Prior
             "potential": "potential flow CL = -2 pi alpha (an upper bound), CD = CM = 0",
         }[prior]
         return Prior(prior, text, dict(end_plates))
+    if not Path(prior).exists():
+        raise InputError(
+            Problem(
+                "prior",
+                None,
+                None,
+                f"one of {', '.join(PRIOR_KINDS)}, or a results folder or results.nc",
+                repr(str(prior)),
+            )
+        )
     return _results_prior(Path(prior), configs)
 
 
