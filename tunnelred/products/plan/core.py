@@ -211,10 +211,18 @@ def write_plan(result: PlanResult, out) -> list[Path]:
 
 
 def read_plan(folder) -> tuple[pd.DataFrame, dict] | None:
-    """A plan in ``folder`` or in its ``plan/`` subfolder (plan.csv and plan.json), or None."""
+    """A plan in ``folder`` or in its ``plan/`` subfolder (plan.csv and plan.json), or None.
+
+    Raises InputError when the plan's files cannot be read.
+    """
     folder = Path(folder)
     if (folder / PLAN_SUBFOLDER / "plan.json").is_file():
         folder = folder / PLAN_SUBFOLDER
     if not (folder / "plan.csv").is_file() or not (folder / "plan.json").is_file():
         return None
-    return pd.read_csv(folder / "plan.csv"), json.loads((folder / "plan.json").read_text())
+    try:
+        return pd.read_csv(folder / "plan.csv"), json.loads((folder / "plan.json").read_text())
+    except (OSError, ValueError) as exc:  # a damaged plan is said, never a traceback
+        raise InputError(
+            Problem(str(folder), None, None, "a plan written by tunnelred plan", str(exc))
+        ) from None
