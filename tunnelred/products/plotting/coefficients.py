@@ -34,8 +34,13 @@ def _check_name(ds: xr.Dataset, name: str) -> None:
     if name not in COEFFICIENT_LABELS or name == "alpha":
         known = ", ".join(k for k in COEFFICIENT_LABELS if k != "alpha")
         raise ValueError(f"cannot plot {name!r} against alpha; choose one of {known}")
-    if name not in ds:
-        raise ValueError(f"the results hold no {name!r}")
+    _require(ds, name)
+
+
+def _require(ds: xr.Dataset, *names: str) -> None:
+    for name in names:
+        if name not in ds:
+            raise ValueError(f"the results hold no {name!r}")
 
 
 def _theory_lines(ax: Axes, ds: xr.Dataset, name: str) -> None:
@@ -267,9 +272,7 @@ def plot_drag_polar(results, *, ax: Axes | None = None, by: str = "series") -> A
         Wall-corrected values; flagged runs ringed; each sweep leg joined in order of α.
     """
     ds = results_dataset(results)
-    for name in ("CL", "CD"):
-        if name not in ds:
-            raise ValueError(f"the results hold no {name!r}")
+    _require(ds, "CL", "CD")
     with house_style():
         ax = new_axes(ax)
         _draw_runs(ax, ds, "CD", "CL", styled(group_runs(ds, by)))
@@ -298,9 +301,7 @@ def plot_pressure_lift(results, *, ax: Axes | None = None, by: str = "series") -
         points are compared with the line CL_p = CL, not followed along α).
     """
     ds = results_dataset(results)
-    for name in ("CL", "CL_p"):
-        if name not in ds:
-            raise ValueError(f"the results hold no {name!r}")
+    _require(ds, "CL", "CL_p")
     both = np.isfinite(run_values(ds, "CL")) & np.isfinite(run_values(ds, "CL_p"))
     if not both.any():
         raise ValueError("no run has both CL and CL_p")

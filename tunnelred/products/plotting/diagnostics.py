@@ -77,6 +77,19 @@ def plot_run_diagnostics(campaign, run: str, *, fig: Figure | None = None) -> Fi
     return fig
 
 
+def _tolerance_band(ax: Axes, mean: float, scale: float, tol, name: str, color) -> None:
+    """The band mean ± scale × the tolerance ``name`` (a fraction), labelled with it."""
+    fraction = getattr(tol, name)
+    band = scale * fraction
+    ax.axhspan(
+        mean - band,
+        mean + band,
+        color=color,
+        alpha=0.12,
+        label=f"mean ± {100 * fraction:g} % ({name} tolerance)",
+    )
+
+
 def _alpha_panel(ax: Axes, data, flow, radius: float, tol, run: str) -> None:
     """α(t) of the run with its mean and the spin_scatter band (or why there is none)."""
     style = HOUSE_STYLE[0]
@@ -88,14 +101,7 @@ def _alpha_panel(ax: Axes, data, flow, radius: float, tol, run: str) -> None:
         mean = steady.alpha_mean
         ax.plot(steady.time, steady.alpha, color=style.color, linewidth=0.8)
         ax.axhline(mean, color=THEORY_COLOR, linewidth=1.0, label=f"mean {mean:.4f}")
-        band = abs(mean) * tol.spin_scatter
-        ax.axhspan(
-            mean - band,
-            mean + band,
-            color=style.color,
-            alpha=0.12,
-            label=f"mean ± {100 * tol.spin_scatter:g} % (spin_scatter tolerance)",
-        )
+        _tolerance_band(ax, mean, abs(mean), tol, "spin_scatter", style.color)
         ax.set_title(
             f"Spin ratio, run {run} ({source}): scatter {100 * steady.scatter:.2f} %, "
             f"drift {100 * steady.drift:+.2f} %"
@@ -115,14 +121,7 @@ def _speed_panel(ax: Axes, flow, tol) -> None:
         stats = conditions.series_statistics(U, t)
         ax.plot(t, U, color=style.color, linewidth=0.8)
         ax.axhline(stats.mean, color=THEORY_COLOR, linewidth=1.0)
-        band = stats.mean * tol.speed_drift
-        ax.axhspan(
-            stats.mean - band,
-            stats.mean + band,
-            color=style.color,
-            alpha=0.12,
-            label=f"mean ± {100 * tol.speed_drift:g} % (speed_drift tolerance)",
-        )
+        _tolerance_band(ax, stats.mean, stats.mean, tol, "speed_drift", style.color)
         ax.set_title(
             f"Free-stream speed (uncorrected): mean {stats.mean:.2f} m/s, "
             f"drift {100 * stats.drift / stats.mean:+.2f} %"

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from tunnelred.products import store
+from tunnelred.products import plotting, store
 
 
 class ReportData:
@@ -38,6 +38,10 @@ class ReportData:
     @property
     def runs(self) -> list[str]:
         return [str(r) for r in self.ds["run"].values]
+
+    def groups(self, by: str) -> list[tuple[str, np.ndarray]]:
+        """The runs grouped as the figures group them (:func:`plotting.group_runs`)."""
+        return plotting.group_runs(self.ds, by)
 
     def column(self, name: str) -> np.ndarray:
         if name not in self.table:

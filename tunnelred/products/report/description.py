@@ -68,8 +68,7 @@ def run_log_section(b: Builder, data: ReportData) -> None:
     ds = data.ds
     b.section("Test matrix and run log")
     alpha = data.column("alpha")
-    configs = plotting.group_runs(ds, "config")
-    speeds = plotting.group_runs(ds, "speed")
+    configs, speeds = data.groups("config"), data.groups("speed")
     rows = []
     for label, idx in configs:
         row = [label or "(none)"]

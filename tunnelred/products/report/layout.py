@@ -70,75 +70,40 @@ def register_fonts() -> dict[str, str]:
     return faces
 
 
+#: The paragraph styles besides "body", each derived from it: ReportLab's ParagraphStyle
+#: attributes, with ``face`` naming one of :func:`register_fonts`' faces for its fontName.
+_PARAGRAPH_STYLES: dict[str, dict] = {
+    "intro": dict(keepWithNext=1),
+    "small": dict(fontSize=7.5, leading=9.5),
+    "cell": dict(fontSize=7.2, leading=9, spaceAfter=0),
+    "head": dict(face="bold", fontSize=7.5, leading=9),
+    "caption": dict(face="italic", fontSize=8, leading=10, spaceAfter=8),
+    "table_caption": dict(face="italic", fontSize=8, leading=10, spaceAfter=3),
+    "h1": dict(face="bold", fontSize=14, leading=18, spaceBefore=6, spaceAfter=8, keepWithNext=1,
+               textColor=colors.HexColor("#1b3a5c")),
+    "h2": dict(face="bold", fontSize=10.5, leading=14, spaceBefore=8, spaceAfter=4, keepWithNext=1),
+    "title": dict(face="bold", fontSize=22, leading=28, alignment=TA_CENTER, spaceAfter=10),
+    "subtitle": dict(fontSize=12, leading=16, alignment=TA_CENTER, spaceAfter=4),
+    "caution": dict(fontSize=9, leading=12, leftIndent=6, spaceAfter=4),
+    "mono": dict(face="mono", fontSize=6.5, leading=8),
+    "toc": dict(fontSize=10, leading=15),
+    "formula": dict(leftIndent=14, spaceAfter=3),
+    "end": dict(face="bold", alignment=TA_CENTER, spaceBefore=6),
+}  # fmt: skip
+
+
 def paragraph_styles(faces: dict[str, str]) -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
     body = ParagraphStyle(
         "body", parent=base["BodyText"], fontName=faces["body"], fontSize=9, leading=12
     )
-    return {
-        "body": body,
-        "intro": ParagraphStyle("intro", parent=body, keepWithNext=1),
-        "small": ParagraphStyle("small", parent=body, fontSize=7.5, leading=9.5),
-        "cell": ParagraphStyle("cell", parent=body, fontSize=7.2, leading=9, spaceAfter=0),
-        "head": ParagraphStyle(
-            "head", parent=body, fontName=faces["bold"], fontSize=7.5, leading=9
-        ),
-        "caption": ParagraphStyle(
-            "caption", parent=body, fontName=faces["italic"], fontSize=8, leading=10, spaceAfter=8
-        ),
-        "table_caption": ParagraphStyle(
-            "table_caption",
-            parent=body,
-            fontName=faces["italic"],
-            fontSize=8,
-            leading=10,
-            spaceAfter=3,
-        ),
-        "h1": ParagraphStyle(
-            "h1",
-            parent=body,
-            fontName=faces["bold"],
-            fontSize=14,
-            leading=18,
-            spaceBefore=6,
-            spaceAfter=8,
-            keepWithNext=1,
-            textColor=colors.HexColor("#1b3a5c"),
-        ),
-        "h2": ParagraphStyle(
-            "h2",
-            parent=body,
-            fontName=faces["bold"],
-            fontSize=10.5,
-            leading=14,
-            spaceBefore=8,
-            spaceAfter=4,
-            keepWithNext=1,
-        ),
-        "title": ParagraphStyle(
-            "title",
-            parent=body,
-            fontName=faces["bold"],
-            fontSize=22,
-            leading=28,
-            alignment=TA_CENTER,
-            spaceAfter=10,
-        ),
-        "subtitle": ParagraphStyle(
-            "subtitle", parent=body, fontSize=12, leading=16, alignment=TA_CENTER, spaceAfter=4
-        ),
-        "caution": ParagraphStyle(
-            "caution", parent=body, fontSize=9, leading=12, leftIndent=6, spaceAfter=4
-        ),
-        "mono": ParagraphStyle(
-            "mono", parent=body, fontName=faces["mono"], fontSize=6.5, leading=8
-        ),
-        "toc": ParagraphStyle("toc", parent=body, fontSize=10, leading=15),
-        "formula": ParagraphStyle("formula", parent=body, leftIndent=14, spaceAfter=3),
-        "end": ParagraphStyle(
-            "end", parent=body, fontName=faces["bold"], alignment=TA_CENTER, spaceBefore=6
-        ),
-    }
+    styles = {"body": body}
+    for name, attributes in _PARAGRAPH_STYLES.items():
+        attributes = dict(attributes)
+        if "face" in attributes:
+            attributes["fontName"] = faces[attributes.pop("face")]
+        styles[name] = ParagraphStyle(name, parent=body, **attributes)
+    return styles
 
 
 def canvas_class(title: str, footer: str, faces: dict[str, str]):

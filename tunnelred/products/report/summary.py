@@ -6,7 +6,6 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
-from tunnelred.products import plotting
 from tunnelred.products.report.data import ReportData, run_flags
 from tunnelred.products.report.formatting import K, fixed, format_uncertain
 from tunnelred.products.report.layout import Builder
@@ -81,8 +80,7 @@ def summary_section(b: Builder, data: ReportData) -> None:
     ds = data.ds
     b.section("Summary")
     alpha = data.column("alpha")
-    configs = plotting.group_runs(ds, "config")
-    speeds = plotting.group_runs(ds, "speed")
+    configs, speeds = data.groups("config"), data.groups("speed")
     b.add(
         b.p(
             f"{ds.sizes['run']} data runs in {len(configs)} configuration(s) at "
