@@ -317,6 +317,22 @@ def test_check_finds_values_too_large_to_reduce(camp, value):
     assert "magnitude at most" in problem.expected
 
 
+@pytest.mark.parametrize(
+    ("column", "value", "expected"),
+    [
+        (9, "1" + "0" * 300, "a value of magnitude at most 1e+12 (SI)"),
+        (10, "1e300", "a value of magnitude at most 1e+12 (SI)"),
+        (9, "1e400", "a finite number"),
+    ],
+)
+def test_check_finds_set_points_too_large_or_not_finite(camp, column, value, expected):
+    set_cell(camp / "runs.csv", 7, column, value)  # R002's speed_set [m/s] or spin_set [rpm]
+    (problem,) = problems(camp)
+    assert (problem.file, problem.line) == ("runs.csv", 8)
+    assert problem.column == ("speed_set", "spin_set")[column - 9]
+    assert problem.expected == expected
+
+
 def _add_pressure_with(root: Path, merges: dict[str, str]) -> None:
     lines = lines_of(root / "runs.csv")
     lines[0] = lines[0].replace(",notes", ",pressure_with,notes")

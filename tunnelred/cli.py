@@ -217,7 +217,7 @@ def _add_reduce(subparsers) -> None:
         "  tunnelred reduce big-campaign -o out --workers 2\n"
         "  tunnelred reduce big-campaign -o out --dask tcp://scheduler:8786\n\n"
         "exit status: 0 every run reduced, 1 some runs failed (see OUT/failures.csv), "
-        "2 usage error.",
+        "2 usage error, or a campaign problem that stops every run (nothing is written).",
         formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")

@@ -35,6 +35,7 @@ from tunnelred.inputs.files import (
 )
 from tunnelred.inputs.logs import (
     _NUMBER,
+    MAX_MAGNITUDE,
     LogInfo,
     _encoding_problem,
     _example_unit,
@@ -471,6 +472,10 @@ def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bo
                 set_points[name] = None
                 continue
             value = float(units[name](float(text)))
+            if abs(value) > MAX_MAGNITUDE:  # the logs' bound: no set point is near it
+                bad(name, f"a value of magnitude at most {MAX_MAGNITUDE:g} (SI)", brief(text))
+                set_points[name] = None
+                continue
             set_points[name] = value * _RPM_PER_RAD_S if name == "spin_set" else value
         speed = set_points["speed_set"]
         if speed is not None and (speed < 0 or (kind in ("zero", "tare") and speed != 0)):
