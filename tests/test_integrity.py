@@ -113,7 +113,8 @@ def _kill_loop(campaign, tmp_path, iterations, seed):
         except subprocess.TimeoutExpired:
             hangs.append(sig)  # did not stop after the signal: killed, OUT must still be whole
             proc.kill()
-            _, err = proc.communicate()
+            # Bounded too: a pool process left behind would hold the pipe (the test would hang).
+            _, err = proc.communicate(timeout=30)
         kills += proc.returncode != 0
         if sig == signal.SIGINT and proc.returncode == 130:
             assert b"Traceback" not in err  # workers silent, one message
