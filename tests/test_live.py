@@ -28,6 +28,8 @@ from tunnelred.demo.spec import Fault, demo_spec
 from tunnelred.demo.writer import make_campaign
 from tunnelred.inputs.config import load_config
 from tunnelred.live import watcher as live
+from tunnelred.live.folder import whole_lines
+from tunnelred.live.status import write_status
 from tunnelred.products import store
 
 SETTLE = 0.3  # [s] shortened from the 2 s default to keep the file fast
@@ -528,10 +530,10 @@ def test_ctrl_c_leaves_outputs_whole(source, tmp_path):
 def test_whole_lines_drop_a_row_being_written():
     # docs/input-format.md: one row a run; RFC 4180 §2 rule 6: a quoted field may hold a line
     # break, so a break inside an open quote does not end the row.
-    assert live._whole_lines(b"run,kind\nR1,data\nR2,da") == b"run,kind\nR1,data\n"
-    assert live._whole_lines(b'run,notes\nR1,"two\nlines') == b"run,notes\n"
-    assert live._whole_lines(b'run,notes\nR1,"two\nlines"\r\n') == b'run,notes\nR1,"two\nlines"\r\n'
-    assert live._whole_lines(b"run,kind") == b""
+    assert whole_lines(b"run,kind\nR1,data\nR2,da") == b"run,kind\nR1,data\n"
+    assert whole_lines(b'run,notes\nR1,"two\nlines') == b"run,notes\n"
+    assert whole_lines(b'run,notes\nR1,"two\nlines"\r\n') == b'run,notes\nR1,"two\nlines"\r\n'
+    assert whole_lines(b"run,kind") == b""
 
 
 def _status() -> live.Status:
@@ -580,7 +582,7 @@ def test_plain_view_appends_each_change_once():
 
 def test_status_round_trips_through_json(tmp_path):
     status = _status()
-    live._write_status(tmp_path, status)
+    write_status(tmp_path, status)
     back = live.read_status(tmp_path)
     assert back.runs[2].state == "truncated" and np.isnan(back.runs[2].CL)
     assert back.runs[1] == status.runs[1]
@@ -607,7 +609,7 @@ def test_live_view_html_and_display(tmp_path, monkeypatch):
         return Handle()
 
     monkeypatch.setattr(display_module, "display", display)
-    live._write_status(tmp_path, _status())
+    write_status(tmp_path, _status())
     view = live.LiveView(tmp_path)
     view.update()
     view.update()  # the second call refreshes the same display, it does not add one
