@@ -63,7 +63,7 @@ K = 2.0  # coverage factor of the claim (JCGM 100:2008 §6.3)
 OUT = Path(__file__).with_name("coverage.json")
 
 
-def study_spec(case: str, seed: int, seconds: float = 4.0):
+def study_spec(case: str, seed: int, seconds: float = 4.0, alphas=ALPHAS):
     """The fault-free sweep of one case, its systematic errors drawn (tunnelred.demo SynthSpec)."""
     taps, diameter, speed, delays, tares = CASES[case]
     demo = demo_spec(seed)
@@ -72,10 +72,10 @@ def study_spec(case: str, seed: int, seconds: float = 4.0):
         configurations=demo.configurations[:1],
         diameter=diameter,
         speeds=(speed,),
-        spin_ratios_up=ALPHAS,
+        spin_ratios_up=tuple(alphas),
         spin_ratios_down=(),
         pressure_speeds=(speed,),
-        pressure_spin_ratios=ALPHAS,
+        pressure_spin_ratios=tuple(alphas),
         repeat_point=None,
         repeat_count=0,
         tare_rpms=tares,
@@ -90,10 +90,12 @@ def study_spec(case: str, seed: int, seconds: float = 4.0):
     )
 
 
-def campaign_rows(case: str, seed: int, folder: Path, seconds: float = 4.0) -> list[dict]:
+def campaign_rows(
+    case: str, seed: int, folder: Path, seconds: float = 4.0, alphas=ALPHAS
+) -> list[dict]:
     """One campaign written and reduced: per data run, each quantity's error and u, the Cp bins'
     errors and u, and the flags raised."""
-    truth = make_campaign(folder, study_spec(case, seed, seconds)).set_index("run")
+    truth = make_campaign(folder, study_spec(case, seed, seconds, alphas)).set_index("run")
     campaign = open_campaign(folder)
     rows = []
     for run in truth.index:
@@ -167,13 +169,13 @@ def flag_table(rows: list[dict]) -> pd.DataFrame:
     return pd.DataFrame(records)
 
 
-def run_study(seeds, cases=tuple(CASES), seconds: float = 4.0) -> list[dict]:
+def run_study(seeds, cases=tuple(CASES), seconds: float = 4.0, alphas=ALPHAS) -> list[dict]:
     rows: list[dict] = []
     with tempfile.TemporaryDirectory() as tmp:
         for case in cases:
             for seed in seeds:
                 folder = Path(tmp) / f"{case.replace(' ', '_')}_{seed}"
-                rows += campaign_rows(case, seed, folder, seconds)
+                rows += campaign_rows(case, seed, folder, seconds, alphas)
     return rows
 
 
@@ -183,15 +185,19 @@ def main() -> None:
     parser.add_argument("--first-seed", type=int, default=0)
     parser.add_argument("--seconds", type=float, default=4.0, help="record length [s]")
     parser.add_argument("--out", type=Path, default=OUT)
+    parser.add_argument(
+        "--alphas", type=float, nargs="+", default=ALPHAS, help="nominal spin ratios swept"
+    )
+    parser.add_argument("--cases", nargs="+", default=list(CASES), choices=list(CASES))
     args = parser.parse_args()
     started = time.time()
     seeds = range(args.first_seed, args.first_seed + args.seeds)
-    rows = run_study(seeds, seconds=args.seconds)
+    rows = run_study(seeds, tuple(args.cases), seconds=args.seconds, alphas=args.alphas)
     by_case = coverage_table(rows, "case")
     by_alpha = coverage_table(rows, "alpha_nominal")
     flags = flag_table(rows)
     wide = by_case.pivot(index="quantity", columns="case", values="within_2u")
-    wide = wide.reindex(index=[*QUANTITIES, "Cp"], columns=[*CASES, "all"])
+    wide = wide.reindex(index=[*QUANTITIES, "Cp"], columns=[*args.cases, "all"])
     median = by_case[by_case["case"] == "all"].set_index("quantity")["median_z"]
     wide["median |e|/u"] = median
     print(f"Fraction of |reduced - true| <= 2u, {args.seeds} seeds per case, by case:")

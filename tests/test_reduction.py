@@ -197,6 +197,13 @@ def test_indexed_runs_at_rest_merge_to_cover_the_circle(tmp_path):
     assert merged.values["CL_p_uncorrected"] == pytest.approx(0.0, abs=1e-9)
     assert np.count_nonzero(np.isfinite(merged.profiles["Cp"])) == 12
     assert {f"logs/i{k}_p.csv" for k in ("00", "30", "60")} <= set(merged.inputs)
+    # Cp is given at the bin centres (2.5° past each tap with the default 72 bins), not at the
+    # taps: the written curve there, to the second-order shift's error on 30° spacing (the
+    # tap's own value is up to 4 sin 2θ × 2.5° = 0.17 away).
+    seen = np.isfinite(merged.profiles["Cp_uncorrected"])
+    centre = np.radians(merged.theta[seen])
+    written = 1 - 4 * np.sin(centre) ** 2 + a * np.cos(centre)
+    assert np.max(np.abs(merged.profiles["Cp_uncorrected"][seen] - written)) < 0.04
 
 
 def test_pressure_with_must_name_a_data_run_with_pressure(campaign_dir):

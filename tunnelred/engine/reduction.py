@@ -949,6 +949,26 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
     return _PressureStep(points, dead_taps, integrate, inputs, model)
 
 
+def _at_bin_centres(points: _PressurePoints, values) -> np.ndarray:
+    """A curve known at the points (Cp) read at their grid bins' centres instead.
+
+    The results give Cp at the bin centres; a tap of a model at rest reads it at its own azimuth,
+    up to half a bin away, which on a steep Cp(θ) is several times u(Cp). As the spinning bins
+    are, each such value is moved to its centre to second order (Cp' d + Cp'' d²/2), the
+    derivatives from all the points' curve (merged index runs included). Binned points already
+    sit at their centres; the integration keeps the points where they were measured.
+    """
+    values = np.asarray(values, dtype=float).reshape(-1)
+    centre = points.grid[points.grid_index]
+    offset = np.mod(points.theta - centre + 180.0, 360.0) - 180.0
+    if not np.any(np.abs(offset) > 1e-9):
+        return values
+    distinct, which = np.unique(np.mod(points.theta, 360.0), return_inverse=True)
+    mean = np.bincount(which, weights=values) / np.bincount(which)
+    slope, curvature = pressure.azimuth_derivatives(distinct, mean)
+    return values - slope[which] * offset - 0.5 * curvature[which] * offset**2
+
+
 def pressure_run_inputs(
     cfg, reading: np.ndarray, u_reading: np.ndarray, omega: float
 ) -> dict[str, Input]:
@@ -1019,9 +1039,9 @@ def _profiles(points: _PressurePoints | None, linear, alpha: float):
         return mean if power == 1 else np.sqrt(mean / n)
 
     profiles = {
-        "Cp": on_grid(linear.values["Cp"]),
+        "Cp": on_grid(_at_bin_centres(points, linear.values["Cp"])),
         "u_Cp": on_grid(linear.u["Cp"], power=2),
-        "Cp_uncorrected": on_grid(linear.values["Cp_uncorrected"]),
+        "Cp_uncorrected": on_grid(_at_bin_centres(points, linear.values["Cp_uncorrected"])),
         "Cp_count": points.count,
         "Cp_ideal": theory.cp_surface(theta, alpha),
     }
