@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 import textwrap
 from dataclasses import replace
 from pathlib import Path
@@ -157,6 +158,25 @@ def small_spec(repeat_count: int = 1):
         data_duration=2.0,
         wind_off_duration=1.0,
     )
+
+
+@pytest.fixture(scope="module")
+def small_campaign(tmp_path_factory) -> Path:
+    """The campaign of :func:`small_spec`, written once per test module; a test that changes its
+    files takes :func:`small_campaign_copy`."""
+    from tunnelred.demo.writer import make_campaign
+
+    root = tmp_path_factory.mktemp("small_campaign") / "campaign"
+    make_campaign(root, small_spec())
+    return root
+
+
+@pytest.fixture
+def small_campaign_copy(small_campaign, tmp_path) -> Path:
+    """A copy of :func:`small_campaign` of this test's own."""
+    root = tmp_path / "campaign"
+    shutil.copytree(small_campaign, root, symlinks=True)
+    return root
 
 
 @pytest.fixture(scope="session")

@@ -22,20 +22,16 @@ import numpy as np
 import pandas as pd
 import pytest
 import xarray as xr
-from conftest import small_spec
 
-from tunnelred.demo.writer import make_campaign
 from tunnelred.products import results_folder
 
 REPO = Path(__file__).resolve().parents[1]
 PUBLISHED = ("results.nc", "results.csv", "budgets.csv", "failures.csv", "provenance.json")
 
 
-@pytest.fixture(scope="module")
-def campaign(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("integrity") / "campaign"
-    make_campaign(root, small_spec())
-    return root
+@pytest.fixture
+def campaign(small_campaign) -> Path:
+    return small_campaign
 
 
 def _command(campaign, out, *extra):

@@ -10,31 +10,24 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import small_spec
 
-from tunnelred.demo.writer import make_campaign
 from tunnelred.pipeline import campaign as pipeline
 from tunnelred.pipeline.campaign import reduce_campaign
 from tunnelred.products import plotting, report, store
 
 
-@pytest.fixture(scope="module")
-def made(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("rerun") / "campaign"
-    make_campaign(root, small_spec())
-    return root
+@pytest.fixture
+def made(small_campaign) -> Path:
+    return small_campaign
 
 
 @pytest.fixture
-def campaign(made, tmp_path) -> Path:
-    copy = tmp_path / "campaign"
-    shutil.copytree(made, copy)
-    return copy
+def campaign(small_campaign_copy) -> Path:
+    return small_campaign_copy
 
 
 def _reduce(campaign, out, **kw):
