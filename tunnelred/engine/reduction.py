@@ -963,10 +963,8 @@ def _at_bin_centres(points: _PressurePoints, values) -> np.ndarray:
     offset = np.mod(points.theta - centre + 180.0, 360.0) - 180.0
     if not np.any(np.abs(offset) > 1e-9):
         return values
-    distinct, which = np.unique(np.mod(points.theta, 360.0), return_inverse=True)
-    mean = np.bincount(which, weights=values) / np.bincount(which)
-    slope, curvature = pressure.azimuth_derivatives(distinct, mean)
-    return values - slope[which] * offset - 0.5 * curvature[which] * offset**2
+    slope, curvature = _point_derivatives(points.theta, values)
+    return values - slope * offset - 0.5 * curvature * offset**2
 
 
 def pressure_run_inputs(
@@ -995,10 +993,15 @@ def pressure_run_inputs(
 
 def reading_slope(theta: np.ndarray, reading: np.ndarray) -> np.ndarray:
     """dp/dθ at each point [Pa/deg], points at one azimuth (merged index runs) sharing one."""
+    return _point_derivatives(theta, reading)[0]
+
+
+def _point_derivatives(theta: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Slope and curvature of the points' curve at each point, points at one azimuth averaged."""
     distinct, which = np.unique(np.mod(theta, 360.0), return_inverse=True)
-    mean = np.bincount(which, weights=reading) / np.bincount(which)
-    slope, _ = pressure.azimuth_derivatives(distinct, mean)
-    return slope[which]
+    mean = np.bincount(which, weights=values) / np.bincount(which)
+    slope, curvature = pressure.azimuth_derivatives(distinct, mean)
+    return slope[which], curvature[which]
 
 
 def _run_values(spec, linear, measures: dict, dead_taps: list[str]) -> dict[str, float | str]:
