@@ -77,6 +77,8 @@ _RUNS_OPTIONAL = (
     "pressure_with",
     "notes",
 )
+#: The run list every problem of a row is reported against.
+_RUNS_FILE = "runs.csv"
 _RUNS_WITH_UNITS = {"speed_set": "speed", "spin_set": "rotation_rate"}
 _RPM_PER_RAD_S = 60.0 / (2.0 * np.pi)
 
@@ -383,8 +385,12 @@ def _parse_start(text: str) -> datetime | None:
 
 
 def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bool = False):
-    """RunSpecs from runs.csv rows; problems go to ``problems`` keyed by run id."""
-    file = "runs.csv"
+    """RunSpecs from runs.csv rows; problems go to ``problems`` keyed by run id.
+
+    Each row is read on its own (:func:`_row_spec`); the references between rows are checked
+    once every row is read, since they can point forward (:func:`_check_references`,
+    :func:`_check_merge_cycles`).
+    """
     labels = set(config.configurations) if config is not None else None
     runs: dict[str, RunSpec] = {}
     by_run: dict[str, list[Problem]] = {}
@@ -393,16 +399,13 @@ def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bo
         if row is None:
             # A row too short to name its run is still listed, under its line, so that
             # a reduction reports it among the failures instead of dropping it unseen.
-            rid = short_run or f"runs.csv line {line}"
-            mine = [p for p in problems if p.file == file and p.line == line]
+            rid = short_run or f"{_RUNS_FILE} line {line}"
+            mine = [p for p in problems if p.file == _RUNS_FILE and p.line == line]
             by_run.setdefault(rid, []).extend(mine)
             unreadable.append(rid)
             continue
         mine: list[Problem] = []
-
-        def bad(column, expected, found, hint="", mine=mine, line=line):
-            mine.append(Problem(file, line, column, expected, found, hint))
-
+        bad = _row_problem(mine, line)
         run = row.get("run", "")
         if not _RUN_ID.match(run):
             bad("run", "a run id of letters, digits, '-', '_', '.'", brief(run))
@@ -419,149 +422,182 @@ def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bo
             problems.extend(mine)
             by_run.setdefault(run, []).extend(mine)
             continue
-        kind = row.get("kind", "")
-        if kind not in KINDS:
-            bad("kind", f"one of {', '.join(KINDS)}", brief(kind))
-        start = _parse_start(row.get("start", ""))
-        if start is None:
-            bad(
-                "start",
-                "an ISO 8601 date and time, e.g. 2026-11-16T09:14:05",
-                brief(row.get("start", "")),
-            )
-        label = row.get("config", "")
-        if label or kind in ("tare", "data"):
-            if not label:
-                bad(
-                    "config",
-                    "a configuration label",
-                    "an empty cell",
-                    "tare and data runs must name their configuration.",
-                )
-            elif labels is not None and label not in labels:
-                bad(
-                    "config",
-                    f"a [configurations] label ({', '.join(sorted(labels))})",
-                    brief(label),
-                    "Add the configuration to campaign.toml or fix the label.",
-                )
-        logs: dict[str, str] = {}
-        for stream in STREAMS:
-            text = row.get(f"{stream}_log", "")
-            if text:
-                before = len(mine)
-                rel = _check_path(root, text, file, line, f"{stream}_log", mine)
-                if rel is not None:
-                    logs[stream] = rel
-                elif len(mine) == before:
-                    logs[stream] = text
-        needs = {"zero": ("balance",), "tare": ("balance",), "data": ("tunnel",)}.get(kind, ())
-        for stream in needs:
-            if not row.get(f"{stream}_log"):
-                bad(f"{stream}_log", f"the {stream} log of a {kind} run", "an empty cell")
-        if kind == "data" and not (row.get("balance_log") or row.get("pressure_log")):
-            bad("balance_log", "a balance_log or pressure_log on a data run", "neither")
-        set_points = {}
-        for name in _RUNS_WITH_UNITS:
-            text = row.get(name, "")
-            if not text or units.get(name) is None:
-                set_points[name] = None
-                continue
-            if not _NUMBER.match(text) or not np.isfinite(float(text)):
-                bad(name, "a finite number", brief(text))
-                set_points[name] = None
-                continue
-            value = float(units[name](float(text)))
-            if abs(value) > MAX_MAGNITUDE:  # the logs' bound: no set point is near it
-                bad(name, f"a value of magnitude at most {MAX_MAGNITUDE:g} (SI)", brief(text))
-                set_points[name] = None
-                continue
-            set_points[name] = value * _RPM_PER_RAD_S if name == "spin_set" else value
-        speed = set_points["speed_set"]
-        if speed is not None and (speed < 0 or (kind in ("zero", "tare") and speed != 0)):
-            bad(
-                "speed_set",
-                "0 for a wind-off run" if kind != "data" else "a speed of 0 or more",
-                row["speed_set"],
-            )
-        if kind == "zero" and set_points["spin_set"] not in (None, 0.0):
-            bad("spin_set", "0 (a zero run does not spin)", row["spin_set"])
-        zero = _split_ids(row.get("zero", ""))
-        tare = _split_ids(row.get("tare", ""))
-        if kind == "zero" and (zero or tare):
-            bad("zero" if zero else "tare", "no zero or tare runs on a zero run", "some")
-        if kind in ("data", "tare") and row.get("balance_log") and not zero:
-            bad(
-                "zero",
-                f"the zero run(s) of a {kind} run with a balance log",
-                "an empty cell",
-                "Name the wind-off zero taken before (and after) the run.",
-            )
-        if len(zero) > 2:
-            bad("zero", "one or two zero runs (before, after)", f"{len(zero)}")
-        if tare and kind != "data":
-            bad("tare", "tare runs only on a data run", brief(row["tare"]))
-        if tare and kind == "data" and not row.get("balance_log"):
-            bad("tare", "tare runs only with a balance log", brief(row["tare"]))
-        pressure_with = _split_ids(row.get("pressure_with", ""))
-        if pressure_with and (kind != "data" or not row.get("pressure_log")):
-            bad(
-                "pressure_with",
-                "other runs' pressure only on a data run with a pressure log",
-                brief(row["pressure_with"]),
-            )
+        spec = _row_spec(root, row, line, run, labels, units, mine)
         problems.extend(mine)
-        if kind not in KINDS or start is None:
-            unreadable.append(run)
-            by_run.setdefault(run, []).extend(mine)
-            continue
-        runs[run] = RunSpec(
-            run=run,
-            kind=kind,
-            config=label,
-            start=start,
-            logs=logs,
-            zero=zero,
-            tare=tare,
-            speed_set=speed,
-            spin_set=set_points["spin_set"],
-            notes=row.get("notes", ""),
-            line=line,
-            pressure_with=pressure_with,
-        )
         by_run.setdefault(run, []).extend(mine)
-    # references can point forward, so they are checked once every row is read
-    for spec in list(runs.values()):
-        if closing_zero_pending:
-            spec = runs[spec.run] = _without_closing_zero(spec, runs, unreadable)
+        if spec is None:
+            unreadable.append(run)
+            continue
+        runs[run] = spec
+    if closing_zero_pending:
+        for spec in list(runs.values()):
+            runs[spec.run] = _without_closing_zero(spec, runs, unreadable)
+    _check_references(runs, unreadable, problems, by_run)
+    _check_merge_cycles(runs, problems, by_run)
+    return runs, by_run, unreadable
+
+
+def _row_problem(mine: list[Problem], line: int):
+    """The function a row's checks report through: one Problem of runs.csv on ``line``."""
+
+    def bad(column, expected, found, hint=""):
+        mine.append(Problem(_RUNS_FILE, line, column, expected, found, hint))
+
+    return bad
+
+
+def _row_spec(root, row: dict, line: int, run: str, labels, units, mine: list) -> RunSpec | None:
+    """One runs.csv row checked column by column into a RunSpec (None when its kind or start
+    cannot be read); every problem found is added to ``mine``, in column order."""
+    bad = _row_problem(mine, line)
+    kind = row.get("kind", "")
+    if kind not in KINDS:
+        bad("kind", f"one of {', '.join(KINDS)}", brief(kind))
+    start = _parse_start(row.get("start", ""))
+    if start is None:
+        bad(
+            "start",
+            "an ISO 8601 date and time, e.g. 2026-11-16T09:14:05",
+            brief(row.get("start", "")),
+        )
+    label = row.get("config", "")
+    _check_config_label(label, kind, labels, bad)
+    logs = _row_logs(root, row, kind, line, mine)
+    set_points = _row_set_points(row, kind, units, bad)
+    zero, tare, pressure_with = _row_run_lists(row, kind, bad)
+    if kind not in KINDS or start is None:
+        return None
+    return RunSpec(
+        run=run,
+        kind=kind,
+        config=label,
+        start=start,
+        logs=logs,
+        zero=zero,
+        tare=tare,
+        speed_set=set_points["speed_set"],
+        spin_set=set_points["spin_set"],
+        notes=row.get("notes", ""),
+        line=line,
+        pressure_with=pressure_with,
+    )
+
+
+def _check_config_label(label: str, kind: str, labels, bad) -> None:
+    """A tare or data run names its configuration, and a label names one campaign.toml has."""
+    if not (label or kind in ("tare", "data")):
+        return
+    if not label:
+        bad(
+            "config",
+            "a configuration label",
+            "an empty cell",
+            "tare and data runs must name their configuration.",
+        )
+    elif labels is not None and label not in labels:
+        bad(
+            "config",
+            f"a [configurations] label ({', '.join(sorted(labels))})",
+            brief(label),
+            "Add the configuration to campaign.toml or fix the label.",
+        )
+
+
+def _row_logs(root, row: dict, kind: str, line: int, mine: list) -> dict[str, str]:
+    """The row's log paths by stream (each inside the campaign folder), and the logs its kind
+    needs."""
+    bad = _row_problem(mine, line)
+    logs: dict[str, str] = {}
+    for stream in STREAMS:
+        text = row.get(f"{stream}_log", "")
+        if text:
+            before = len(mine)
+            rel = _check_path(root, text, _RUNS_FILE, line, f"{stream}_log", mine)
+            if rel is not None:
+                logs[stream] = rel
+            elif len(mine) == before:
+                logs[stream] = text
+    needs = {"zero": ("balance",), "tare": ("balance",), "data": ("tunnel",)}.get(kind, ())
+    for stream in needs:
+        if not row.get(f"{stream}_log"):
+            bad(f"{stream}_log", f"the {stream} log of a {kind} run", "an empty cell")
+    if kind == "data" and not (row.get("balance_log") or row.get("pressure_log")):
+        bad("balance_log", "a balance_log or pressure_log on a data run", "neither")
+    return logs
+
+
+def _row_set_points(row: dict, kind: str, units, bad) -> dict[str, float | None]:
+    """speed_set [m/s] and spin_set [rpm] in their header's units, None when blank or invalid;
+    a wind-off run's speed is 0 and a zero run does not spin."""
+    set_points: dict[str, float | None] = {}
+    for name in _RUNS_WITH_UNITS:
+        set_points[name] = _set_point(row.get(name, ""), name, units, bad)
+    speed = set_points["speed_set"]
+    if speed is not None and (speed < 0 or (kind in ("zero", "tare") and speed != 0)):
+        bad(
+            "speed_set",
+            "0 for a wind-off run" if kind != "data" else "a speed of 0 or more",
+            row["speed_set"],
+        )
+    if kind == "zero" and set_points["spin_set"] not in (None, 0.0):
+        bad("spin_set", "0 (a zero run does not spin)", row["spin_set"])
+    return set_points
+
+
+def _set_point(text: str, name: str, units, bad) -> float | None:
+    """One set-point cell in SI (spin_set in rpm); None when blank, unitless or invalid."""
+    if not text or units.get(name) is None:
+        return None
+    if not _NUMBER.match(text) or not np.isfinite(float(text)):
+        bad(name, "a finite number", brief(text))
+        return None
+    value = float(units[name](float(text)))
+    if abs(value) > MAX_MAGNITUDE:  # the logs' bound: no set point is near it
+        bad(name, f"a value of magnitude at most {MAX_MAGNITUDE:g} (SI)", brief(text))
+        return None
+    return value * _RPM_PER_RAD_S if name == "spin_set" else value
+
+
+def _row_run_lists(row: dict, kind: str, bad) -> tuple[tuple[str, ...], ...]:
+    """The zero, tare and pressure_with runs the row names, each allowed on its kinds of run."""
+    zero = _split_ids(row.get("zero", ""))
+    tare = _split_ids(row.get("tare", ""))
+    if kind == "zero" and (zero or tare):
+        bad("zero" if zero else "tare", "no zero or tare runs on a zero run", "some")
+    if kind in ("data", "tare") and row.get("balance_log") and not zero:
+        bad(
+            "zero",
+            f"the zero run(s) of a {kind} run with a balance log",
+            "an empty cell",
+            "Name the wind-off zero taken before (and after) the run.",
+        )
+    if len(zero) > 2:
+        bad("zero", "one or two zero runs (before, after)", f"{len(zero)}")
+    if tare and kind != "data":
+        bad("tare", "tare runs only on a data run", brief(row["tare"]))
+    if tare and kind == "data" and not row.get("balance_log"):
+        bad("tare", "tare runs only with a balance log", brief(row["tare"]))
+    pressure_with = _split_ids(row.get("pressure_with", ""))
+    if pressure_with and (kind != "data" or not row.get("pressure_log")):
+        bad(
+            "pressure_with",
+            "other runs' pressure only on a data run with a pressure log",
+            brief(row["pressure_with"]),
+        )
+    return zero, tare, pressure_with
+
+
+def _check_references(runs: dict[str, RunSpec], unreadable, problems, by_run) -> None:
+    """Each zero, tare and pressure_with reference names a readable run of the right kind (and,
+    for tares and pressure, of the same configuration)."""
+    for spec in runs.values():
         for column, wanted in (("zero", "zero"), ("tare", "tare"), ("pressure_with", "data")):
             for ref in getattr(spec, column):
-                target = runs.get(ref)
-                if ref == spec.run:
-                    found = f"{brief(ref)}, the run itself"
-                    wanted = "different data"
-                elif target is None:
-                    found = f"{ref!r}, which " + (
-                        "could not be read" if ref in unreadable else "runs.csv does not hold"
-                    )
-                elif target.kind != wanted:
-                    found = f"{ref!r}, a {target.kind} run"
-                elif column == "tare" and target.config != spec.config:
-                    found = f"{ref!r}, of configuration {target.config!r}"
-                    wanted = f"tare of configuration {spec.config!r}"
-                elif column == "pressure_with" and (
-                    "pressure" not in target.logs or target.config != spec.config
-                ):
-                    found = f"{ref!r}, " + (
-                        "without a pressure log"
-                        if "pressure" not in target.logs
-                        else f"of configuration {target.config!r}"
-                    )
-                    wanted = f"data run of configuration {spec.config!r} with a pressure log"
-                else:
+                wanted, found = _reference_fault(spec, column, wanted, ref, runs, unreadable)
+                if found is None:
                     continue
                 p = Problem(
-                    file,
+                    _RUNS_FILE,
                     spec.line,
                     column,
                     f"the id of a {wanted} run",
@@ -570,9 +606,41 @@ def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bo
                 )
                 problems.append(p)
                 by_run[spec.run].append(p)
+
+
+def _reference_fault(spec: RunSpec, column: str, wanted: str, ref: str, runs, unreadable):
+    """(what the column wants, what ``ref`` is instead), or (wanted, None) when it fits."""
+    target = runs.get(ref)
+    if ref == spec.run:
+        return "different data", f"{brief(ref)}, the run itself"
+    if target is None:
+        return wanted, f"{ref!r}, which " + (
+            "could not be read" if ref in unreadable else "runs.csv does not hold"
+        )
+    if target.kind != wanted:
+        return wanted, f"{ref!r}, a {target.kind} run"
+    if column == "tare" and target.config != spec.config:
+        return (
+            f"tare of configuration {spec.config!r}",
+            f"{ref!r}, of configuration {target.config!r}",
+        )
+    if column == "pressure_with" and (
+        "pressure" not in target.logs or target.config != spec.config
+    ):
+        found = f"{ref!r}, " + (
+            "without a pressure log"
+            if "pressure" not in target.logs
+            else f"of configuration {target.config!r}"
+        )
+        return f"data run of configuration {spec.config!r} with a pressure log", found
+    return wanted, None
+
+
+def _check_merge_cycles(runs: dict[str, RunSpec], problems, by_run) -> None:
+    """No run's pressure comes back to it through the pressure_with of others."""
     for spec, cycle in _merge_cycles(runs):
         p = Problem(
-            file,
+            _RUNS_FILE,
             spec.line,
             "pressure_with",
             "runs that do not merge this run's pressure back",
@@ -581,7 +649,6 @@ def _build_runs(root, rows, units, config, problems, *, closing_zero_pending: bo
         )
         problems.append(p)
         by_run[spec.run].append(p)
-    return runs, by_run, unreadable
 
 
 def _merge_cycles(runs: dict[str, RunSpec]) -> list[tuple[RunSpec, list[str]]]:
