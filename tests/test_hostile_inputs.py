@@ -17,11 +17,9 @@ import sys
 from pathlib import Path
 
 import pytest
-from conftest import small_spec
 
 from tunnelred.cli import main
 from tunnelred.common.errors import MAX_PROBLEMS_PER_FILE, InputError
-from tunnelred.demo.writer import make_campaign
 from tunnelred.inputs import files
 from tunnelred.inputs.config import MAX_CP_BINS
 from tunnelred.inputs.readers import open_campaign
@@ -47,18 +45,9 @@ def _bounded():
     signal.signal(signal.SIGALRM, previous)
 
 
-@pytest.fixture(scope="module")
-def pristine(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("hostile") / "campaign"
-    make_campaign(root, small_spec())
-    return root
-
-
 @pytest.fixture
-def camp(pristine, tmp_path) -> Path:
-    root = tmp_path / "campaign"
-    shutil.copytree(pristine, root, symlinks=True)
-    return root
+def camp(small_campaign_copy) -> Path:
+    return small_campaign_copy
 
 
 def check(root: Path, capsys) -> tuple[int, str]:

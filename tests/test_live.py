@@ -453,23 +453,24 @@ def test_changed_inputs_rereduce_exactly_the_runs_that_use_them(source, tmp_path
         assert status.fresh == ("R004",)
 
         # 3. A rewritten spin tare: every data run that names it (docs: the tare column).
-        tare = campaign / "logs/T001_balance.csv"
-        frame = pd.read_csv(tare)
-        frame.iloc[:, 1] += 1e-4
-        tare.write_bytes(frame.to_csv(index=False, float_format="%.8g").encode())
+        _shift_first_channel(campaign / "logs/T001_balance.csv")
         status = rereduced(status.reductions + 1)
         assert status.fresh == ("R002", "R003", "R004")
 
         # 4. A rewritten zero: the bare block uses Z004 as pre-zero, Z005 as post-zero.
-        zero = campaign / "logs/Z005_balance.csv"
-        frame = pd.read_csv(zero)
-        frame.iloc[:, 1] += 1e-4
-        zero.write_bytes(frame.to_csv(index=False, float_format="%.8g").encode())
+        _shift_first_channel(campaign / "logs/Z005_balance.csv")
         status = rereduced(status.reductions + 1)
         assert status.fresh == ("R005", "R006", "R007")
         assert len(_cache_entries(out)) == len(DATA_RUNS)  # the engine prunes stale entries
     finally:
         watch.close()
+
+
+def _shift_first_channel(log: Path) -> None:
+    """Rewrite a balance log with its first channel raised by 1e-4 (a changed recording)."""
+    frame = pd.read_csv(log)
+    frame.iloc[:, 1] += 1e-4
+    log.write_bytes(frame.to_csv(index=False, float_format="%.8g").encode())
 
 
 def test_a_log_cut_mid_line_is_reported_and_waited_for(source, tmp_path):

@@ -12,7 +12,7 @@ Imports are deferred so that ``tunnelred --help`` answers at once.
 
 from __future__ import annotations
 
-import importlib
+from tunnelred.common.deferred import deferred_names
 
 __version__ = "0.1.0.dev0"
 
@@ -29,13 +29,4 @@ _PUBLIC = {
 
 __all__ = ["__version__", *_PUBLIC]
 
-
-def __getattr__(name: str):
-    module = _PUBLIC.get(name)
-    if module is None:
-        raise AttributeError(f"module 'tunnelred' has no attribute {name!r}")
-    return getattr(importlib.import_module(f"tunnelred.{module}"), name)
-
-
-def __dir__() -> list[str]:
-    return sorted(__all__)
+__getattr__, __dir__ = deferred_names("tunnelred", _PUBLIC, __all__)

@@ -14,7 +14,7 @@ be run.
 
 from __future__ import annotations
 
-import importlib
+from tunnelred.common.deferred import deferred_names
 
 _PUBLIC = {
     "plan_test": "core",
@@ -33,14 +33,5 @@ _PUBLIC = {
 
 __all__ = list(_PUBLIC)
 
-
-def __getattr__(name: str):
-    # Deferred, so that the command line reads the noise levels without pandas and xarray.
-    module = _PUBLIC.get(name)
-    if module is None:
-        raise AttributeError(f"module 'tunnelred.products.plan' has no attribute {name!r}")
-    return getattr(importlib.import_module(f"tunnelred.products.plan.{module}"), name)
-
-
-def __dir__() -> list[str]:
-    return sorted(__all__)
+# Deferred, so that the command line reads the noise levels without pandas and xarray.
+__getattr__, __dir__ = deferred_names("tunnelred.products.plan", _PUBLIC, __all__)
