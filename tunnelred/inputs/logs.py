@@ -23,7 +23,7 @@ import pyarrow.csv as pacsv
 import xarray as xr
 
 from tunnelred.common.errors import InputError, Problem, brief
-from tunnelred.inputs.config import Q_SOURCES, CampaignConfig
+from tunnelred.inputs.config import CampaignConfig
 from tunnelred.inputs.files import (
     MAX_CELL_CHARS,
     MAX_COLUMNS,
@@ -31,21 +31,10 @@ from tunnelred.inputs.files import (
     Refusal,
     read_regular,
 )
+from tunnelred.inputs.streams import FIXED_COLUMNS, stream_spec
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
 __all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns"]
-
-#: Dimension of every log column with a fixed name (see units.DIMENSIONS).
-FIXED_COLUMNS = {
-    "time": "time",
-    "dp_pitot": "pressure",
-    "dp_contraction": "pressure",
-    "T": "temperature",
-    "p_baro": "pressure",
-    "RH": "fraction",
-    "speed": "rotation_rate",
-    "angle": "angle",
-}
 
 #: How many offending rows a problem lists before saying "and N more".
 SHOWN_ROWS = 3
@@ -707,35 +696,12 @@ def _with_dimensions(columns, stream: str) -> dict:
 def log_columns(config: CampaignConfig, stream: str, *, spinning: bool) -> tuple[dict, dict]:
     """The required and optional columns of a stream's log: base name → dimension.
 
-    ``spinning``: the run spins (makes ``angle`` required in a pressure log).
+    ``spinning``: the run spins (makes ``angle`` required in a pressure log). The columns are
+    the stream's specification's (inputs.streams); ValueError for an unknown stream.
     """
-    fixed = FIXED_COLUMNS
-    if stream == "tunnel":
-        q = Q_SOURCES[config.tunnel.q_source]
-        other = next(c for c in Q_SOURCES.values() if c != q)
-        required = {c: fixed[c] for c in ("time", q, "T", "p_baro", "RH")}
-        optional = {c: fixed[c] for c in (other, "speed", "angle")}
-    elif stream == "balance":
-        channels = config.instruments.balance.channels if config.instruments.balance else ()
-        required = {"time": "time"} | {c: None for c in channels}
-        optional = {"speed": fixed["speed"], "angle": fixed["angle"]}
-    elif stream == "pressure":
-        required = {"time": "time"} | {t.name: "pressure" for t in config.taps}
-        optional = {"speed": fixed["speed"]}
-        (required if spinning else optional)["angle"] = fixed["angle"]
-    else:
-        raise ValueError(f"unknown stream {stream!r}")
-    return required, optional
+    return stream_spec(stream).columns(config, spinning)
 
 
-def _stream_hints(stream: str) -> dict:
-    if stream == "pressure":
-        return {
-            "extra": "A tap column must be declared in campaign.toml [[taps]]; declare it "
-            "or remove the column.",
-            "missing": "Every [[taps]] entry needs its column in the pressure log.",
-            "angle": "A spinning run's pressure log needs the encoder angle to place its taps.",
-        }
-    if stream == "balance":
-        return {"missing": "Every [instruments.balance] channel needs its column."}
-    return {}
+def stream_hints(stream: str) -> dict:
+    """The hints of a stream's log header problems (inputs.streams)."""
+    return dict(stream_spec(stream).hints)

@@ -41,11 +41,13 @@ from tunnelred.inputs.logs import (
     _example_unit,
     _parse_log,
     _read_header,
-    _stream_hints,
     log_columns,
     read_log,
     split_line,
+    stream_hints,
 )
+from tunnelred.inputs.streams import STREAM_NAMES
+from tunnelred.inputs.streams import STREAMS as STREAM_SPECS
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
 __all__ = [
@@ -60,8 +62,9 @@ __all__ = [
     "log_columns",
 ]
 
-#: The kinds of log a run may name, each in a runs.csv column ``<stream>_log``.
-STREAMS = ("balance", "pressure", "tunnel")
+#: The kinds of log a run may name, each in a runs.csv column ``<stream>_log`` (their
+#: specifications: inputs.streams.STREAMS).
+STREAMS = STREAM_NAMES
 
 #: Run kinds: wind-off zero, wind-off spin tare, wind-on data.
 KINDS = ("zero", "tare", "data")
@@ -69,9 +72,7 @@ KINDS = ("zero", "tare", "data")
 _RUN_ID = re.compile(r"^[A-Za-z0-9_.-]+$")
 _RUNS_REQUIRED = ("run", "kind", "start", "config")
 _RUNS_OPTIONAL = (
-    "balance_log",
-    "pressure_log",
-    "tunnel_log",
+    *(s.log_column for s in STREAM_SPECS),
     "zero",
     "tare",
     "pressure_with",
@@ -508,21 +509,21 @@ def _row_logs(root, row: dict, kind: str, line: int, mine: list) -> dict[str, st
     needs."""
     bad = _row_problem(mine, line)
     logs: dict[str, str] = {}
-    for stream in STREAMS:
-        text = row.get(f"{stream}_log", "")
+    for spec in STREAM_SPECS:
+        text = row.get(spec.log_column, "")
         if text:
             before = len(mine)
-            rel = _check_path(root, text, _RUNS_FILE, line, f"{stream}_log", mine)
+            rel = _check_path(root, text, _RUNS_FILE, line, spec.log_column, mine)
             if rel is not None:
-                logs[stream] = rel
+                logs[spec.name] = rel
             elif len(mine) == before:
-                logs[stream] = text
-    needs = {"zero": ("balance",), "tare": ("balance",), "data": ("tunnel",)}.get(kind, ())
-    for stream in needs:
-        if not row.get(f"{stream}_log"):
-            bad(f"{stream}_log", f"the {stream} log of a {kind} run", "an empty cell")
-    if kind == "data" and not (row.get("balance_log") or row.get("pressure_log")):
-        bad("balance_log", "a balance_log or pressure_log on a data run", "neither")
+                logs[spec.name] = text
+    for spec in STREAM_SPECS:
+        if kind in spec.needed_by and not row.get(spec.log_column):
+            bad(spec.log_column, f"the {spec.name} log of a {kind} run", "an empty cell")
+    loads = [s.log_column for s in STREAM_SPECS if s.loads]
+    if kind == "data" and not any(row.get(column) for column in loads):
+        bad(loads[0], f"a {' or '.join(loads)} on a data run", "neither")
     return logs
 
 
@@ -938,28 +939,10 @@ def open_campaign(path, *, check_logs: bool = True, closing_zero_pending: bool =
         global_problems.append(p)
 
     used = {s for spec in runs.values() for s in spec.logs}
-    if "balance" in used and config.instruments.balance is None:
-        stop_all(
-            Problem(
-                "campaign.toml",
-                None,
-                "instruments.balance",
-                "an [instruments.balance] table (runs name balance logs)",
-                "none",
-                "Add the balance channels and calibration matrix.",
-            )
-        )
-    if "pressure" in used and not config.taps:
-        stop_all(
-            Problem(
-                "campaign.toml",
-                None,
-                "taps",
-                "[[taps]] tables (runs name pressure logs)",
-                "none",
-                "Declare each tap's name and azimuth.",
-            )
-        )
+    for stream_spec in STREAM_SPECS:
+        missing = stream_spec.declared(config) if stream_spec.name in used else None
+        if missing is not None:
+            stop_all(missing)
 
     files = {}
     for spec in runs.values():
@@ -972,10 +955,10 @@ def open_campaign(path, *, check_logs: bool = True, closing_zero_pending: bool =
             if prev is not None:
                 required = prev[0] | required
                 optional = prev[1] | optional
-                hints = prev[2] | _stream_hints(stream)
+                hints = prev[2] | stream_hints(stream)
                 streams = prev[3] if stream in prev[3].split("+") else f"{prev[3]}+{stream}"
             else:
-                hints, streams = _stream_hints(stream), stream
+                hints, streams = stream_hints(stream), stream
             optional = {k: v for k, v in optional.items() if k not in required}
             files[rel] = (required, optional, hints, streams)
     hashes = _FileHashes(root, ["campaign.toml", "runs.csv", *files])

@@ -21,7 +21,6 @@ from tunnelred.inputs.config.objects import (
     LOAD_NAMES,
     MAX_CP_BINS,
     MIN_CP_BINS,
-    Q_SOURCES,
     TARE_EXTRAPOLATION,
     BalanceConfig,
     Calibration,
@@ -51,6 +50,7 @@ from tunnelred.inputs.files import (
     read_regular,
 )
 from tunnelred.inputs.methods import BLOCKAGE_METHODS
+from tunnelred.inputs.streams import Q_SOURCES
 
 __all__ = [
     "CampaignInfo",

@@ -21,11 +21,11 @@ from tunnelred.inputs.config.reader import (
     FRACTION,
     NON_NEGATIVE,
     POSITIVE,
-    RESERVED_COLUMNS,
     TABLE_KEYS,
     Reader,
     campaign_file,
 )
+from tunnelred.inputs.streams import RESERVED_COLUMNS
 
 
 def read_instruments(r: Reader, data: dict, root: Path) -> InstrumentsConfig:

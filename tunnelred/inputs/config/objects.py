@@ -12,9 +12,6 @@ from tunnelred.common.errors import Problem
 #: Loads the balance calibration yields, in this order: [N], [N], [N m].
 LOAD_NAMES = ("Fx", "Fy", "Mz")
 
-#: Names accepted for [tunnel] q_source, and the tunnel-log column each one reads.
-Q_SOURCES = {"pitot": "dp_pitot", "contraction": "dp_contraction"}
-
 #: Names accepted for [reduction] tare_extrapolation.
 TARE_EXTRAPOLATION = ("flag", "refuse")
 

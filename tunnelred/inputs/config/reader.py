@@ -21,8 +21,6 @@ from tunnelred.inputs.units import parse_quantity
 _REQUIRED = object()
 #: What a tap or balance-channel name may be: it is a CSV column's base name.
 COLUMN_NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_.-]*$")
-#: Log columns with a fixed meaning, which a tap or balance channel may not be named.
-RESERVED_COLUMNS = ("time", "speed", "angle", "dp_pitot", "dp_contraction", "T", "p_baro", "RH")
 
 POSITIVE = (lambda v: v > 0, "a positive value")
 NON_NEGATIVE = (lambda v: v >= 0, "a value of zero or more")

@@ -11,7 +11,6 @@ from tunnelred.common.errors import brief
 from tunnelred.inputs.config.objects import (
     MAX_CP_BINS,
     MIN_CP_BINS,
-    Q_SOURCES,
     TARE_EXTRAPOLATION,
     Configuration,
     ModelConfig,
@@ -29,6 +28,7 @@ from tunnelred.inputs.config.reader import (
     campaign_file,
 )
 from tunnelred.inputs.methods import BLOCKAGE_CHOICES, BLOCKAGE_METHODS, resolve_blockage
+from tunnelred.inputs.streams import Q_SOURCES
 
 _LABEL = re.compile(r"^[A-Za-z0-9_-]+$")
 
