@@ -33,6 +33,18 @@ __all__ = ["Systematics", "draw_systematics"]
 #: other random number of the campaign (noise, set-point errors) as it was.
 _STREAM = 15
 
+#: The declared geometry and installation values a campaign-wide error shifts, each with the
+#: SynthSpec field of its declared standard uncertainty.
+_SHIFTED = (
+    ("diameter", "u_diameter"),
+    ("span", "u_span"),
+    ("tunnel_height", "u_height"),
+    ("tunnel_width", "u_width"),
+    ("flow_angle", "u_flow_angle"),
+    ("static_pressure_gradient", "u_static_pressure_gradient"),
+    ("alignment_angle", "u_alignment_angle"),
+)
+
 
 @dataclass(frozen=True)
 class Systematics:
@@ -79,29 +91,14 @@ class Systematics:
     def true_spec(self, spec: SynthSpec) -> SynthSpec:
         """The spec the physics runs on: the declared geometry and calibration plus the errors."""
         matrix = tuple(tuple(v * (1.0 + self.calibration) for v in row) for row in spec.matrix)
-        return replace(
-            spec,
-            diameter=spec.diameter + self.diameter,
-            span=spec.span + self.span,
-            tunnel_height=spec.tunnel_height + self.tunnel_height,
-            tunnel_width=spec.tunnel_width + self.tunnel_width,
-            flow_angle=spec.flow_angle + self.flow_angle,
-            static_pressure_gradient=spec.static_pressure_gradient + self.static_pressure_gradient,
-            alignment_angle=spec.alignment_angle + self.alignment_angle,
-            matrix=matrix,
-        )
+        shifted = {name: getattr(spec, name) + getattr(self, name) for name, _ in _SHIFTED}
+        return replace(spec, **shifted, matrix=matrix)
 
     def truth_columns(self, spec: SynthSpec, data_index: int, tap_names) -> dict[str, float]:
         """truth.csv's record of the true values behind one data run (its index in order)."""
         true = self.true_spec(spec)
-        row = {
-            "true_diameter": true.diameter,
-            "true_span": true.span,
-            "true_tunnel_height": true.tunnel_height,
-            "true_tunnel_width": true.tunnel_width,
-            "true_flow_angle": true.flow_angle,
-            "true_static_pressure_gradient": true.static_pressure_gradient,
-            "true_alignment_angle": true.alignment_angle,
+        row = {f"true_{name}": getattr(true, name) for name, _ in _SHIFTED}
+        row |= {
             "error_calibration": self.calibration,
             "error_encoder": self.encoder,
             "error_tachometer": self.tachometer,
@@ -147,14 +144,9 @@ def draw_systematics(spec: SynthSpec, data_runs: int) -> Systematics:
     u_balance = np.asarray(spec.u_balance_fraction) * np.asarray(spec.full_scale)
     # The pitot's declared u combines an offset and a relative part (of the mean reading):
     # the offset is its zero, the relative part its gain.
+    # Keywords are evaluated in order: the draws come in the same sequence as ever.
     return Systematics(
-        diameter=rng.normal(0.0, spec.u_diameter),
-        span=rng.normal(0.0, spec.u_span),
-        tunnel_height=rng.normal(0.0, spec.u_height),
-        tunnel_width=rng.normal(0.0, spec.u_width),
-        flow_angle=rng.normal(0.0, spec.u_flow_angle),
-        static_pressure_gradient=rng.normal(0.0, spec.u_static_pressure_gradient),
-        alignment_angle=rng.normal(0.0, spec.u_alignment_angle),
+        **{name: rng.normal(0.0, getattr(spec, u)) for name, u in _SHIFTED},
         calibration=rng.normal(0.0, spec.u_matrix_relative),
         tap_azimuth=rng.normal(0.0, spec.u_azimuth, n),
         tap_delay=rng.normal(0.0, spec.u_tubing_delay, n),
