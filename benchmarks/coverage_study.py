@@ -43,6 +43,7 @@ from tunnelred.demo.truth import shaped_cp
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine.quality import FLAG_NAMES
 from tunnelred.engine.reduction import reduce_run
+from tunnelred.inputs.config import Tolerances
 from tunnelred.inputs.readers import open_campaign
 
 ALPHAS = (0.0, 0.5, 1.0, 1.5, 2.0, 2.5, 3.0)
@@ -107,6 +108,8 @@ def campaign_rows(
             row[f"{name}_error"] = float(v[name]) - float(t[name])
             row[f"{name}_u"] = float(v[f"u_{name}"])
         row["raised"] = sorted({f.name for f in result.flags})
+        for name in ("speed_drift", "spin_drift"):
+            row[name] = float(v[name])
         if result.theta is not None:
             true_cp = shaped_cp(np.radians(result.theta), t["CL_p"], t["CD_p"])
             row["Cp_error"] = (result.profiles["Cp"] - true_cp).tolist()
@@ -211,6 +214,10 @@ def main() -> None:
     raised = flags[(flags["case"] == "all") & (flags["rate"] > 0)]
     print(f"\nFlags raised on fault-free runs ({len(rows)} runs):")
     print(raised.to_string(index=False) if len(raised) else "none")
+    tolerances = Tolerances()
+    for name in ("speed_drift", "spin_drift"):
+        alone = sum(float(r[name]) > getattr(tolerances, name) for r in rows)
+        print(f"{name} beyond its tolerance alone (the rule before its u): {alone} of {len(rows)}")
     payload = {
         "date": time.strftime("%Y-%m-%d", time.gmtime()),
         "seeds": list(seeds),

@@ -146,6 +146,35 @@ def test_stagnation_cp_allows_for_the_uncertainty_of_cp_max():
     assert _judge("stagnation_cp", alpha=0.0, Cp_max=0.91, u_Cp_max=0.0) is not None
 
 
+def test_speed_drift_allows_for_its_uncertainty():
+    # As for stagnation_cp: the limit is the tolerance plus k u(drift) (k = 2.6). A drift 0.005
+    # over the tolerance with u = 0.003 (the slope's noise of a 0.3 % AR(1) speed record over
+    # 4 s) is 1.7 u, inside; with u = 0.001 it is 5 u, outside; without u the tolerance alone.
+    assert _judge("speed_drift", speed_drift=0.015, u_speed_drift=0.003) is None
+    flag = _judge("speed_drift", speed_drift=0.015, u_speed_drift=0.001)
+    assert flag is not None and "k = 2.6" in flag.reason and "0.0010" in flag.reason
+    assert _judge("speed_drift", speed_drift=0.015, u_speed_drift=0.0) is not None
+    assert _judge("speed_drift", speed_drift=0.015, u_speed_drift=math.nan) is not None
+
+
+def test_drift_uncertainty_of_white_noise_is_the_slope_standard_error():
+    # For independent noise N_eff = N, so u(drift) is the ordinary least-squares standard error
+    # of the slope times the duration: scipy.stats.linregress(...).stderr (its documented
+    # standard error of the slope). The Bayley-Hammersley N_eff of white noise falls a little
+    # below N (the sample rho_k, of spread 1/sqrt(N), are summed up to the first negative one),
+    # so u may exceed the OLS value by up to about 20 %, never fall below it.
+    from scipy import stats
+
+    from tunnelred.engine.reduction import drift_uncertainty
+
+    rng = np.random.default_rng(7)
+    t = np.linspace(0.0, 4.0, 2000)
+    x = 10.0 + 0.02 * t + 0.03 * rng.standard_normal(t.size)
+    expected = stats.linregress(t, x).stderr * (t[-1] - t[0])
+    assert 0.999 * expected <= drift_uncertainty(x, t) <= 1.2 * expected
+    assert math.isnan(drift_uncertainty(x[:2], t[:2]))
+
+
 def test_set_point_agreement():
     # The case: dp_pitot logged in Pa under an [mbar] header reads 100 times high, so
     # U = sqrt(2 q / rho) comes out 10 times the set 6 m/s (Bernoulli, U ~ sqrt(q)).

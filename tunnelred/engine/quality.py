@@ -83,6 +83,7 @@ class RunMeasures:
     spin_scatter: float = _NAN  # std(alpha(t))/mean(alpha) [-], spinning runs only
     spin_drift: float = _NAN  # change of alpha over the run / mean [-], spinning runs only
     speed_drift: float = _NAN  # change of U over the run / mean [-]
+    u_speed_drift: float = 0.0  # its standard uncertainty from the record's own noise [-]
     temperature_drift: float = _NAN  # change of T over the run [K]
     zero_shift: tuple[float, ...] = ()  # |pre − post zero| / full scale, per load [-]
     overload: tuple[float, ...] = ()  # peak |load| / full scale, per load [-]
@@ -216,10 +217,17 @@ class Check:
     limit: Callable[[RunMeasures, Tolerances], float] | None = None
 
 
-def _stagnation_limit(m: RunMeasures, t: Tolerances) -> float:
-    """The tolerance plus k u(Cp_max): a miss the declared uncertainties explain is no fault."""
-    u = m.u_Cp_max if m.u_Cp_max > 0 else 0.0
-    return t.stagnation_cp + t.agreement_k * u
+def _beyond_u(tolerance: str, u_measure: str) -> Callable[[RunMeasures, Tolerances], float]:
+    """The limit tolerance + k u(measure): a departure the measure's own u explains is no fault.
+
+    k is ``agreement_k``; a u that is not positive (not estimated) adds nothing.
+    """
+
+    def limit(m: RunMeasures, t: Tolerances) -> float:
+        u = getattr(m, u_measure)
+        return float(getattr(t, tolerance)) + t.agreement_k * (u if u > 0 else 0.0)
+
+    return limit
 
 
 def _cl_limit(m: RunMeasures, t: Tolerances) -> float:
@@ -253,7 +261,9 @@ CHECKS: tuple[Check, ...] = (
         "speed_drift",
         "speed_drift",
         "above",
-        "tunnel speed drift {pct:.1f} % exceeds {tol_pct:.1f} % over the run",
+        "tunnel speed drift {pct:.1f} % over the run exceeds {tol_pct:.1f} % plus "
+        "k = {t.agreement_k:g} × its u {m.u_speed_drift:.4f}",
+        limit=_beyond_u("speed_drift", "u_speed_drift"),
     ),
     Check(
         "temperature_drift",
@@ -328,7 +338,7 @@ CHECKS: tuple[Check, ...] = (
         "above",
         "alpha = {m.alpha:.3f} run: Cp_max {m.Cp_max:.3f} differs from 1 by {value:.3f}, "
         "more than {tolerance:.3f} plus k = {t.agreement_k:g} × its u {m.u_Cp_max:.3f}",
-        limit=_stagnation_limit,
+        limit=_beyond_u("stagnation_cp", "u_Cp_max"),
     ),
     Check(
         "speed_setpoint",

@@ -523,6 +523,29 @@ def _merged_pressure(campaign, spec, points: _PressurePoints, q_mean: float, dea
     return merged, dead
 
 
+def drift_uncertainty(values: np.ndarray, time: np.ndarray) -> float:
+    """Standard uncertainty of a record's least-squares change b (t_N − t_1), from its noise.
+
+    u(b) = s_r / sqrt(Σ (t_i − t̄)²) · sqrt(N / N_eff), with s_r the residuals' standard
+    deviation about the line (N − 2 degrees of freedom) and N_eff their effective sample size
+    (:func:`conditions.effective_sample_size`): for noise that is correlated over times short
+    against the record, the variance of a regression slope grows by the same factor N / N_eff
+    as that of the mean: least squares on a polynomial trend is asymptotically efficient, with
+    the variance set by the noise spectrum at zero frequency (U. Grenander, Ann. Math. Stat. 25
+    (1954) 252–272, from memory).
+    NaN for fewer than three samples.
+    """
+    x, t = np.asarray(values, dtype=float), np.asarray(time, dtype=float)
+    if x.size < 3:
+        return float("nan")
+    tc = t - t.mean()
+    slope = np.dot(tc, x - x.mean()) / np.dot(tc, tc)
+    residuals = x - x.mean() - slope * tc
+    s_r = np.sqrt(np.dot(residuals, residuals) / (x.size - 2))
+    inflation = np.sqrt(x.size / conditions.effective_sample_size(residuals))
+    return float(s_r / np.sqrt(np.dot(tc, tc)) * inflation * (t[-1] - t[0]))
+
+
 def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     t = tunnel["time"].to_numpy()
     column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
@@ -532,6 +555,7 @@ def _tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     }
     u_speed = conditions.series_statistics(fs["U"].to_numpy(), t)
     measures["speed_drift"] = abs(u_speed.drift) / u_speed.mean
+    measures["u_speed_drift"] = drift_uncertainty(fs["U"].to_numpy(), t) / u_speed.mean
     measures["temperature_drift"] = abs(stats["T"].drift)
     means = {"dp" if name == column else name: (s.mean, s.u_mean) for name, s in stats.items()}
     return air_data_inputs(cfg, means)
