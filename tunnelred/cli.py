@@ -56,6 +56,14 @@ def _fail_usage(message: str) -> int:
     return 2
 
 
+def _require_folders(*folders: Path | None) -> None:
+    """Stop with a usage error (exit 2) at the first of ``folders`` that is not a folder; ``None``
+    stands for an optional folder not given."""
+    for folder in folders:
+        if folder is not None and not folder.is_dir():
+            raise UsageError(f"{folder}: no such folder")
+
+
 def _lines(lines) -> str:
     """Lines of output for the terminal, each escaped (see :func:`printable`)."""
     return "\n".join(printable(line) for line in lines)
@@ -91,8 +99,7 @@ def _range(values, fmt: str) -> str:
 def _run_check(args) -> int:
     from tunnelred.inputs.readers import KINDS, STREAMS, open_campaign
 
-    if not args.campaign.is_dir():
-        return _fail_usage(f"{args.campaign}: no such folder")
+    _require_folders(args.campaign)
     campaign = open_campaign(args.campaign, check_logs=True)
     config = campaign.config
     out = []
@@ -251,8 +258,7 @@ def _add_reduce(subparsers) -> None:
 def _run_reduce(args) -> int:
     from tunnelred.pipeline.campaign import reduce_campaign
 
-    if not args.campaign.is_dir():
-        return _fail_usage(f"{args.campaign}: no such folder")
+    _require_folders(args.campaign)
     if args.out.exists() and not args.out.is_dir():
         return _fail_usage(f"{args.out} exists and is not a folder")
     try:
@@ -311,10 +317,7 @@ def _add_report(subparsers) -> None:
 def _run_report(args) -> int:
     from tunnelred.products.report import write_report
 
-    if not args.results.is_dir():
-        return _fail_usage(f"{args.results}: no such folder")
-    if args.campaign is not None and not args.campaign.is_dir():
-        return _fail_usage(f"{args.campaign}: no such folder")
+    _require_folders(args.results, args.campaign)
     pdf = write_report(args.results, args.out, campaign=args.campaign, full_config=args.full_config)
     print(f"report written to {printable(pdf)}")
     return 0
@@ -344,8 +347,7 @@ def _add_export(subparsers) -> None:
 def _run_export(args) -> int:
     from tunnelred.products.spreadsheet import write_xlsx
 
-    if not args.results.is_dir():
-        return _fail_usage(f"{args.results}: no such folder")
+    _require_folders(args.results)
     if args.xlsx.suffix.lower() != ".xlsx":
         return _fail_usage(f"{args.xlsx}: the workbook's name must end in .xlsx")
     print(f"workbook written to {printable(write_xlsx(args.results, args.xlsx))}")
@@ -418,9 +420,7 @@ def _add_compare(subparsers) -> None:
 def _run_compare(args) -> int:
     from tunnelred.products.compare import PAIR_TOLERANCE, run_compare
 
-    for folder in args.results:
-        if not folder.is_dir():
-            return _fail_usage(f"{folder}: no such folder")
+    _require_folders(*args.results)
     for option, value in (("--pair-tolerance", args.pair_tolerance), ("--max-gap", args.max_gap)):
         if value is not None and not value >= 0.0:
             return _fail_usage(f"{option} takes a spin-ratio step of 0 or more, not {value}")
