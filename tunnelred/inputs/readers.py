@@ -46,7 +46,7 @@ from tunnelred.inputs.logs import (
     split_line,
     stream_hints,
 )
-from tunnelred.inputs.streams import STREAM_NAMES
+from tunnelred.inputs.streams import STREAM_NAMES, StreamSpec
 from tunnelred.inputs.streams import STREAMS as STREAM_SPECS
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
@@ -185,11 +185,10 @@ def _read_runs(path: Path, problems: list[Problem]):
             _encoding_problem(file, data[: exc.start].count(b"\n") + 1, exc.start, data)
         )
         return [], {}, True
-    reader = csv.reader(io.StringIO(text, newline=""))
-    try:
-        header = next(reader, None)
-    except csv.Error as exc:
-        problems.append(_csv_problem(file, reader.line_num, exc))
+    records = runs_records(text)
+    _, line, header, error = next(records, (0, 0, None, None))
+    if error is not None:
+        problems.append(_csv_problem(file, line, error))
         return [], {}, True
     if not header or not any(c.strip() for c in header):
         problems.append(
@@ -199,58 +198,17 @@ def _read_runs(path: Path, problems: list[Problem]):
     if len(header) > MAX_COLUMNS:
         problems.append(_too_many_columns(file, len(header)))
         return [], {}, True
-    names, units = [], {}
-    fatal = False
-    for cell in header:
-        cell = cell.strip()
-        base, unit = cell, None
-        if "[" in cell:
-            try:
-                base, unit = parse_header(cell)
-            except ValueError as exc:
-                problems.append(Problem(file, 1, cell, "a column name", str(exc)))
-        if base in names:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    "each column once",
-                    f"{brief(base)} twice",
-                    "Delete one of them.",
-                )
-            )
-            fatal = True
-        names.append(base)
-        known = _RUNS_REQUIRED + _RUNS_OPTIONAL + tuple(_RUNS_WITH_UNITS)
-        if base not in known:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    f"only the columns {', '.join(known)}",
-                    brief(base),
-                    "Check the spelling; put remarks in notes.",
-                )
-            )
-        else:
-            units[base] = column_unit(file, cell, base, unit, _RUNS_WITH_UNITS.get(base), problems)
+    names, units, fatal = runs_header(header, problems)
     for name in _RUNS_REQUIRED:
         if name not in names:
             problems.append(Problem(file, 1, name, f"a column {name!r}", "none", "Add it."))
             fatal = True
     rows = []
-    while True:
-        try:
-            cells = next(reader, None)
-        except csv.Error as exc:
+    for _, line, cells, error in records:
+        if error is not None:
             # the reader cannot go on past a cell over its limit: runs.csv is unusable
-            problems.append(_csv_problem(file, reader.line_num, exc))
+            problems.append(_csv_problem(file, line, error))
             return rows, units, True
-        if cells is None:
-            break
-        line = reader.line_num
         if not any(c.strip() for c in cells):
             continue
         if len(rows) == MAX_RUNS:
@@ -289,6 +247,70 @@ def _read_runs(path: Path, problems: list[Problem]):
             continue
         rows.append((line, {n: c.strip() for n, c in zip(names, cells, strict=True)}, None))
     return rows, units, fatal
+
+
+def runs_records(text: str) -> Iterator[tuple[int, int, list[str] | None, csv.Error | None]]:
+    """Each CSV record of a runs.csv text, the header first: (first, last, cells, error), the
+    record on physical lines ``first + 1`` to ``last``; ``cells`` None and ``error`` the csv
+    module's refusal (a cell over its limit) when it cannot read the record. Shared with the
+    watch (tunnelred.live.folder), which reads the whole lines of a runs.csv still written."""
+    reader = csv.reader(io.StringIO(text, newline=""))
+    first = 0
+    while True:
+        try:
+            cells = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as exc:
+            yield first, reader.line_num, None, exc
+        else:
+            yield first, reader.line_num, cells, None
+        first = reader.line_num
+
+
+def runs_header(header: list[str], problems: list[Problem]) -> tuple[list[str], dict, bool]:
+    """runs.csv's header row: the base names in order, each known column's unit conversion
+    (None for a column without unit) and whether it is fatal (a column twice); the problems
+    found go to ``problems``."""
+    file = _RUNS_FILE
+    names, units = [], {}
+    fatal = False
+    for cell in header:
+        cell = cell.strip()
+        base, unit = cell, None
+        if "[" in cell:
+            try:
+                base, unit = parse_header(cell)
+            except ValueError as exc:
+                problems.append(Problem(file, 1, cell, "a column name", str(exc)))
+        if base in names:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    "each column once",
+                    f"{brief(base)} twice",
+                    "Delete one of them.",
+                )
+            )
+            fatal = True
+        names.append(base)
+        known = _RUNS_REQUIRED + _RUNS_OPTIONAL + tuple(_RUNS_WITH_UNITS)
+        if base not in known:
+            problems.append(
+                Problem(
+                    file,
+                    1,
+                    base,
+                    f"only the columns {', '.join(known)}",
+                    brief(base),
+                    "Check the spelling; put remarks in notes.",
+                )
+            )
+        else:
+            units[base] = column_unit(file, cell, base, unit, _RUNS_WITH_UNITS.get(base), problems)
+    return names, units, fatal
 
 
 def _csv_problem(file: str, line: int, exc: csv.Error) -> Problem:
@@ -362,6 +384,21 @@ def column_unit(
 
 def _split_ids(text: str) -> tuple[str, ...]:
     return tuple(s.strip() for s in text.split(";") if s.strip())
+
+
+#: runs.csv's columns naming the runs a run's reduction reads besides its own, in the order of
+#: :attr:`RunSpec.uses`.
+RUN_LIST_COLUMNS = ("zero", "tare", "pressure_with")
+
+
+def run_lists(row: Mapping[str, str]) -> dict[str, tuple[str, ...]]:
+    """The run ids a runs.csv row names in each of :data:`RUN_LIST_COLUMNS` (split at ';')."""
+    return {column: _split_ids(row.get(column, "")) for column in RUN_LIST_COLUMNS}
+
+
+def log_cells(row: Mapping[str, str]) -> list[tuple[StreamSpec, str]]:
+    """Each stream whose log a runs.csv row names, with the path as written, in stream order."""
+    return [(spec, row[spec.log_column]) for spec in STREAM_SPECS if row.get(spec.log_column)]
 
 
 def _check_path(root: Path, text: str, file: str, line: int, column: str, problems) -> str | None:
@@ -509,15 +546,13 @@ def _row_logs(root, row: dict, kind: str, line: int, mine: list) -> dict[str, st
     needs."""
     bad = _row_problem(mine, line)
     logs: dict[str, str] = {}
-    for spec in STREAM_SPECS:
-        text = row.get(spec.log_column, "")
-        if text:
-            before = len(mine)
-            rel = _check_path(root, text, _RUNS_FILE, line, spec.log_column, mine)
-            if rel is not None:
-                logs[spec.name] = rel
-            elif len(mine) == before:
-                logs[spec.name] = text
+    for spec, text in log_cells(row):
+        before = len(mine)
+        rel = _check_path(root, text, _RUNS_FILE, line, spec.log_column, mine)
+        if rel is not None:
+            logs[spec.name] = rel
+        elif len(mine) == before:
+            logs[spec.name] = text
     for spec in STREAM_SPECS:
         if kind in spec.needed_by and not row.get(spec.log_column):
             bad(spec.log_column, f"the {spec.name} log of a {kind} run", "an empty cell")
@@ -561,8 +596,7 @@ def _set_point(text: str, name: str, units, bad) -> float | None:
 
 def _row_run_lists(row: dict, kind: str, bad) -> tuple[tuple[str, ...], ...]:
     """The zero, tare and pressure_with runs the row names, each allowed on its kinds of run."""
-    zero = _split_ids(row.get("zero", ""))
-    tare = _split_ids(row.get("tare", ""))
+    zero, tare, pressure_with = run_lists(row).values()
     if kind == "zero" and (zero or tare):
         bad("zero" if zero else "tare", "no zero or tare runs on a zero run", "some")
     if kind in ("data", "tare") and row.get("balance_log") and not zero:
@@ -578,7 +612,6 @@ def _row_run_lists(row: dict, kind: str, bad) -> tuple[tuple[str, ...], ...]:
         bad("tare", "tare runs only on a data run", brief(row["tare"]))
     if tare and kind == "data" and not row.get("balance_log"):
         bad("tare", "tare runs only with a balance log", brief(row["tare"]))
-    pressure_with = _split_ids(row.get("pressure_with", ""))
     if pressure_with and (kind != "data" or not row.get("pressure_log")):
         bad(
             "pressure_with",

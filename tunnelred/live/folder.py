@@ -4,15 +4,13 @@ needs, and what was seen of each file between two looks.
 
 from __future__ import annotations
 
-import csv
-import io
 import os
 import re
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath
 
 from tunnelred.common.errors import Problem
-from tunnelred.inputs.readers import STREAMS
+from tunnelred.inputs.readers import log_cells, run_lists, runs_header, runs_records
 
 NEWLINE = re.compile(rb"\r\n|\r|\n")
 
@@ -73,23 +71,22 @@ def _cell(line: str, index: int) -> str:
 
 
 def read_runs_rows(root: Path, text: str) -> tuple[list[str], list[RunsRow]]:
-    """The physical lines of a runs.csv holding whole lines, and its rows that name a run."""
+    """The physical lines of a runs.csv holding whole lines, and its rows that name a run.
+
+    The records, header names, logs and referenced runs are read by the readers' own runs.csv
+    functions (runs_records, runs_header, log_cells, run_lists); the row checks are left to the
+    readers when the snapshot is reduced.
+    """
     lines = re.findall(r"[^\r\n]*(?:\r\n|\r|\n)", text)
-    reader = csv.reader(io.StringIO(text, newline=""))
-    header = next(reader, None)
+    records = runs_records(text)
+    _, _, header, _ = next(records, (0, 0, None, None))
     if header is None:
         return lines, []
-    names = [cell.strip().lstrip("\ufeff") for cell in header]
+    names = runs_header(header, [])[0]  # its problems are the readers' to report
     rows = []
-    first = reader.line_num
-    while True:
-        try:
-            record = next(reader)
-        except StopIteration:
-            break
-        except csv.Error as exc:  # a cell over the csv module's limit (128 KiB), say
-            last = reader.line_num
-            record_text = "".join(lines[first:last])
+    for first, last, record, error in records:
+        record_text = "".join(lines[first:last])
+        if error is not None:  # a cell over the csv module's limit (128 KiB), say
             run = _cell(record_text, names.index("run")) if "run" in names else ""
             where = f"runs.csv:{first + 1}"
             rows.append(
@@ -101,37 +98,26 @@ def read_runs_rows(root: Path, text: str) -> tuple[list[str], list[RunsRow]]:
                     needs=(),
                     lines=(first, last),
                     text=record_text,
-                    problem=f"{where}: {exc}; the row cannot be read",
+                    problem=f"{where}: {error}; the row cannot be read",
                 )
             )
-            first = last
             continue
-        last = reader.line_num
         cells = {n: c.strip() for n, c in zip(names, record, strict=False)}
         run = cells.get("run", "")
         if run:
-            logs = tuple(
-                inside_folder(root, cells[f"{s}_log"]) for s in STREAMS if cells.get(f"{s}_log")
-            )
-            needs = tuple(
-                s.strip()
-                for column in ("zero", "tare", "pressure_with")
-                for s in cells.get(column, "").split(";")
-                if s.strip()
-            )
+            references = run_lists(cells)
             rows.append(
                 RunsRow(
                     run=run,
                     kind=cells.get("kind", ""),
                     config=cells.get("config", ""),
-                    logs=logs,
-                    needs=needs,
-                    zeros=tuple(z.strip() for z in cells.get("zero", "").split(";") if z.strip()),
+                    logs=tuple(inside_folder(root, text) for _, text in log_cells(cells)),
+                    needs=tuple(ref for refs in references.values() for ref in refs),
+                    zeros=references["zero"],
                     lines=(first, last),
-                    text="".join(lines[first:last]),
+                    text=record_text,
                 )
             )
-        first = last
     return lines, rows
 
 
