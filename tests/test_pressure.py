@@ -497,3 +497,27 @@ def test_find_dead_taps_array_input_and_no_overlap():
     assert find_dead_taps(["a", "b", "c", "d"], cp) == {}
     with pytest.raises(ValueError, match="3 tap names"):
         find_dead_taps(["a", "b", "c"], cp)
+
+
+def test_quadrature_uncertainty_covers_the_rule_error_of_sixteen_taps():
+    # The forward model's Cp of a model at rest (tunnelred.demo.truth.shaped_cp, independent of
+    # the reduction) at 16 taps every 22.5 deg: the periodic trapezoid rule misses CD_p = 0.9 by
+    # about 0.006 and CL_p = 0 by up to 0.009, depending on the taps' phase. The u claimed for it
+    # must cover both within 2u, and not be wider than the error's own order (10×).
+    from tunnelred.demo.truth import shaped_cp
+    from tunnelred.physics.pressure import quadrature_uncertainty
+
+    for offset in (0.0, 5.0, 11.25):
+        theta = np.arange(16) * 22.5 + offset
+        cp = shaped_cp(np.radians(theta), 0.0, 0.9)
+        CL, CD = integrate_cp(theta, cp)
+        u = quadrature_uncertainty(theta, cp)
+        assert abs(CL) <= 2 * u and abs(CD - 0.9) <= 2 * u, (offset, CL, CD, u)
+        assert u <= 10 * max(abs(CL), abs(CD - 0.9)), (offset, u)
+    # The N-point periodic trapezoid rule is exact for trigonometric polynomials of degree < N
+    # (Trefethen and Weideman, SIAM Review 56 (2014), §3), and so are its 8-point halves for
+    # potential flow plus drag, 1 − 4 sin²θ + 0.3 cos θ (degree 2): no rule error to claim.
+    theta = np.arange(16) * 22.5
+    x = np.radians(theta)
+    assert quadrature_uncertainty(theta, 1 - 4 * np.sin(x) ** 2 + 0.3 * np.cos(x)) < 1e-12
+    assert np.isnan(quadrature_uncertainty(theta[::3], np.cos(x[::3])))  # 6 points: no halves

@@ -682,6 +682,8 @@ def run_model(
             cp_u = p_tap / q_u[..., None]
         if theta_bins is not None and integrate:
             CL_p, CD_p = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
+            if "quadrature_CL_p" in x:  # the rule's own error at the points' spacing
+                CL_p, CD_p = CL_p + x["quadrature_CL_p"], CD_p + x["quadrature_CD_p"]
         cd_for_wake = coeffs["CD"] if has_balance else CD_p
         cl_for_lift = coeffs["CL"] if has_balance else CL_p
         wc = corrections.wall_correction(
@@ -970,6 +972,11 @@ def _pressure_step(campaign, spec, data, q_mean: float, spin: _SpinStep, measure
         # The balance result stands; only the pressure forces are left out.
         integrate = False
         measures["pressure_gap"] = str(exc)
+    if integrate:
+        u_rule = pressure.quadrature_uncertainty(points.theta, points.reading / q_mean)
+        if np.isfinite(u_rule):
+            for name in ("CL_p", "CD_p"):
+                inputs[f"quadrature_{name}"] = Input(0.0, u_rule, "B", f"{name} quadrature")
     return _PressureStep(points, dead_taps, integrate, inputs, model)
 
 

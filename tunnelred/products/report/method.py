@@ -107,6 +107,8 @@ BUDGET_INPUTS: dict[str, tuple[str, str]] = {
     "p_scanner": ("pressure scanner, per tap", "Pa"),
     "tap_azimuth": ("tap azimuth, per tap (installed, tubing delay)", "deg"),
     "encoder": ("encoder zero", "deg"),
+    "quadrature_CL_p": ("CL_p quadrature (rule error at the points' spacing)", "-"),
+    "quadrature_CD_p": ("CD_p quadrature (rule error at the points' spacing)", "-"),
 }
 
 
