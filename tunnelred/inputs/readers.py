@@ -12,7 +12,7 @@ import csv
 import hashlib
 import io
 import re
-from collections.abc import Iterable, Iterator, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from dataclasses import dataclass, field, replace
 from datetime import datetime
 from pathlib import Path
@@ -724,6 +724,21 @@ def _without_closing_zero(spec: RunSpec, runs: dict[str, RunSpec], unreadable) -
     return replace(spec, zero=(opening.run,), provisional=True)
 
 
+def run_closure(run_id: str, uses: Callable[[str], Iterable[str]]) -> list[str]:
+    """``run_id`` and every run reached through ``uses`` (the runs one run's reduction reads),
+    breadth first, each once; a run named but without a row is listed and leads nowhere.
+    :meth:`Campaign.dependencies` and the watch (on the rows of a runs.csv still written) use it.
+    """
+    order, todo = [], [run_id]
+    while todo:
+        rid = todo.pop(0)
+        if rid in order:
+            continue
+        order.append(rid)
+        todo += list(uses(rid))
+    return order
+
+
 # ---------------------------------------------------------------------------------------------
 # The campaign
 
@@ -767,16 +782,7 @@ class Campaign:
 
     def dependencies(self, run_id: str) -> list[str]:
         """The run and every run its reduction reads (:attr:`RunSpec.uses`, transitively)."""
-        order, todo = [], [run_id]
-        while todo:
-            rid = todo.pop(0)
-            if rid in order:
-                continue
-            order.append(rid)
-            spec = self.runs.get(rid)
-            if spec is not None:
-                todo += list(spec.uses)
-        return order
+        return run_closure(run_id, lambda rid: self.runs[rid].uses if rid in self.runs else ())
 
     def shared_problems(self) -> list[Problem]:
         """Problems that stop every run: those of campaign.toml and of runs.csv as a whole."""

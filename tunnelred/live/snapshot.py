@@ -15,6 +15,7 @@ from pathlib import Path
 from tunnelred.common.errors import InputError, OutputFolderError, Problem
 from tunnelred.engine import quality
 from tunnelred.inputs.config import load_config
+from tunnelred.inputs.readers import run_closure
 from tunnelred.live.figure import live_figure_into
 from tunnelred.live.folder import (
     NEWLINE,
@@ -191,9 +192,7 @@ class Watcher:
         for row in self.rows:
             self._judge(row.run, by_id, states, verdicts, ())
         available = {
-            r.run
-            for r in self.rows
-            if self._available(r.run, by_id, set(), skip=self.pending.get(r.run))
+            r.run for r in self.rows if self._available(r.run, by_id, skip=self.pending.get(r.run))
         }
         snapshot_text = self._snapshot_runs(available)
         named_copied = all(rel in self.copied for rel in self.named_files)
@@ -279,17 +278,23 @@ class Watcher:
         before = [z for z in row.zeros if z not in after]
         return after[0] if len(after) == 1 and len(before) == 1 else None
 
-    def _available(self, rid, by_id, visiting, skip: str | None = None) -> bool:
-        """Every log of the run and of its zero and tare runs (but ``skip``, a closing zero
-        still pending) has a copy in the snapshot."""
-        row = by_id.get(rid)
-        if row is None or row.problem:
-            return False
-        if rid in visiting:
-            return True
-        visiting = visiting | {rid}
-        own = all(rel is None or rel in self.copied for rel in row.logs)
-        return own and all(self._available(n, by_id, visiting) for n in row.needs if n != skip)
+    def _available(self, rid, by_id, skip: str | None = None) -> bool:
+        """Every log of the run and of the runs it reads, transitively (the readers'
+        run_closure; but ``skip``, a closing zero still pending, as the run's own need), has a
+        copy in the snapshot."""
+
+        def needs(other: str) -> tuple[str, ...]:
+            row = by_id.get(other)
+            if row is None:
+                return ()
+            return tuple(n for n in row.needs if not (other == rid and n == skip))
+
+        return all(
+            (row := by_id.get(other)) is not None
+            and not row.problem
+            and all(rel is None or rel in self.copied for rel in row.logs)
+            for other in run_closure(rid, needs)
+        )
 
     def _signature(self, rid, by_id, visiting=frozenset(), skip: str | None = None) -> tuple:
         """What the run's reduction reads, as the watch knows it: rows and copied versions
