@@ -143,6 +143,10 @@ def _run_check(args) -> int:
     return _print_problems(campaign.problems + campaign_problems(campaign))
 
 
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}" if n == 1 else f"{n} {noun}s"
+
+
 def _print_problems(problems) -> int:
     if not problems:
         print("no problems found")
@@ -150,7 +154,7 @@ def _print_problems(problems) -> int:
     by_file: dict[str, list] = defaultdict(list)
     for p in problems:
         by_file[p.file].append(p)
-    print(f"\n{len(problems)} problems in {len(by_file)} files:")
+    print(f"\n{_count(len(problems), 'problem')} in {_count(len(by_file), 'file')}:")
     for file, items in by_file.items():
         print(f"\n{printable(file)}")
         for p in sorted(items, key=lambda p: (p.line or 0, p.column or "")):
