@@ -199,9 +199,10 @@ def test_predicted_u_against_the_spread_over_seeds(tmp_path):
     # Campaigns whose systematic errors are drawn from the declared u (SynthSpec.
     # systematic_errors): the spread of (reduced - truth) over seeds is what u claims.
     # Measured (40 seeds, docs/plan.md): spread of CL 0.011, 0.014, 0.021, 0.028 at alpha 0-3;
-    # the reduction reports 0.023, 0.020, 0.024, 0.030 and the plan predicts 0.023, 0.021,
-    # 0.023, 0.028. Both are conservative at low spin, where the shedding's fluctuation counts
-    # fully in u but averages out of the mean better than N_eff = T / (2 tau) says.
+    # the reduction reports 0.014, 0.015, 0.024, 0.030 (Sokal-window N_eff; 0.023, 0.020 at
+    # alpha 0, 1 with the first-zero sum) and the plan predicts 0.023, 0.021, 0.023, 0.028. The
+    # plan is conservative at low spin, where the shedding's fluctuation averages out of the mean
+    # better than its N_eff = T / (2 tau) says.
     seeds = 40
     errors = []
     for seed in range(seeds):
