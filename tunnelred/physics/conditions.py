@@ -714,7 +714,7 @@ def effective_sample_size(x: npt.ArrayLike) -> float:
     Returns
     -------
     float
-        N_eff = N s² / (N var(mean)) estimated, clipped to [1, 4 N]. [-]
+        N_eff = s² / var(mean), estimated; clipped to [1, 4 N]. [-]
 
     Notes
     -----
