@@ -25,6 +25,7 @@ from tunnelred.common.errors import UsageError
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine import reduction
 from tunnelred.pipeline import campaign as engine
+from tunnelred.pipeline.campaign import executors
 
 OUTPUT_FILES = {
     "results.nc",
@@ -129,7 +130,8 @@ def test_process_pool_identical_to_serial(campaign_dir, monkeypatch):
         return real_guarded(campaign, run_id, monte_carlo)
 
     monkeypatch.setattr(engine._PoolStart, "__init__", init)
-    monkeypatch.setattr(engine, "_reduce_guarded", guarded)
+    # patched where the executors look it up
+    monkeypatch.setattr(executors, "_reduce_guarded", guarded)
     pooled = _reduce(campaign_dir, None, workers=2)
     assert 0 < len(here) < len(DATA_RUNS)  # both this process and the pool reduced runs
     xr.testing.assert_identical(_without_time(pooled.dataset), _without_time(serial.dataset))
