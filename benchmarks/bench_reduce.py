@@ -212,21 +212,27 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
     py = sys.executable
     cli = [py, "-m", "tunnelred", "reduce", str(campaign)]
     work = Path(tempfile.mkdtemp(prefix="tunnelred-versus-"))
-    commands = {
-        "tunnelred_1": [*cli, "-o", str(work / "out1"), "--fresh", "--workers", "1"],
-        "naive": [py, str(HERE / "naive_reference.py"), str(campaign), str(work / "naive.csv")],
-        "floor": [py, "-c", _FLOOR_CODE, str(campaign)],
-        "rerun": [*cli, "-o", str(work / "out1"), "--workers", "1"],
-    }
-    if parallel:
-        commands["tunnelred_2"] = [*cli, "-o", str(work / "out2"), "--fresh", "--workers", "2"]
-        commands["dask_2"] = [
-            *cli, "-o", str(work / "outd"), "--fresh", "--workers", "2", "--dask", "local"
-        ]  # fmt: skip
-    times: dict[str, list[float]] = {name: [] for name in commands}
+    def commands_of(round_: int) -> dict[str, list[str]]:
+        # A new OUT for every fresh reduction: an OUT whose previous generation holds the same
+        # results would carry its figures over, and "fresh" would not draw them.
+        out = {name: str(work / f"{name}_{round_}") for name in ("out1", "out2", "outd")}
+        commands = {
+            "tunnelred_1": [*cli, "-o", out["out1"], "--fresh", "--workers", "1"],
+            "naive": [py, str(HERE / "naive_reference.py"), str(campaign), str(work / "naive.csv")],
+            "floor": [py, "-c", _FLOOR_CODE, str(campaign)],
+            "rerun": [*cli, "-o", out["out1"], "--workers", "1"],
+        }
+        if parallel:
+            commands["tunnelred_2"] = [*cli, "-o", out["out2"], "--fresh", "--workers", "2"]
+            commands["dask_2"] = [
+                *cli, "-o", out["outd"], "--fresh", "--workers", "2", "--dask", "local"
+            ]  # fmt: skip
+        return commands
+
+    times: dict[str, list[float]] = {name: [] for name in commands_of(0)}
     load = [os.getloadavg()[0]]
-    for _ in range(rounds):
-        for name, command in commands.items():
+    for round_ in range(rounds):
+        for name, command in commands_of(round_).items():
             times[name].append(_timed(command))
             print(f"  {name}: {times[name][-1]:.2f} s", file=sys.stderr, flush=True)
         load.append(os.getloadavg()[0])
@@ -242,7 +248,7 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
         "tunnelred_over_naive": median["tunnelred_1"] / median["naive"],
         "tunnelred_over_floor": median["tunnelred_1"] / median["floor"],
         "rerun_fraction": median["rerun"] / median["tunnelred_1"],
-        "agreement": _agreement(work / "out1", work / "naive.csv"),
+        "agreement": _agreement(work / "out1_0", work / "naive.csv"),
     }
     if parallel:
         record["speedup_2_workers"] = median["tunnelred_1"] / median["tunnelred_2"]
