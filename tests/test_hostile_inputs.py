@@ -338,6 +338,25 @@ def test_check_finds_pressure_with_naming_its_own_run(camp):
     assert "the run itself" in problem.found
 
 
+def test_a_run_naming_itself_as_zero_is_the_one_problem_of_its_row(camp):
+    # R001's zeros become "R001;Z002": only R001 is wrong, Z002 is a zero run and must pass
+    set_cell(camp / "runs.csv", 6, 7, "R001;Z002")
+    (problem,) = problems(camp)
+    assert (problem.file, problem.line, problem.column) == ("runs.csv", 7, "zero")
+    assert problem.found == "'R001', the run itself"
+    assert problem.expected == "the id of a zero run other than 'R001' itself"
+
+
+def test_a_bad_reference_after_a_self_reference_keeps_its_own_reason(camp):
+    # R002's tares become "R002;Z001": the second is wrong for its own reason (a zero run)
+    set_cell(camp / "runs.csv", 7, 8, "R002;Z001")
+    found = sorted((p.column, p.expected, p.found) for p in problems(camp))
+    assert found == [
+        ("tare", "the id of a tare run", "'Z001', a zero run"),
+        ("tare", "the id of a tare run other than 'R002' itself", "'R002', the run itself"),
+    ]
+
+
 def test_check_finds_a_cycle_of_pressure_with(camp):
     shutil.copy(camp / "logs/R003_pressure.csv", camp / "logs/R004_pressure.csv")
     text = (camp / "runs.csv").read_text()

@@ -256,14 +256,15 @@ def _check_references(runs: dict[str, RunSpec], unreadable, problems, by_run) ->
     for spec in runs.values():
         for column, wanted in (("zero", "zero"), ("tare", "tare"), ("pressure_with", "data")):
             for ref in getattr(spec, column):
-                wanted, found = _reference_fault(spec, column, wanted, ref, runs, unreadable)
+                # each reference is judged on its own: what one wants must not leak to the next
+                expected, found = _reference_fault(spec, column, wanted, ref, runs, unreadable)
                 if found is None:
                     continue
                 p = Problem(
                     RUNS_FILE,
                     spec.line,
                     column,
-                    f"the id of a {wanted} run",
+                    f"the id of a {expected}",
                     found,
                     f"Fix the {column} column of run {spec.run}.",
                 )
@@ -272,19 +273,20 @@ def _check_references(runs: dict[str, RunSpec], unreadable, problems, by_run) ->
 
 
 def _reference_fault(spec: RunSpec, column: str, wanted: str, ref: str, runs, unreadable):
-    """(what the column wants, what ``ref`` is instead), or (wanted, None) when it fits."""
+    """(what the column wants, what ``ref`` is instead), or (wanted, None) when it fits;
+    what it wants reads after 'the id of a'."""
     target = runs.get(ref)
     if ref == spec.run:
-        return "different data", f"{brief(ref)}, the run itself"
+        return f"{wanted} run other than {brief(spec.run)} itself", f"{brief(ref)}, the run itself"
     if target is None:
-        return wanted, f"{ref!r}, which " + (
+        return f"{wanted} run", f"{ref!r}, which " + (
             "could not be read" if ref in unreadable else "runs.csv does not hold"
         )
     if target.kind != wanted:
-        return wanted, f"{ref!r}, a {target.kind} run"
+        return f"{wanted} run", f"{ref!r}, a {target.kind} run"
     if column == "tare" and target.config != spec.config:
         return (
-            f"tare of configuration {spec.config!r}",
+            f"tare run of configuration {spec.config!r}",
             f"{ref!r}, of configuration {target.config!r}",
         )
     if column == "pressure_with" and (
