@@ -37,6 +37,7 @@ from tunnelred.inputs.readers.rows import build_runs, run_closure
 from tunnelred.inputs.readers.runs import (
     column_unit,
     log_cells,
+    optional_unit,
     read_runs,
     run_lists,
     runs_header,
@@ -56,6 +57,7 @@ __all__ = [
     "read_log",
     "log_columns",
     "column_unit",
+    "optional_unit",
     "runs_records",
     "runs_header",
     "run_lists",

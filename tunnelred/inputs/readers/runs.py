@@ -147,12 +147,7 @@ def runs_header(header: list[str], problems: list[Problem]) -> tuple[list[str], 
     fatal = False
     for cell in header:
         cell = cell.strip()
-        base, unit = cell, None
-        if "[" in cell:
-            try:
-                base, unit = parse_header(cell)
-            except ValueError as exc:
-                problems.append(Problem(file, 1, cell, "a column name", str(exc)))
+        base, unit = optional_unit(file, cell, problems) or (cell, None)
         if base in names:
             problems.append(
                 Problem(
@@ -210,6 +205,19 @@ def _too_many_columns(file: str, count: int) -> Problem:
         f"{count} columns",
         "Check the separator and that this is the right file.",
     )
+
+
+def optional_unit(file: str, cell: str, problems: list) -> tuple[str, str | None] | None:
+    """A stripped header cell whose unit may be left out: ``(base, unit)`` (unit None when the
+    cell has no brackets), or None with a problem when its brackets cannot be read. Shared by
+    runs.csv and a test plan's PLAN.csv."""
+    if "[" not in cell:
+        return cell, None
+    try:
+        return parse_header(cell)
+    except ValueError as exc:
+        problems.append(Problem(file, 1, cell, "a column name", str(exc)))
+        return None
 
 
 def column_unit(

@@ -15,8 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from tunnelred.common.errors import InputError, Problem
-from tunnelred.inputs.readers import column_unit
-from tunnelred.inputs.units import parse_header
+from tunnelred.inputs.readers import column_unit, optional_unit
 
 __all__ = ["PlannedPoint", "read_matrix", "DEFAULT_RATES", "MATRIX_COLUMNS"]
 
@@ -119,14 +118,11 @@ def _header(file: str, header: list[str], problems: list[Problem]):
     names, units = [], {}
     for cell in header:
         cell = cell.strip()
-        base, unit = cell, None
-        if "[" in cell:
-            try:
-                base, unit = parse_header(cell)
-            except ValueError as exc:
-                problems.append(Problem(file, 1, cell, "a column name", str(exc)))
-                names.append("")
-                continue
+        parsed = optional_unit(file, cell, problems)
+        if parsed is None:
+            names.append("")
+            continue
+        base, unit = parsed
         if base not in MATRIX_COLUMNS:
             problems.append(
                 Problem(file, 1, base, f"only the columns {', '.join(MATRIX_COLUMNS)}", repr(base))
