@@ -2,7 +2,8 @@
 
 Each subcommand is a pair of functions: ``_add_<name>(subparsers)`` declares its arguments and
 ``_run_<name>(args) -> int`` does the work and returns the exit status. Add a subcommand by
-writing the pair and listing ``_add_<name>`` in :data:`_SUBCOMMANDS`.
+writing the pair (``_add_<name>`` starts its parser with :func:`_command`) and listing
+``_add_<name>`` in :data:`_SUBCOMMANDS`.
 
 Exit status: 0 success, 1 problems in the input (or a run that failed), 2 a usage error (or an
 output folder that cannot be used), 130 interrupted by Ctrl-C, 143 stopped by SIGTERM, 141 the
@@ -69,13 +70,28 @@ def _lines(lines) -> str:
     return "\n".join(printable(line) for line in lines)
 
 
+def _command(subparsers, run, help: str, description: str, epilog: str) -> argparse.ArgumentParser:
+    """The parser of the subcommand whose work is ``run`` (``_run_<name>``), in the house format;
+    its arguments are the caller's to add."""
+    p = subparsers.add_parser(
+        run.__name__.removeprefix("_run_"),
+        help=help,
+        description=description,
+        epilog=epilog,
+        formatter_class=_HelpFormatter,
+    )
+    p.set_defaults(run=run)
+    return p
+
+
 # ---------------------------------------------------------------------------------------------
 # check
 
 
 def _add_check(subparsers) -> None:
-    p = subparsers.add_parser(
-        "check",
+    p = _command(
+        subparsers,
+        _run_check,
         help="validate a campaign folder and summarise it",
         description="Read campaign.toml, runs.csv and every log of a campaign folder, check "
         "them against the input format (docs/input-format.md) and print a summary: runs by "
@@ -83,10 +99,8 @@ def _add_check(subparsers) -> None:
         "every problem found, grouped by file, with its line and column.",
         epilog="example:\n  tunnelred check sample_runs/broken\n\n"
         "exit status: 0 no problems, 1 problems found, 2 usage error.",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
-    p.set_defaults(run=_run_check)
 
 
 def _range(values, fmt: str) -> str:
@@ -169,18 +183,17 @@ def _print_problems(problems) -> int:
 
 
 def _add_demo(subparsers) -> None:
-    p = subparsers.add_parser(
-        "demo",
+    p = _command(
+        subparsers,
+        _run_demo,
         help="write a synthetic demo campaign with known truth",
         description="Write a synthetic campaign folder (campaign.toml, runs.csv, logs and "
         "truth.csv with the free-air values used to make it) into DEST.",
         epilog="example:\n  tunnelred demo my-demo --seed 3\n  tunnelred check my-demo",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("dest", type=Path, help="folder to write (created; must be empty)")
     p.add_argument("--seed", type=int, help="random seed of the noise (default: the demo's own)")
     p.add_argument("--force", action="store_true", help="write into a non-empty DEST")
-    p.set_defaults(run=_run_demo)
 
 
 def _run_demo(args) -> int:
@@ -216,8 +229,9 @@ def _positive_int(text: str) -> int:
 
 
 def _add_reduce(subparsers) -> None:
-    p = subparsers.add_parser(
-        "reduce",
+    p = _command(
+        subparsers,
+        _run_reduce,
         help="reduce every data run of a campaign to coefficients with uncertainties",
         description="Reduce every data run of a campaign folder: free stream, balance loads "
         "(zeros, spin tares, wind axes), surface pressure, wall corrections, GUM uncertainty and "
@@ -229,7 +243,6 @@ def _add_reduce(subparsers) -> None:
         "  tunnelred reduce big-campaign -o out --dask tcp://scheduler:8786\n\n"
         "exit status: 0 every run reduced, 1 some runs failed (see OUT/failures.csv), "
         "2 usage error, or a campaign problem that stops every run (nothing is written).",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder (holds campaign.toml)")
     p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
@@ -256,7 +269,6 @@ def _add_reduce(subparsers) -> None:
         action="store_true",
         help="write into a non-empty OUT that is not a tunnelred results folder",
     )
-    p.set_defaults(run=_run_reduce)
 
 
 def _run_reduce(args) -> int:
@@ -293,8 +305,9 @@ def _run_reduce(args) -> int:
 
 
 def _add_report(subparsers) -> None:
-    p = subparsers.add_parser(
-        "report",
+    p = _command(
+        subparsers,
+        _run_report,
         help="write the PDF test report of reduced results",
         description="Write the test report of a results folder made by 'tunnelred reduce': "
         "title page with the cautions, summary and test matrix, test conditions, the wall "
@@ -303,7 +316,6 @@ def _add_report(subparsers) -> None:
         "reasons, the configuration comparison, and an appendix with the configuration and the "
         "SHA-256 of every input.",
         epilog="examples:\n  tunnelred report out \n  tunnelred report out -o entry-3.pdf",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("results", type=Path, help="results folder of tunnelred reduce")
     p.add_argument("-o", "--out", type=Path, help="PDF to write (default RESULTS/report.pdf)")
@@ -315,7 +327,6 @@ def _add_report(subparsers) -> None:
     p.add_argument(
         "--full-config", action="store_true", help="reproduce campaign.toml in the appendix"
     )
-    p.set_defaults(run=_run_report)
 
 
 def _run_report(args) -> int:
@@ -332,20 +343,19 @@ def _run_report(args) -> int:
 
 
 def _add_export(subparsers) -> None:
-    p = subparsers.add_parser(
-        "export",
+    p = _command(
+        subparsers,
+        _run_export,
         help="write the results of an output folder as a spreadsheet",
         description="Write the results of an output folder as an Excel workbook: a results "
         "sheet (results.csv's names, their units in the row below, flagged runs filled in "
         "colour), the uncertainty budgets with readable input names and units, the failures, "
         "and the provenance on a sheet of its own.",
         epilog="example:\n  tunnelred export out --xlsx out/results.xlsx",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("results", type=Path, help="the output folder of 'tunnelred reduce'")
     p.add_argument("--xlsx", type=Path, required=True, metavar="FILE",
                    help="the workbook to write (.xlsx)")  # fmt: skip
-    p.set_defaults(run=_run_export)
 
 
 def _run_export(args) -> int:
@@ -363,8 +373,9 @@ def _run_export(args) -> int:
 
 
 def _add_compare(subparsers) -> None:
-    p = subparsers.add_parser(
-        "compare",
+    p = _command(
+        subparsers,
+        _run_compare,
         help="compare sweeps and configurations with their uncertainties",
         description="Group reduced runs into sweeps (configuration and speed, up and down legs) "
         "and write the differences between configurations (or speeds, or Reynolds-number bands) "
@@ -376,7 +387,6 @@ def _add_compare(subparsers) -> None:
         "left out of the differences unless --include-flagged.",
         epilog="examples:\n  tunnelred compare out -o out/comparison\n"
         "  tunnelred compare entry1/out entry2/out --by re -o comparison\n",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("results", type=Path, nargs="+", help="results folders of tunnelred reduce")
     p.add_argument(
@@ -418,7 +428,6 @@ def _add_compare(subparsers) -> None:
         help="use runs that raised a quality flag in the differences",
     )
     p.add_argument("-o", "--out", type=Path, required=True, help="folder for tables and figures")
-    p.set_defaults(run=_run_compare)
 
 
 def _run_compare(args) -> int:
@@ -456,8 +465,9 @@ def _run_compare(args) -> int:
 
 
 def _add_init(subparsers) -> None:
-    p = subparsers.add_parser(
-        "init",
+    p = _command(
+        subparsers,
+        _run_init,
         help="start a new campaign folder to fill in",
         description="Write a campaign folder to fill in: campaign.toml with every key commented "
         "(unit, default and meaning; required keys marked), runs.csv with its header and one "
@@ -465,12 +475,10 @@ def _add_init(subparsers) -> None:
         "logs/. Then 'tunnelred check DEST' lists what is still to be filled.",
         epilog="example:\n  tunnelred init entry-4\n  tunnelred check entry-4\n\n"
         "exit status: 0 written, 2 DEST not empty (without --force) or a usage error.",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("dest", type=Path, help="the new campaign folder (created)")
     p.add_argument("--force", action="store_true",
                    help="write into a non-empty folder (replacing the template files)")  # fmt: skip
-    p.set_defaults(run=_run_init)
 
 
 def _run_init(args) -> int:
@@ -489,8 +497,9 @@ _POLL_HELP = "0.5"
 
 
 def _add_watch(subparsers) -> None:
-    p = subparsers.add_parser(
-        "watch",
+    p = _command(
+        subparsers,
+        _run_watch,
         help="reduce and flag each run while the test is still running",
         description="Watch a campaign folder while the data acquisition writes into it. A run "
         "is reduced as soon as it is complete: its row in runs.csv is a whole line, every log "
@@ -498,7 +507,6 @@ def _add_watch(subparsers) -> None:
         "them has changed for SETTLE seconds. OUT is kept up to date (results, figures/live.png) "
         "and a live view shows the latest runs with their flags. Ctrl-C stops it cleanly.",
         epilog="example:\n  tunnelred watch /data/entry-3 -o /data/entry-3-out --settle 5",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="the campaign folder being written")
     p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
@@ -516,7 +524,6 @@ def _add_watch(subparsers) -> None:
         help=f"how often to look at the folder (default {_POLL_HELP} s)",
     )
     p.add_argument("--workers", type=_positive_int, default=1, help="processes (default 1)")
-    p.set_defaults(run=_run_watch)
 
 
 def _run_watch(args) -> int:
@@ -537,8 +544,9 @@ _NOISE_OPTIONS = (
 
 
 def _add_plan(subparsers) -> None:
-    p = subparsers.add_parser(
-        "plan",
+    p = _command(
+        subparsers,
+        _run_plan,
         help="pre-test uncertainty analysis of a planned test matrix",
         description="Predict, for every point of a planned test matrix, the conditions (q, U, "
         "Re, Mach, rpm), the balance loads as fractions of full scale, the scanner range used, "
@@ -553,7 +561,6 @@ def _add_plan(subparsers) -> None:
         "may be run.",
         epilog="examples:\n  tunnelred plan my-campaign --matrix PLAN.csv -o plan-out\n"
         "  tunnelred plan my-campaign --matrix PLAN.csv -o out --prior out --target CL=0.01",
-        formatter_class=_HelpFormatter,
     )
     p.add_argument("campaign", type=Path, help="campaign folder (campaign.toml is read)")
     p.add_argument("--matrix", type=Path, required=True, metavar="PLAN.csv",
@@ -583,7 +590,6 @@ def _add_plan(subparsers) -> None:
     air.add_argument("--temperature", type=float, metavar="K", help="[K]")
     air.add_argument("--pressure", type=float, metavar="PA", help="barometric pressure [Pa]")
     air.add_argument("--humidity", type=float, metavar="RH", help="relative humidity, fraction [-]")
-    p.set_defaults(run=_run_plan)
 
 
 def _run_plan(args) -> int:
