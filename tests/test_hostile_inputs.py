@@ -217,6 +217,48 @@ def test_a_long_runs_csv_cell_stops_its_row_only(camp):
     assert campaign.run_problems("R002") == []
 
 
+@pytest.mark.parametrize("char", ["\x00", "\x1b", "\x7f"])
+def test_a_control_character_in_a_runs_csv_cell_stops_its_row_only(camp, char):
+    # before: a NUL (or an escape) in R001's notes was accepted without a word
+    text = (camp / "runs.csv").read_text()
+    notes = '"up sweep, nominal alpha 0"'
+    (camp / "runs.csv").write_text(text.replace(notes, f'"up sweep,{char} nominal alpha 0"', 1))
+    campaign = open_campaign(camp, check_logs=False)
+    (problem,) = campaign.run_problems("R001")
+    assert (problem.file, problem.line, problem.column) == ("runs.csv", 7, "notes")
+    assert problem.found.startswith(f"U+{ord(char):04X}, a control character, at character 10")
+    assert char not in problem.found  # the cell is quoted escaped (repr), never raw
+    assert campaign.run_problems("R002") == []
+
+
+def test_tabs_and_line_breaks_in_a_quoted_notes_cell_are_text(camp):
+    text = (camp / "runs.csv").read_text()
+    notes = '"up sweep, nominal alpha 0"'
+    (camp / "runs.csv").write_text(text.replace(notes, '"up sweep,\tnominal\nalpha 0"', 1))
+    campaign = open_campaign(camp, check_logs=False)
+    assert campaign.run_problems("R001") == []
+    assert campaign.runs["R001"].notes == "up sweep,\tnominal\nalpha 0"
+
+
+def test_a_nul_in_a_log_path_is_a_message_not_an_internal_error(camp, capsys):
+    # before: "internal error: ValueError: embedded null byte" (exit 2) from check
+    text = (camp / "runs.csv").read_text()
+    (camp / "runs.csv").write_text(text.replace(TUNNEL, TUNNEL.replace("_", "_\x00"), 1))
+    status, out = check(camp, capsys)
+    assert status == 1
+    assert "internal error" not in out
+    assert "runs.csv:7 [tunnel_log]" in out and "U+0000" in out
+
+
+def test_a_nul_in_a_file_name_of_campaign_toml_is_a_message(camp, capsys):
+    # TOML writes a NUL as the escape \u0000; before: an internal error (embedded null byte)
+    in_toml(camp, 'photo = "', 'photo = "\\u0000')
+    status, out = check(camp, capsys)
+    assert status == 1
+    assert "internal error" not in out
+    assert "[model.photo]: expected a file name without a NUL character" in out
+
+
 def test_a_log_header_cell_over_the_csv_field_limit_is_a_message(camp, capsys):
     import csv
 

@@ -66,6 +66,10 @@ def inside_campaign(root: Path, text: str) -> tuple[str, Path] | Refusal:
     drive letter or a ``..`` part; a link is followed, and must resolve inside ``root``.
     Whether the file exists is left to :func:`read_regular`.
     """
+    if "\x00" in text:  # no file system names a file so; os calls would raise on it
+        return Refusal(
+            "a file name without a NUL character", repr(text), "Delete the NUL from the name."
+        )
     posix = text.replace("\\", "/")
     pure = PurePosixPath(posix)
     if pure.is_absolute() or re.match(r"^[A-Za-z]:", posix) or ".." in pure.parts:

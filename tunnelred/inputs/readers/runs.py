@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from collections.abc import Iterator, Mapping
 from pathlib import Path
 
@@ -35,6 +36,10 @@ _RUNS_OPTIONAL = (
 #: The run list every problem of a row is reported against.
 RUNS_FILE = "runs.csv"
 RUNS_WITH_UNITS = {"speed_set": "speed", "spin_set": "rotation_rate"}
+#: Characters no runs.csv cell may hold: the C0 controls but tab and the line breaks a quoted
+#: cell may carry, and DEL. A NUL or an escape sequence is the mark of a binary or broken file,
+#: and would be carried into results and the report; the logs refuse them as well (not a number).
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -101,6 +106,13 @@ def read_runs(path: Path, problems: list[Problem]):
             column = names[long[0]] if long[0] < len(names) else None
             problems.append(_long_cell(file, line, column, len(cells[long[0]])))
             rows.append((line, None, run))
+            continue
+        control = [(i, m.start()) for i, c in enumerate(cells) if (m := _CONTROL.search(c))]
+        if control:
+            at_cell, pos = control[0]
+            column = names[at_cell] if at_cell < len(names) else None
+            problems.append(_control_character(file, line, column, cells[at_cell], pos))
+            rows.append((line, None, run if run is not None and not _CONTROL.search(run) else None))
             continue
         if len(cells) != len(names):
             problems.append(
@@ -193,6 +205,17 @@ def _long_cell(file: str, line: int, column: str | None, length: int) -> Problem
         f"cells of at most {MAX_CELL_CHARS} characters",
         f"a cell of {length} characters" + (" or more" if length >= csv.field_size_limit() else ""),
         "Check for a missing closing quote; shorten the text.",
+    )
+
+
+def _control_character(file: str, line: int, column: str | None, cell: str, pos: int) -> Problem:
+    return Problem(
+        file,
+        line,
+        column,
+        "text without control characters (tabs and line breaks in quotes are allowed)",
+        f"U+{ord(cell[pos]):04X}, a control character, at character {pos + 1} of {brief(cell)}",
+        "Delete it: it comes from a binary file or a broken copy, not from typing.",
     )
 
 
