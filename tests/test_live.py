@@ -13,7 +13,11 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+import os
 import shutil
+import signal
+import subprocess
+import sys
 import threading
 import time
 from collections import Counter
@@ -522,6 +526,42 @@ def test_ctrl_c_leaves_outputs_whole(source, tmp_path):
     assert store.read_results(out)["run"].values.tolist() == DATA_RUNS
     assert live.read_status(out).stopped
     assert not list(out.rglob("*.tmp"))
+
+
+def test_sigterm_ends_the_watch_command_with_143(source, tmp_path):
+    # README, exit status: 143 stopped by SIGTERM. Before: 0, and the note said Ctrl-C.
+    campaign = _settled_campaign(source, tmp_path / "campaign")
+    out = tmp_path / "out"
+    repo = Path(__file__).resolve().parents[1]
+    env = dict(os.environ, PYTHONPATH=str(repo) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    command = ["watch", str(campaign), "-o", str(out), "--settle", str(SETTLE), "--poll", "0.1"]
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "tunnelred", *command],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        env=env,
+    )
+    try:
+        deadline = time.monotonic() + LIMIT
+        while time.monotonic() < deadline and proc.poll() is None:
+            status = live.read_status(out)
+            if status is not None and _all_reduced(status):
+                break
+            time.sleep(POLL)
+        assert proc.poll() is None, "the watch ended before it was stopped"
+        proc.send_signal(signal.SIGTERM)
+        shown, err = proc.communicate(timeout=LIMIT)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.communicate()
+    assert proc.returncode == 143, err
+    assert "stopped (SIGTERM)" in err and "Traceback" not in err
+    assert "Ctrl-C" not in shown + err
+    final = live.read_status(out)
+    assert final.stopped and final.note.startswith("stopped (SIGTERM)")
+    assert store.read_results(out)["run"].values.tolist() == DATA_RUNS
 
 
 # ---------------------------------------------------------------------------------------------

@@ -30,7 +30,13 @@ from collections import Counter, defaultdict
 from pathlib import Path
 
 from tunnelred import __version__
-from tunnelred.common.errors import InputError, OutputFolderError, TunnelredError, UsageError
+from tunnelred.common.errors import (
+    InputError,
+    OutputFolderError,
+    Terminated,
+    TunnelredError,
+    UsageError,
+)
 from tunnelred.common.text import printable
 
 __all__ = ["main"]
@@ -671,13 +677,8 @@ def _parser() -> argparse.ArgumentParser:
 _PRELOAD = {"reduce": ("tunnelred.pipeline.campaign",), "watch": ("tunnelred.live.watcher",)}
 
 
-class _Terminated(KeyboardInterrupt):
-    """SIGTERM, raised as an interrupt so that every clean-up made for Ctrl-C runs for it too
-    (pending runs cancelled, pool processes ended, a half-written generation removed)."""
-
-
 def _raise_terminated(signum, frame) -> None:
-    raise _Terminated()
+    raise Terminated()
 
 
 @contextlib.contextmanager
@@ -740,7 +741,7 @@ def _dispatch(args) -> int:
     except TunnelredError as exc:
         print(f"tunnelred: {printable(exc)}", file=sys.stderr)
         return 1
-    except _Terminated:
+    except Terminated:
         print("tunnelred: stopped (SIGTERM); nothing half-written was kept", file=sys.stderr)
         return 143
     except KeyboardInterrupt:

@@ -17,6 +17,7 @@ __all__ = [
     "OutputFolderError",
     "OutsideError",
     "UsageError",
+    "Terminated",
     "MAX_PROBLEMS_PER_FILE",
     "bounded",
     "brief",
@@ -186,3 +187,10 @@ class UsageError(TunnelredError):
     Examples: a ``--dask`` address that is malformed or where no scheduler answers, or an
     optional dependency that is not installed. The command exits 2, as for a usage error.
     """
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, as the ``tunnelred`` command raises it: an interrupt, so that every clean-up
+    made for Ctrl-C runs for it too (pending runs cancelled, pool processes ended, a
+    half-written generation removed), told apart where the two end differently (the exit
+    status 143; the watch, which takes Ctrl-C as its ordinary stop)."""

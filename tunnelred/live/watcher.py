@@ -31,6 +31,7 @@ import time
 from dataclasses import replace
 from pathlib import Path
 
+from tunnelred.common.errors import Terminated
 from tunnelred.common.text import printable
 from tunnelred.live.figure import live_figure
 from tunnelred.live.snapshot import Watcher
@@ -158,6 +159,10 @@ def watch(
             publish(status)
             if stop.wait(poll):
                 break
+    except Terminated:
+        # the command's SIGTERM: OUT is left whole as for Ctrl-C, and the command ends with 143
+        how = "SIGTERM"
+        raise
     except KeyboardInterrupt:
         how = "Ctrl-C"
     finally:
@@ -174,7 +179,8 @@ def watch(
 
 def main_watch(args) -> int:
     """The ``tunnelred watch`` command: ``args.campaign``, ``args.out``, ``args.settle``,
-    ``args.poll`` (and ``args.workers`` if given). Returns the exit status (0; 2 usage error)."""
+    ``args.poll`` (and ``args.workers`` if given). Returns the exit status (0, also after Ctrl-C;
+    2 usage error); the command's SIGTERM (:class:`Terminated`) goes through, for its 143."""
     campaign = Path(args.campaign)
     if not campaign.is_dir():
         print(f"tunnelred: error: {printable(campaign)}: no such folder", file=sys.stderr)
