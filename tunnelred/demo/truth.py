@@ -7,6 +7,16 @@ at rest, falling to a minimum near ``alpha`` ≈ 1.5-2 and rising again; a torqu
 spin ratio; a weak Reynolds-number dependence throughout. :func:`true_surface_cp` gives the
 mid-span Cp(θ) whose integrals are exactly :func:`true_pressure_coefficients`.
 
+Each of the four coefficient functions (illustrative, NOT data) takes the same arguments,
+described here once:
+
+alpha : float or array_like
+    Spin ratio ``omega R / U``, signed. [-]
+reynolds : float or array_like
+    Reynolds number ``rho U d / mu``. [-]
+end_plates : bool, keyword
+    Whether the model carries end plates.
+
 Conventions are those of docs/conventions.md. In particular ``Mz`` is the aerodynamic torque on the
 model about +z: it opposes the spin, so ``CM`` has the sign opposite to ``alpha`` and ``C_power = CM
 alpha`` is negative (power taken from the drive).
@@ -42,17 +52,6 @@ def _lift_shape(end_plates):
 @arraylike
 def true_lift_coefficient(alpha, reynolds, *, end_plates):
     """Whole-span lift coefficient of the illustrative rotating-cylinder model, in free air.
-
-    An illustrative model shaped like published rotating-cylinder measurements, NOT data.
-
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio ``omega R / U``, signed. [-]
-    reynolds : float or array_like
-        Reynolds number ``rho U d / mu``. [-]
-    end_plates : bool
-        Whether the model carries end plates.
 
     Returns
     -------
@@ -100,17 +99,6 @@ def _drag_curve(alpha, reynolds, rise):
 def true_drag_coefficient(alpha, reynolds, *, end_plates):
     """Whole-span drag coefficient of the illustrative rotating-cylinder model, in free air.
 
-    An illustrative model shaped like published rotating-cylinder measurements, NOT data.
-
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio, signed. [-]
-    reynolds : float or array_like
-        Reynolds number. [-]
-    end_plates : bool
-        Whether the model carries end plates.
-
     Returns
     -------
     float or ndarray
@@ -143,17 +131,6 @@ def true_drag_coefficient(alpha, reynolds, *, end_plates):
 def true_torque_coefficient(alpha, reynolds, *, end_plates):
     """Aerodynamic torque coefficient of the illustrative rotating-cylinder model, in free air.
 
-    An illustrative model shaped like published rotating-cylinder measurements, NOT data.
-
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio, signed. [-]
-    reynolds : float or array_like
-        Reynolds number. [-]
-    end_plates : bool
-        Whether the model carries end plates (their faces add friction).
-
     Returns
     -------
     float or ndarray
@@ -168,7 +145,8 @@ def true_torque_coefficient(alpha, reynolds, *, end_plates):
     .. math:: C_M = -\\operatorname{sign}(\\alpha)\\, \\pi c_f (\\alpha^2 + 0.5|\\alpha|)\\, f_p,
               \\qquad c_f = 0.012 (Re/10^5)^{-0.2}
 
-    with ``f_p = 1.15`` with end plates, 1 without. Intended for ``|alpha| <= 5``.
+    with ``f_p = 1.15`` with end plates (their faces add friction), 1 without. Intended for
+    ``|alpha| <= 5``.
 
     References
     ----------
@@ -189,17 +167,6 @@ def true_torque_coefficient(alpha, reynolds, *, end_plates):
 @arraylike
 def true_pressure_coefficients(alpha, reynolds, *, end_plates):
     """Mid-span pressure lift and drag coefficients ``CL_p``, ``CD_p`` of the model, in free air.
-
-    An illustrative model shaped like published rotating-cylinder measurements, NOT data.
-
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio, signed. [-]
-    reynolds : float or array_like
-        Reynolds number. [-]
-    end_plates : bool
-        Whether the model carries end plates.
 
     Returns
     -------
