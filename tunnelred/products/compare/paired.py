@@ -107,15 +107,11 @@ def paired_difference(
 
     Parameters
     ----------
-    a, b : Sweep
-        The sweep and the reference it is compared with.
-    name : str
-        The coefficient.
+    a, b, name, include_flagged
+        As in :func:`tunnelred.products.compare.grid.difference`.
     tolerance : float
         Points of a and b are paired when their measured α differ by at most this
         (:data:`PAIR_TOLERANCE`). [-]
-    include_flagged : bool
-        Use runs that raised a quality flag (left out by default).
 
     Returns
     -------
@@ -145,13 +141,14 @@ def paired_difference(
     --------
     >>> import pandas as pd
     >>> from tunnelred.products.compare.sweeps import find_sweeps
-    >>> df = pd.DataFrame({"run": list("abcd"), "config": ["A", "A", "B", "B"],
-    ...     "speed_set": 20.0, "spin_set": [0, 600, 0, 600], "alpha": [0.0, 0.5, 0.0, 0.5],
-    ...     "u_alpha": 0.0, "CL": [0.0, -3.0, 0.0, -2.0], "u_CL": 0.1})
+    >>> df = pd.DataFrame({"run": list("abcdef"), "config": ["A"] * 3 + ["B"] * 3,
+    ...     "speed_set": 20.0, "spin_set": [0, 300, 600] * 2,
+    ...     "alpha": [0.0, 0.25, 0.5, 0.0, 0.27, 0.5], "u_alpha": 0.0,
+    ...     "CL": [0.0, -1.5, -3.0, 0.0, -1.08, -2.0], "u_CL": 0.1})
     >>> a, b = find_sweeps(df)
-    >>> d = paired_difference(b, a, "CL")
+    >>> d = paired_difference(b, a, "CL")  # 0.25 and 0.27 pair, each moved to 0.26
     >>> d.alpha.tolist(), d.delta.round(6).tolist(), d.significant.tolist()
-    ([0.0, 0.5], [0.0, 1.0], [False, True])
+    ([0.0, 0.26, 0.5], [0.0, 0.52, 1.0], [False, True, True])
     """
     alpha_a, alpha_b = paired_points(
         a, b, name, tolerance=tolerance, include_flagged=include_flagged
@@ -166,17 +163,7 @@ def paired_difference(
     )
 
 
-def hysteresis(
-    sweep_up: Sweep,
-    sweep_down: Sweep,
-    name: str,
-    *,
-    method: str = "paired",
-    tolerance: float = PAIR_TOLERANCE,
-    grid=None,
-    max_gap: float | None = None,
-    include_flagged: bool = False,
-) -> Difference:
+def hysteresis(sweep_up: Sweep, sweep_down: Sweep, name: str, **options) -> Difference:
     """Up leg minus down leg of one coefficient.
 
     Parameters
@@ -185,11 +172,9 @@ def hysteresis(
         Two legs of one configuration and speed (:func:`find_sweeps`).
     name : str
         The coefficient.
-    method : {"paired", "grid"}
-        ``"paired"``: at the spin ratios both legs measured (:func:`paired_difference`, within
-        ``tolerance``); ``"grid"``: on an α grid (:func:`difference`, ``grid`` and ``max_gap``).
-    include_flagged : bool
-        Use runs that raised a quality flag.
+    **options
+        ``method``, ``tolerance``, ``grid``, ``max_gap``, ``include_flagged``: those of
+        :func:`difference_by_method`.
 
     Returns
     -------
@@ -215,16 +200,7 @@ def hysteresis(
     >>> h.alpha.tolist(), h.delta.round(6).tolist()
     ([0.0, 0.25], [0.4, 0.4])
     """
-    return difference_by_method(
-        sweep_up,
-        sweep_down,
-        name,
-        method=method,
-        tolerance=tolerance,
-        grid=grid,
-        max_gap=max_gap,
-        include_flagged=include_flagged,
-    )
+    return difference_by_method(sweep_up, sweep_down, name, **options)
 
 
 def difference_by_method(
@@ -238,7 +214,12 @@ def difference_by_method(
     max_gap: float | None = None,
     include_flagged: bool = False,
 ) -> Difference:
-    """a − b by ``method``: :func:`paired_difference` or, on a grid, :func:`difference`."""
+    """a − b by ``method``: :func:`paired_difference` or, on a grid, :func:`difference`.
+
+    ``"paired"``: at the spin ratios both sweeps measured, paired within ``tolerance``;
+    ``"grid"``: on an α grid (``grid`` and ``max_gap``). ``include_flagged``: use runs that
+    raised a quality flag.
+    """
     if method == "paired":
         return paired_difference(a, b, name, tolerance=tolerance, include_flagged=include_flagged)
     if method == "grid":
