@@ -275,6 +275,24 @@ def test_sweep_legs_split_by_direction(results):
         assert "sweep, spin increasing" in labels and "sweep, spin decreasing" in labels
 
 
+def test_sweeps_found_once_for_a_set_of_figures(results, monkeypatch):
+    # The standard set finds the sweep legs once and every figure joins the same legs; outside
+    # the set they are found afresh, so a Dataset changed between two figures is never stale.
+    from tunnelred.products.plotting import runs
+
+    alone = [(leg, list(positions)) for leg, positions in plotting.sweep_legs(results)]
+    found = []
+    original = runs._joined_sweeps
+    monkeypatch.setattr(runs, "_joined_sweeps", lambda ds: found.append(1) or original(ds))
+    with runs.sweeps_shared(results):
+        lines = [_joins(plotting.plot_coefficient(results, name)) for name in ("CL", "CD")]
+        shared = [(leg, list(positions)) for leg, positions in plotting.sweep_legs(results)]
+    assert len(found) == 1 and shared == alone
+    assert len(lines[0]) == len(lines[1]) > 0  # both figures join the same legs
+    plotting.sweep_legs(results)
+    assert len(found) == 2
+
+
 def test_comparison_legend_names_both_splits(results):
     ax = plotting.plot_comparison(results, "CL", by="config")
     configs = list(dict.fromkeys(str(c) for c in results["config"].values))
@@ -357,8 +375,9 @@ def test_standard_figures_written(results, tmp_path):
     from PIL import Image
 
     with Image.open(paths[0]) as image:
-        # 200 dpi (the PNG pHYs chunk stores pixels per metre: 200/0.0254 = 7874).
-        assert image.info["dpi"][0] == pytest.approx(200, abs=0.5)
+        # 150 dpi (the PNG pHYs chunk stores pixels per metre: 150/0.0254 = 5906).
+        assert image.info["dpi"][0] == pytest.approx(150, abs=0.5)
+        assert image.size == (960, 660)  # FIGURE_SIZE 6.4 in × 4.4 in at 150 dpi
 
 
 def test_figures_drawn_in_a_pool_are_those_drawn_here(results, tmp_path):

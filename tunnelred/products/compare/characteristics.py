@@ -7,7 +7,6 @@ from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from tunnelred.products.compare.grid import run_errors
 from tunnelred.products.compare.sweeps import (
@@ -105,6 +104,8 @@ def repeatability(
     >>> int(row.dof), round(float(row.s_pooled), 4), round(float(row.ratio), 3)
     (2, 0.1414, 1.414)
     """
+    from scipy import stats  # here only: importing it costs ~0.3 s, and drawing needs none
+
     missing = [c for c in pool_by if c not in by]
     if missing:
         raise ValueError(f"pool_by must be a subset of by; {missing} are not in {list(by)}")

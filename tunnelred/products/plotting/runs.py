@@ -4,6 +4,9 @@ or Reynolds number, flagged runs, sweep legs, representative runs.
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
+
 import numpy as np
 import xarray as xr
 
@@ -139,8 +142,38 @@ def sweep_legs(results) -> list[tuple[str, np.ndarray]]:
     return [(s.leg, positions) for s, positions in joined_sweeps(results_dataset(results))]
 
 
+# The legs of the Datasets whose figures are being drawn as one set (see `sweeps_shared`).
+_SHARED_LEGS: dict[int, tuple[xr.Dataset, list | None]] = {}
+
+
+@contextlib.contextmanager
+def sweeps_shared(ds: xr.Dataset) -> Iterator[None]:
+    """Within: :func:`joined_sweeps` of ``ds`` is found once and reused by every figure.
+
+    For a set of figures drawn from one Dataset that nothing changes meanwhile (the standard
+    figures): finding the sweeps costs about as much as drawing a figure.
+    """
+    if id(ds) in _SHARED_LEGS:  # already shared by an enclosing set
+        yield
+        return
+    _SHARED_LEGS[id(ds)] = (ds, None)  # the Dataset is held so that its id stays its own
+    try:
+        yield
+    finally:
+        del _SHARED_LEGS[id(ds)]
+
+
 def joined_sweeps(ds: xr.Dataset) -> list:
     """(Sweep, positions along ``run``) of each leg with at least three set spin rates."""
+    shared = _SHARED_LEGS.get(id(ds))
+    if shared is None:
+        return _joined_sweeps(ds)
+    if shared[1] is None:
+        _SHARED_LEGS[id(ds)] = (ds, _joined_sweeps(ds))
+    return _SHARED_LEGS[id(ds)][1]
+
+
+def _joined_sweeps(ds: xr.Dataset) -> list:
     # compare imports plotting's style at import time; it is needed only when drawing.
     from tunnelred.products import compare
 

@@ -23,13 +23,20 @@ from tunnelred.products.plotting.runs import (
     has_values,
     representative_runs,
     results_dataset,
+    sweeps_shared,
 )
+
+#: Resolution of the standard PNGs: 960 × 660 pixels for a coefficient figure, sharp on a screen
+#: and in print at its size (the report draws its own figures, at its own resolution).
+PNG_DPI = 150
+# zlib level 3 instead of PNG's usual 6: a third less time encoding, files 2 % larger.
+_PNG_OPTIONS = {"compress_level": 3}
 
 
 def save_figure(fig: Figure, path: Path) -> Path:
-    """Write ``fig`` as a 200 dpi PNG at ``path``, atomically."""
+    """Write ``fig`` as a PNG at ``path`` (:data:`PNG_DPI`), atomically."""
     with store.atomic_path(path) as tmp:
-        fig.savefig(tmp, format="png", dpi=200)
+        fig.savefig(tmp, format="png", dpi=PNG_DPI, pil_kwargs=_PNG_OPTIONS)
     return path
 
 
@@ -79,11 +86,12 @@ def draw_standard_figure(results, job: tuple[str, str, tuple], out_dir) -> Path:
 def draw_standard_figures(results, jobs, out_dir) -> list[Path]:
     """Draw several jobs of :func:`standard_figures` (one task of a process pool)."""
     ds = results_dataset(results)
-    return [draw_standard_figure(ds, job, out_dir) for job in jobs]
+    with sweeps_shared(ds):
+        return [draw_standard_figure(ds, job, out_dir) for job in jobs]
 
 
 def save_standard_figures(results, out_dir, *, executor=None, helpers: int = 0) -> list[Path]:
-    """Write the standard figures to ``out_dir``/figures/*.png (200 dpi, each atomically).
+    """Write the standard figures to ``out_dir``/figures/*.png (:data:`PNG_DPI`, each atomically).
 
     Parameters
     ----------
