@@ -34,7 +34,7 @@ from tunnelred.inputs.files import (
 from tunnelred.inputs.streams import FIXED_COLUMNS, stream_spec
 from tunnelred.inputs.units import DIMENSIONS, conversion, parse_header
 
-__all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns"]
+__all__ = ["FIXED_COLUMNS", "LogInfo", "read_log", "log_columns", "column_twice", "column_unknown"]
 
 #: How many offending rows a problem lists before saying "and N more".
 SHOWN_ROWS = 3
@@ -129,28 +129,12 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
             continue
         names.append(base)
         if base in seen:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    "each column once",
-                    f"{base!r} in columns {seen[base]} and {position}",
-                    "Delete or rename one of them.",
-                )
-            )
+            found = f"{base!r} in columns {seen[base]} and {position}"
+            problems.append(column_twice(file, base, found, "Delete or rename one of them."))
         seen.setdefault(base, position)
         if base not in known:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    f"only the columns {', '.join(known)}",
-                    f"an extra column {base!r}",
-                    hints.get("extra", "Remove it or check its spelling."),
-                )
-            )
+            hint = hints.get("extra", "Remove it or check its spelling.")
+            problems.append(column_unknown(file, base, known, f"an extra column {base!r}", hint))
             conversions.append(None)
             continue
         dimension = known[base]
@@ -185,6 +169,16 @@ def _read_header(data: bytes, file: str, expected: dict, optional: dict, hints: 
                 )
             )
     return _Header(names, conversions, end, problems)
+
+
+def column_twice(file: str, column: str, found: str, hint: str = "") -> Problem:
+    """A header that names ``column`` twice: a log's, runs.csv's and PLAN.csv's, worded alike."""
+    return Problem(file, 1, column, "each column once", found, hint)
+
+
+def column_unknown(file: str, column: str, known, found: str, hint: str = "") -> Problem:
+    """A header column that is none of ``known`` (a log's, runs.csv's, PLAN.csv's)."""
+    return Problem(file, 1, column, f"only the columns {', '.join(known)}", found, hint)
 
 
 def split_line(text: str) -> list[str] | None:
@@ -439,16 +433,8 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
         cells = split_line(text)  # None: a cell over the csv module's limit
         if cells is None or len(cells) != ncols:
             if cells is not None and pos >= end and len(cells) < ncols:
-                problems.append(
-                    Problem(
-                        file,
-                        line,
-                        None,
-                        f"{ncols} fields",
-                        f"{len(cells)}",
-                        "The last line is cut off (the logger stopped while writing); delete it.",
-                    )
-                )
+                found = f"{len(cells)}"
+                hint = "The last line is cut off (the logger stopped while writing); delete it."
             else:
                 short.append(line)
                 found = (
@@ -456,16 +442,8 @@ def _scan(data: bytes, start: int, end: int, file: str, names: list[str]):
                     if cells is None
                     else f"{len(cells)}: {text[:60]!r}"
                 )
-                problems.append(
-                    Problem(
-                        file,
-                        line,
-                        None,
-                        f"{ncols} fields",
-                        found,
-                        "Each row needs one value per header column.",
-                    )
-                )
+                hint = "Each row needs one value per header column."
+            problems.append(Problem(file, line, None, f"{ncols} fields", found, hint))
             continue
         values, flags = [], []
         for i, cell in enumerate(cells):

@@ -20,6 +20,8 @@ from tunnelred.inputs.files import (
 from tunnelred.inputs.logs import (
     _encoding_problem,
     _example_unit,
+    column_twice,
+    column_unknown,
 )
 from tunnelred.inputs.streams import STREAMS as STREAM_SPECS
 from tunnelred.inputs.streams import StreamSpec
@@ -161,30 +163,13 @@ def runs_header(header: list[str], problems: list[Problem]) -> tuple[list[str], 
         cell = cell.strip()
         base, unit = optional_unit(file, cell, problems) or (cell, None)
         if base in names:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    "each column once",
-                    f"{brief(base)} twice",
-                    "Delete one of them.",
-                )
-            )
+            problems.append(column_twice(file, base, f"{brief(base)} twice", "Delete one of them."))
             fatal = True
         names.append(base)
         known = _RUNS_REQUIRED + _RUNS_OPTIONAL + tuple(RUNS_WITH_UNITS)
         if base not in known:
-            problems.append(
-                Problem(
-                    file,
-                    1,
-                    base,
-                    f"only the columns {', '.join(known)}",
-                    brief(base),
-                    "Check the spelling; put remarks in notes.",
-                )
-            )
+            hint = "Check the spelling; put remarks in notes."
+            problems.append(column_unknown(file, base, known, brief(base), hint))
         else:
             units[base] = column_unit(file, cell, base, unit, RUNS_WITH_UNITS.get(base), problems)
     return names, units, fatal

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from tunnelred.common.errors import InputError, Problem
+from tunnelred.inputs.logs import column_twice, column_unknown
 from tunnelred.inputs.readers import column_unit, optional_unit
 
 __all__ = ["PlannedPoint", "read_matrix", "DEFAULT_RATES", "MATRIX_COLUMNS"]
@@ -124,13 +125,11 @@ def _header(file: str, header: list[str], problems: list[Problem]):
             continue
         base, unit = parsed
         if base not in MATRIX_COLUMNS:
-            problems.append(
-                Problem(file, 1, base, f"only the columns {', '.join(MATRIX_COLUMNS)}", repr(base))
-            )
+            problems.append(column_unknown(file, base, MATRIX_COLUMNS, repr(base)))
             names.append("")
             continue
         if base in names:
-            problems.append(Problem(file, 1, base, "each column once", f"{base!r} twice"))
+            problems.append(column_twice(file, base, f"{base!r} twice"))
         converted = column_unit(file, cell, base, unit, MATRIX_COLUMNS[base], problems)
         if converted is not None:
             units[base] = converted
