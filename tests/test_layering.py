@@ -99,14 +99,8 @@ def test_the_checker_sees_an_upward_import(tmp_path):
     assert all(stage > _stage_of_module(fake) for _, _, stage in found)
 
 
-#: Physics modules whose hints are pending: pressure.py is being rewritten and gets its hints with
-#: the rewrite. Remove it from here then.
-HINTS_PENDING = {"pressure.py"}
-PHYSICS = sorted(
-    p
-    for p in (PACKAGE / "physics").rglob("*.py")  # the subpackages' modules too
-    if p.relative_to(PACKAGE / "physics").as_posix() not in HINTS_PENDING
-)
+#: Every module of the physics stage, its subpackages' too: none is exempt.
+PHYSICS = sorted((PACKAGE / "physics").rglob("*.py"))
 
 
 def _missing_hints(source: str) -> list[str]:

@@ -10,12 +10,14 @@ positive with positive spin, docs/conventions.md), pressures in Pa.
 from __future__ import annotations
 
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass
 from statistics import NormalDist
 
 import numpy as np
+import numpy.typing as npt
 
-from tunnelred.common._arraylike import arraylike
+from tunnelred.common._arraylike import ArrayLike, Values, arraylike
 
 __all__ = [
     "CpGapError",
@@ -96,7 +98,9 @@ class BinnedCp:
 
 
 @arraylike
-def tap_azimuth(encoder_angle, tap_azimuth, tubing_delay, omega):
+def tap_azimuth(
+    encoder_angle: ArrayLike, tap_azimuth: ArrayLike, tubing_delay: ArrayLike, omega: ArrayLike
+) -> ArrayLike:
     """Azimuth θ of a tap at each sample, corrected for the delay of its tubing.
 
     Parameters
@@ -142,7 +146,9 @@ def tap_azimuth(encoder_angle, tap_azimuth, tubing_delay, omega):
 
 
 @arraylike
-def centrifugal_head(density, omega, radius, transducer_radius=0.0):
+def centrifugal_head(
+    density: ArrayLike, omega: ArrayLike, radius: ArrayLike, transducer_radius: ArrayLike = 0.0
+) -> ArrayLike:
     """Pressure rise along the spinning tubing from the transducer out to the tap.
 
     Parameters
@@ -184,7 +190,7 @@ def centrifugal_head(density, omega, radius, transducer_radius=0.0):
 
 
 @arraylike
-def pressure_coefficient(reading, q, *, head=0.0):
+def pressure_coefficient(reading: ArrayLike, q: ArrayLike, *, head: ArrayLike = 0.0) -> ArrayLike:
     """Pressure coefficient of a tap from the transducer reading.
 
     Parameters
@@ -224,7 +230,12 @@ def _revolution_index(theta: np.ndarray) -> np.ndarray:
     return np.floor(np.unwrap(theta, period=360.0, axis=-1) / 360.0).astype(np.int64)
 
 
-def tap_azimuths(encoder_angle, tap_azimuth, tubing_delay, omega) -> tuple[np.ndarray, np.ndarray]:
+def tap_azimuths(
+    encoder_angle: npt.ArrayLike,
+    tap_azimuth: npt.ArrayLike,
+    tubing_delay: npt.ArrayLike,
+    omega: float,
+) -> tuple[np.ndarray, np.ndarray]:
     """Every tap's azimuth at every sample, and its revolution number, from one encoder record.
 
     Parameters
@@ -269,7 +280,9 @@ def tap_azimuths(encoder_angle, tap_azimuth, tubing_delay, omega) -> tuple[np.nd
     return theta, turns[None, :] + wraps
 
 
-def _pass_index(series: np.ndarray, revolution: np.ndarray, b: np.ndarray, bins: int):
+def _pass_index(
+    series: np.ndarray, revolution: np.ndarray, b: np.ndarray, bins: int
+) -> tuple[np.ndarray, np.ndarray]:
     """(pass of each sample, bin of each pass): a pass is one series' stay in one bin per turn.
 
     Samples are in time order within each series. When each series' turn-and-bin key moves one
@@ -290,7 +303,9 @@ def _pass_index(series: np.ndarray, revolution: np.ndarray, b: np.ndarray, bins:
     return which.reshape(-1), passes % bins
 
 
-def azimuth_derivatives(theta, values) -> tuple[np.ndarray, np.ndarray]:
+def azimuth_derivatives(
+    theta: npt.ArrayLike, values: npt.ArrayLike
+) -> tuple[np.ndarray, np.ndarray]:
     """First and second derivative of a periodic curve known at sorted distinct azimuths.
 
     Parameters
@@ -341,7 +356,14 @@ def azimuth_derivatives(theta, values) -> tuple[np.ndarray, np.ndarray]:
     return slope, curvature
 
 
-def bin_cp(theta, cp, *, bins=72, min_count=5, revolution=None) -> BinnedCp:
+def bin_cp(
+    theta: npt.ArrayLike,
+    cp: npt.ArrayLike,
+    *,
+    bins: int = 72,
+    min_count: int = 5,
+    revolution: npt.ArrayLike | None = None,
+) -> BinnedCp:
     """Bin a rotating tap's Cp record by azimuth.
 
     Parameters
@@ -465,7 +487,9 @@ def _distinct_azimuths(theta: np.ndarray, cp: np.ndarray) -> tuple[np.ndarray, n
     return wrapped[new], averaged
 
 
-def _integrate_distinct(theta: np.ndarray, cp: np.ndarray, max_gap: float):
+def _integrate_distinct(
+    theta: np.ndarray, cp: np.ndarray, max_gap: float
+) -> tuple[np.ndarray, np.ndarray]:
     """(CL, CD) of Cp (B, m) at sorted distinct azimuths theta (m,) in [0, 360)."""
     if theta.size < 4:
         raise CpGapError(f"need Cp at 4 or more distinct azimuths to integrate, found {theta.size}")
@@ -499,7 +523,9 @@ def _integrate_distinct(theta: np.ndarray, cp: np.ndarray, max_gap: float):
     return 0.5 * values @ np.sin(nodes), 0.5 * values @ np.cos(nodes)
 
 
-def integrate_cp(theta, cp, *, max_gap=30.0) -> tuple[float, float]:
+def integrate_cp(
+    theta: npt.ArrayLike, cp: npt.ArrayLike, *, max_gap: float = 30.0
+) -> tuple[Values, Values]:
     """Lift and drag coefficients from the surface pressure, CL = ½∮Cp sin θ dθ, CD = ½∮Cp cos θ dθ.
 
     Parameters
@@ -571,7 +597,7 @@ def integrate_cp(theta, cp, *, max_gap=30.0) -> tuple[float, float]:
     return CL.reshape(batch), CD.reshape(batch)
 
 
-def quadrature_uncertainty(theta, cp) -> float:
+def quadrature_uncertainty(theta: npt.ArrayLike, cp: npt.ArrayLike) -> float:
     """Standard uncertainty of CL and of CD from :func:`integrate_cp` for the rule's own error.
 
     Parameters
@@ -612,7 +638,7 @@ def quadrature_uncertainty(theta, cp) -> float:
     return float(np.hypot(d_cl, d_cd) / 4.0 / np.sqrt(3.0))
 
 
-def _flat_std(b) -> float:
+def _flat_std(b: BinnedCp | npt.ArrayLike) -> float:
     """Standard deviation of a tap's whole Cp record, rebuilt from its bins."""
     if isinstance(b, BinnedCp):
         count = np.asarray(b.count, dtype=float)
@@ -631,7 +657,14 @@ def _flat_std(b) -> float:
 
 
 def find_dead_taps(
-    tap_names, tap_binned, *, tolerance=0.15, flat_std=1e-3, u=None, k=None, false_alarm=0.01
+    tap_names: Sequence[str],
+    tap_binned: Sequence[BinnedCp] | npt.ArrayLike,
+    *,
+    tolerance: float = 0.15,
+    flat_std: float = 1e-3,
+    u: npt.ArrayLike | None = None,
+    k: float | None = None,
+    false_alarm: float = 0.01,
 ) -> dict[str, str]:
     """Taps to leave out of Cp(θ): flat-lined ones, and ones whose Cp departs from the others'.
 
@@ -753,7 +786,9 @@ def find_dead_taps(
     return {name: dead[name] for name in names if name in dead}
 
 
-def merge_indexed(thetas, cps) -> tuple[np.ndarray, np.ndarray]:
+def merge_indexed(
+    thetas: Sequence[npt.ArrayLike], cps: Sequence[npt.ArrayLike]
+) -> tuple[np.ndarray, np.ndarray]:
     """Merge the taps of several runs at different index angles into one Cp(θ) (stationary model).
 
     Parameters
