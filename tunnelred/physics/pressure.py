@@ -13,6 +13,7 @@ import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from statistics import NormalDist
+from typing import cast
 
 import numpy as np
 import numpy.typing as npt
@@ -658,7 +659,7 @@ def _flat_std(b: BinnedCp | npt.ArrayLike) -> float:
 
 def find_dead_taps(
     tap_names: Sequence[str],
-    tap_binned: Sequence[BinnedCp] | npt.ArrayLike,
+    tap_binned: Sequence[BinnedCp] | Sequence[npt.ArrayLike] | np.ndarray,
     *,
     tolerance: float = 0.15,
     flat_std: float = 1e-3,
@@ -738,7 +739,8 @@ def find_dead_taps(
             f"find_dead_taps: {len(names)} tap names for {len(tap_binned)} binned records"
         )
     if names and isinstance(tap_binned[0], BinnedCp):
-        means = np.array([b.mean for b in tap_binned], dtype=float)
+        binned = cast("Sequence[BinnedCp]", tap_binned)
+        means = np.array([b.mean for b in binned], dtype=np.float64)
     else:
         means = np.array(tap_binned, dtype=float)
     if means.ndim != 2:
