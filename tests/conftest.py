@@ -235,3 +235,21 @@ def reduced(tmp_path_factory):
     make_campaign(root / "campaign", spec)
     reduce_campaign(root / "campaign", root / "out", workers=2, progress=False)
     return root / "campaign", root / "out"
+
+
+@pytest.fixture(scope="module")
+def provisional_results(small_campaign, tmp_path_factory) -> Path:
+    """A results folder as the watch leaves it mid-test: the small campaign without its
+    closing zero Z003, R001 and R002 (which name it) reduced provisionally from Z002 alone,
+    R003 and R004 (here naming Z002 only) final."""
+    from tunnelred.pipeline.campaign import reduce_campaign
+
+    root = tmp_path_factory.mktemp("provisional") / "campaign"
+    shutil.copytree(small_campaign, root)
+    rows = (root / "runs.csv").read_text(encoding="utf-8").splitlines()
+    rows = [r for r in rows if not r.startswith("Z003,")]
+    rows = [r.replace(",Z002;Z003,", ",Z002,") if r[:4] in ("R003", "R004") else r for r in rows]
+    (root / "runs.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    out = root.parent / "out"
+    reduce_campaign(root, out, workers=1, progress=False, provisional=True, figures=False)
+    return out

@@ -246,3 +246,21 @@ def test_report_control_and_method_from_campaign_toml(built, reduced):
     for name, calibration in config.instruments.calibrations.items():
         assert calibration.reference in flat, name
     assert config.model.surface in flat and config.model.photo in flat
+
+
+def test_provisional_runs_are_marked_in_tables_and_summary(provisional_results):
+    # before: a report of the watch's results mid-test read as final (nothing said provisional)
+    out = provisional_results
+    assert store.read_results(out)["provisional"].values.tolist() == [True, True, False, False]
+    text, _ = _text(report.write_report(out))
+    assert re.search(r"Provisional results\.\s+2 run\(s\) are provisional", text)
+    assert re.search(r"R001,\s+R002\.", text)
+    marked = set(re.findall(r"\b(R00\d) ‡", text))
+    assert marked == {"R001", "R002"}
+    assert text.count("R001 ‡") >= 2  # the run log and the coefficient table
+    assert "‡ marks a provisional run" in text
+
+
+def test_a_report_of_final_results_says_nothing_provisional(built):
+    _, text, _, _ = built
+    assert "‡" not in text and "provisional" not in text.lower()

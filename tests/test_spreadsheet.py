@@ -10,7 +10,7 @@ import pytest
 from openpyxl import load_workbook
 
 from tunnelred.cli import main
-from tunnelred.products.spreadsheet import FLAGGED_FILL, SHEETS, write_xlsx
+from tunnelred.products.spreadsheet import FLAGGED_FILL, PROVISIONAL_FILL, SHEETS, write_xlsx
 
 
 @pytest.fixture(scope="module")
@@ -56,6 +56,19 @@ def test_flagged_runs_highlighted(workbook):
     for i, is_flagged in enumerate(flagged):
         colour = sheet.cell(row=3 + i, column=1).fill.start_color.rgb
         assert (colour == FLAGGED_FILL) == bool(is_flagged), table["run"][i]
+
+
+def test_provisional_runs_marked(provisional_results, tmp_path):
+    # before: a provisional run's row looked like a final one (only its TRUE in one column)
+    path = write_xlsx(provisional_results, tmp_path / "provisional.xlsx")
+    sheet = load_workbook(path)["results"]
+    header = [c.value for c in sheet[1]]
+    run, provisional, cl = (header.index(n) + 1 for n in ("run", "provisional", "CL"))
+    for row in range(3, sheet.max_row + 1):
+        marked = sheet.cell(row=row, column=provisional).value is True
+        assert marked == (sheet.cell(row=row, column=run).value in ("R001", "R002"))
+        assert (sheet.cell(row=row, column=run).fill.start_color.rgb == PROVISIONAL_FILL) == marked
+        assert sheet.cell(row=row, column=cl).font.italic == marked
 
 
 def test_budgets_failures_and_provenance(workbook):

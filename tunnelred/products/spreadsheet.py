@@ -1,7 +1,8 @@
 """The results of a campaign as one Excel workbook (``tunnelred export OUT --xlsx FILE``).
 
 For colleagues who work in a spreadsheet: a ``results`` sheet with the names of results.csv
-(docs/results.md) in row 1 and their units in row 2, flagged runs filled in colour; the
+(docs/results.md) in row 1 and their units in row 2, flagged runs filled in colour, provisional
+runs (the watch's, before their closing zero) in italics with their run id filled; the
 uncertainty ``budgets`` with each input's readable name and unit beside its code name; the
 ``failures``; and the ``provenance`` on a sheet of its own. Written with openpyxl, atomically.
 Text that a spreadsheet would take for a formula is stored as text.
@@ -22,13 +23,16 @@ from openpyxl.utils import get_column_letter
 from tunnelred.common.errors import InputError, Problem
 from tunnelred.products.store import atomic_path, variable_metadata
 
-__all__ = ["SHEETS", "FLAGGED_FILL", "write_xlsx"]
+__all__ = ["SHEETS", "FLAGGED_FILL", "PROVISIONAL_FILL", "write_xlsx"]
 
 #: The workbook's sheets, in order.
 SHEETS = ("results", "budgets", "failures", "provenance")
 
 #: The fill of a flagged run's row on the results sheet (ARGB).
 FLAGGED_FILL = "FFFFE08A"
+#: The fill of a provisional run's id (and its ``provisional`` cell) on the results sheet (ARGB);
+#: the rest of its row is in italics, over the flagged fill if it has one.
+PROVISIONAL_FILL = "FFB8D8F0"
 
 _BOLD = Font(bold=True)
 _UNITS_FONT = Font(italic=True, color="FF555555")
@@ -101,6 +105,12 @@ def _flagged(table: pd.DataFrame) -> np.ndarray:
     return (flags.notna() & (flags.astype(str).str.strip() != "")).to_numpy()
 
 
+def _provisional(table: pd.DataFrame) -> np.ndarray:
+    if "provisional" not in table:
+        return np.zeros(len(table), dtype=bool)
+    return table["provisional"].astype(str).str.strip().str.lower().eq("true").to_numpy()
+
+
 def _budgets(table: pd.DataFrame) -> pd.DataFrame:
     from tunnelred.products.report import budget_label  # the report's readable names
 
@@ -159,6 +169,14 @@ def write_xlsx(out_dir, path) -> Path:
     for i in np.flatnonzero(_flagged(results)):
         for j in range(1, results.shape[1] + 1):
             sheet.cell(row=first + int(i), column=j).fill = fill
+    marked = PatternFill("solid", start_color=PROVISIONAL_FILL, end_color=PROVISIONAL_FILL)
+    columns = list(results.columns)
+    filled = [columns.index(c) + 1 for c in ("run", "provisional") if c in columns]
+    for i in np.flatnonzero(_provisional(results)):
+        for j in range(1, results.shape[1] + 1):
+            sheet.cell(row=first + int(i), column=j).font = Font(italic=True)
+        for j in filled:
+            sheet.cell(row=first + int(i), column=j).fill = marked
     for name in ("budgets", "failures"):
         table = _read(out, f"{name}.csv") if (out / f"{name}.csv").is_file() else pd.DataFrame()
         _write_table(workbook.create_sheet(name), _budgets(table) if name == "budgets" else table)

@@ -111,5 +111,23 @@ def run_flags(ds: xr.Dataset) -> list[str]:
     return ["" if not isinstance(f, str) else f for f in ds["flags"].values]
 
 
+#: The mark of a provisional run in the report's tables (a flagged one has †).
+PROVISIONAL_MARK = "‡"
+
+
+def run_provisional(ds: xr.Dataset) -> np.ndarray:
+    """Whether each run's result is provisional: reduced by the watch before its closing zero
+    was in (results' ``provisional``; absent from results of older versions: none)."""
+    if "provisional" not in ds:
+        return np.zeros(ds.sizes["run"], dtype=bool)
+    return ds["provisional"].values.astype(bool)
+
+
+def run_mark(ds: xr.Dataset, i: int) -> str:
+    """The marks the report's tables put after run ``i``'s id: † flagged, ‡ provisional."""
+    flagged = bool(run_flags(ds)[i])
+    return (" †" if flagged else "") + (f" {PROVISIONAL_MARK}" if run_provisional(ds)[i] else "")
+
+
 def run_config(data: ReportData, i: int) -> str:
     return str(data.table["config"].iloc[i]) if "config" in data.table else ""

@@ -9,7 +9,13 @@ from xml.sax.saxutils import escape
 import numpy as np
 
 from tunnelred.products import plotting
-from tunnelred.products.report.data import ReportData, run_config, run_flags
+from tunnelred.products.report.data import (
+    PROVISIONAL_MARK,
+    ReportData,
+    run_config,
+    run_flags,
+    run_provisional,
+)
 from tunnelred.products.report.formatting import (
     BLANK,
     RPM,
@@ -90,11 +96,12 @@ def run_log_section(b: Builder, data: ReportData) -> None:
     b.subsection("Run log")
     start = data.table["start"].astype(str) if "start" in data.table else [""] * len(data.runs)
     omega = data.column("omega")
+    provisional = run_provisional(ds)
     rows = []
     for i, run in enumerate(data.runs):
         rows.append(
             [
-                run,
+                run + (f" {PROVISIONAL_MARK}" if provisional[i] else ""),
                 str(start[i]).replace("T", " "),
                 run_config(data, i),
                 fixed(data.column("speed_set")[i], 1),
@@ -118,7 +125,8 @@ def run_log_section(b: Builder, data: ReportData) -> None:
         rows,
         [0.6, 1.5, 0.7, 0.7, 0.7, 0.8, 0.6, 2.2],
         caption=f"{b.next_table()} Run log: every data run in order, its set points, measured "
-        "spin rate and spin ratio (wall-corrected), and the flags it raised.",
+        "spin rate and spin ratio (wall-corrected), and the flags it raised"
+        + (f"; {PROVISIONAL_MARK} a provisional run (see Summary)." if provisional.any() else "."),
     )
     _conditions(b, data)
 

@@ -12,25 +12,35 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from tunnelred.products import plotting
-from tunnelred.products.report.data import ReportData, run_config, run_flags
+from tunnelred.products.report.data import (
+    PROVISIONAL_MARK,
+    ReportData,
+    run_config,
+    run_mark,
+    run_provisional,
+)
 from tunnelred.products.report.formatting import RPM, K, fixed, format_uncertain
 from tunnelred.products.report.layout import FIGURE_ROOM, Builder, axes
 
 _COMPARISON = "Configuration comparison"
+PROVISIONAL_NOTE = (
+    f" {PROVISIONAL_MARK} marks a provisional run: reduced while the test ran, before its closing"
+    " zero was taken; not a final result (see Summary)."
+)
 
 
 def _value_table(b: Builder, data: ReportData, names: list[str], caption: str) -> None:
-    """Value ± U (k = 2) of ``names`` for every run that has the last of them; flagged runs †."""
+    """Value ± U (k = 2) of ``names`` for every run that has the last of them; flagged runs †,
+    provisional ones ‡."""
     header = ["run", "config", "rpm"] + [_HEADS[n] for n in names]
     rows = []
     has = np.isfinite(data.column(names[-1]))
-    flags = run_flags(data.ds)
     rpm = data.column("omega") * RPM
     for i, run in enumerate(data.runs):
         if not has[i]:
             continue
         cells = [format_uncertain(data.column(n)[i], K * data.column(f"u_{n}")[i]) for n in names]
-        rows.append([run + (" †" if flags[i] else ""), run_config(data, i), fixed(rpm[i], 0),
+        rows.append([run + run_mark(data.ds, i), run_config(data, i), fixed(rpm[i], 0),
                      *cells])  # fmt: skip
     b.table(header, rows, [0.75, 0.7, 0.55] + [1.45] * len(names), caption=caption)
 
@@ -58,7 +68,8 @@ def results_section(b: Builder, data: ReportData, runs: list[str]) -> None:
         b.p(
             "Wall-corrected coefficients on q·d·b (CM on q·d·b·R), with the measured spin rate. "
             "Each cell is the value and its expanded uncertainty U = k·u with k = 2, rounded to "
-            "U's second significant digit. † marks a flagged run (see Quality flags).",
+            "U's second significant digit. † marks a flagged run (see Quality flags)."
+            + (PROVISIONAL_NOTE if run_provisional(ds).any() else ""),
             "intro",
         )
     )

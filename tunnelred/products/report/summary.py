@@ -6,7 +6,12 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
-from tunnelred.products.report.data import ReportData, run_flags
+from tunnelred.products.report.data import (
+    PROVISIONAL_MARK,
+    ReportData,
+    run_flags,
+    run_provisional,
+)
 from tunnelred.products.report.formatting import K, fixed, format_uncertain
 from tunnelred.products.report.layout import Builder
 
@@ -115,3 +120,18 @@ def summary_section(b: Builder, data: ReportData) -> None:
         )
     else:
         b.add(b.p("No run raised a quality flag."))
+    provisional = [r for r, p in zip(data.runs, run_provisional(ds), strict=True) if p]
+    if provisional:
+        b.add(
+            b.p(
+                f"<b>Provisional results.</b> {len(provisional)} run(s) are provisional "
+                f"({PROVISIONAL_MARK} in the tables): "
+                + ", ".join(escape(r) for r in provisional)
+                + ". tunnelred watch reduced them while the test ran, before their closing "
+                "wind-off zero was taken: from the opening zero alone, the zero's unobserved "
+                "drift taken into their uncertainty, and the zero shift not yet judged "
+                "(docs/live.md). They are not final: reduce the campaign again with tunnelred "
+                "reduce once the test is complete before this report is issued.",
+                markup=True,
+            )
+        )
