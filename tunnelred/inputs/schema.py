@@ -65,6 +65,15 @@ def _calibration_keys(table: str) -> tuple[Key, Key]:
     )
 
 
+def _with_u(table: str, name: str, unit: str, meaning: str, owner: str) -> tuple[Key, Key]:
+    """A measured quantity's key and its standard uncertainty ``u_<name>``: same table and unit,
+    each held by the attribute of its own name in ``owner``."""
+    return (
+        Key(table, name, unit, meaning, f"{owner}.{name}"),
+        Key(table, f"u_{name}", unit, "", f"{owner}.u_{name}"),
+    )
+
+
 # fmt: off
 KEYS: tuple[Key, ...] = (
     # [campaign]
@@ -94,22 +103,15 @@ KEYS: tuple[Key, ...] = (
     Key("revision", "change", "string", "what changed", "RevisionEntry.change"),
     # [tunnel]
     Key("tunnel", "section", "'closed'", "closed test section (the wall corrections assume solid walls)", "TunnelConfig.section"),  # noqa: E501
-    Key("tunnel", "height", "length", "wall-to-wall distance across which lift acts (y); above the model diameter", "TunnelConfig.height"),  # noqa: E501
-    Key("tunnel", "u_height", "length", "", "TunnelConfig.u_height"),
-    Key("tunnel", "width", "length", "along the cylinder axis (z); at least the model span", "TunnelConfig.width"),  # noqa: E501
-    Key("tunnel", "u_width", "length", "", "TunnelConfig.u_width"),
-    Key("tunnel", "flow_angle", "angle", "flow angularity in the x–y plane, positive toward +y (within ±45°)", "TunnelConfig.flow_angle"),  # noqa: E501
-    Key("tunnel", "u_flow_angle", "angle", "", "TunnelConfig.u_flow_angle"),
-    Key("tunnel", "static_pressure_gradient", "pressure/length", "empty-tunnel dp/dx along the test section (for buoyancy)", "TunnelConfig.static_pressure_gradient"),  # noqa: E501
-    Key("tunnel", "u_static_pressure_gradient", "pressure/length", "", "TunnelConfig.u_static_pressure_gradient"),  # noqa: E501
+    *_with_u("tunnel", "height", "length", "wall-to-wall distance across which lift acts (y); above the model diameter", "TunnelConfig"),  # noqa: E501
+    *_with_u("tunnel", "width", "length", "along the cylinder axis (z); at least the model span", "TunnelConfig"),  # noqa: E501
+    *_with_u("tunnel", "flow_angle", "angle", "flow angularity in the x–y plane, positive toward +y (within ±45°)", "TunnelConfig"),  # noqa: E501
+    *_with_u("tunnel", "static_pressure_gradient", "pressure/length", "empty-tunnel dp/dx along the test section (for buoyancy)", "TunnelConfig"),  # noqa: E501
     Key("tunnel", "q_source", "'pitot' or 'contraction'", "which tunnel-log column gives q: `dp_pitot` or `dp_contraction`", "TunnelConfig.q_source"),  # noqa: E501
-    Key("tunnel", "contraction_factor", "number", "q = factor × dp_contraction (q_source = 'contraction')", "TunnelConfig.contraction_factor"),  # noqa: E501
-    Key("tunnel", "u_contraction_factor", "number", "", "TunnelConfig.u_contraction_factor"),
+    *_with_u("tunnel", "contraction_factor", "number", "q = factor × dp_contraction (q_source = 'contraction')", "TunnelConfig"),  # noqa: E501
     # [model]
-    Key("model", "diameter", "length", "d; reference area is d × span", "ModelConfig.diameter"),
-    Key("model", "u_diameter", "length", "", "ModelConfig.u_diameter"),
-    Key("model", "span", "length", "b, the loaded span", "ModelConfig.span"),
-    Key("model", "u_span", "length", "", "ModelConfig.u_span"),
+    *_with_u("model", "diameter", "length", "d; reference area is d × span", "ModelConfig"),
+    *_with_u("model", "span", "length", "b, the loaded span", "ModelConfig"),
     Key("model", "spans_section", "bool", "true: the model spans the section wall to wall (2-D corrections); false: 3-D", "ModelConfig.spans_section"),  # noqa: E501
     Key("model", "transducer_radius", "length", "radius r_t of the pressure transducer on the spinning model (0: on the axis; at most d/2)", "ModelConfig.transducer_radius"),  # noqa: E501
     Key("model", "max_spin_rate", "rotation rate", "the highest spin rate the model and its drive are rated for (e.g. `'6000 rpm'`); `tunnelred plan` warns loudly of any planned point above it", "ModelConfig.max_spin_rate"),  # noqa: E501
@@ -127,8 +129,7 @@ KEYS: tuple[Key, ...] = (
     Key("balance", "full_scale", "3 loads", "Fx, Fy [force], Mz [torque]", "BalanceConfig.full_scale"),  # noqa: E501
     Key("balance", "u_fraction_of_full_scale", "3 numbers", "type-B standard uncertainty per component, as a fraction of full scale", "BalanceConfig.u_fraction_of_full_scale"),  # noqa: E501
     Key("balance", "u_matrix_relative", "number", "relative standard uncertainty of the calibration (applied to each load)", "BalanceConfig.u_matrix_relative"),  # noqa: E501
-    Key("balance", "alignment_angle", "angle", "balance x axis relative to tunnel x, positive toward +y", "BalanceConfig.alignment_angle"),  # noqa: E501
-    Key("balance", "u_alignment_angle", "angle", "", "BalanceConfig.u_alignment_angle"),
+    *_with_u("balance", "alignment_angle", "angle", "balance x axis relative to tunnel x, positive toward +y", "BalanceConfig"),  # noqa: E501
     Key("balance", "calibration_file", "string", "a CSV inside the campaign folder with the calibration coefficients (linear, optional second order) and optionally their covariance, in place of matrix and second_order; the covariance is propagated in place of u_matrix_relative (docs/input-format.md)", "BalanceConfig.calibration_file"),  # noqa: E501
     *_calibration_keys("balance"),
     # [scanner]
@@ -156,10 +157,8 @@ KEYS: tuple[Key, ...] = (
     *_calibration_keys("encoder"),
     # [tap]
     Key("tap", "name", "string", "the pressure-log column (unique; letters, digits, `_ . -`; not a fixed log name)", "TapConfig.name"),  # noqa: E501
-    Key("tap", "azimuth", "angle", "tap azimuth θ from the windward point when the encoder reads 0 (stationary model: its fixed azimuth)", "TapConfig.azimuth"),  # noqa: E501
-    Key("tap", "u_azimuth", "angle", "", "TapConfig.u_azimuth"),
-    Key("tap", "tubing_delay", "time", "pneumatic delay τ of the tap's tubing; the reading at time t belongs to azimuth θ(t) − ω τ", "TapConfig.tubing_delay"),  # noqa: E501
-    Key("tap", "u_tubing_delay", "time", "", "TapConfig.u_tubing_delay"),
+    *_with_u("tap", "azimuth", "angle", "tap azimuth θ from the windward point when the encoder reads 0 (stationary model: its fixed azimuth)", "TapConfig"),  # noqa: E501
+    *_with_u("tap", "tubing_delay", "time", "pneumatic delay τ of the tap's tubing; the reading at time t belongs to azimuth θ(t) − ω τ", "TapConfig"),  # noqa: E501
     # [reduction]
     Key("reduction", "blockage", "'allen-vincenti', 'maskell', 'maskell-3d', 'none'", "wall-correction method; a 2-D method with spans_section = false is replaced by 'maskell-3d', with a notice", "ReductionConfig.blockage"),  # noqa: E501
     Key("reduction", "maskell_factor", "number", "Maskell's blockage factor θ; only with 'maskell' or 'maskell-3d'", "ReductionConfig.maskell_factor"),  # noqa: E501
