@@ -1,8 +1,9 @@
 """Properties of the test-section air: moist-air density, viscosity, speed of sound.
 
 Every function takes Python scalars, numpy arrays (broadcasting), pandas Series or xarray DataArrays
-and returns the same kind (see tunnelred.common._arraylike). Temperatures are absolute [K],
-pressures [Pa], relative humidity a fraction 0–1.
+and returns the same kind (see tunnelred.common._arraylike). The parameters they share are
+described here once: ``temperature`` the air temperature, absolute [K]; ``pressure`` the absolute
+(barometric) pressure [Pa]; relative humidity is a fraction 0–1.
 """
 
 from __future__ import annotations
@@ -54,11 +55,6 @@ _SUTHERLAND_S = 110.4  # [K]
 def saturation_vapour_pressure(temperature: ArrayLike) -> ArrayLike:
     """Saturation vapour pressure of water over a plane liquid surface, CIPM-2007 form.
 
-    Parameters
-    ----------
-    temperature : float or array_like
-        Air temperature. [K]
-
     Returns
     -------
     float or array_like
@@ -97,10 +93,6 @@ def density(
 
     Parameters
     ----------
-    temperature : float or array_like
-        Air temperature. [K]
-    pressure : float or array_like
-        Absolute (barometric) pressure. [Pa]
     relative_humidity : float or array_like, optional
         Relative humidity as a fraction. [0–1]
     x_co2 : float or array_like, optional
@@ -156,13 +148,6 @@ def density(
 def density_ideal_dry(temperature: ArrayLike, pressure: ArrayLike) -> ArrayLike:
     """Density of dry air as an ideal gas.
 
-    Parameters
-    ----------
-    temperature : float or array_like
-        Air temperature. [K]
-    pressure : float or array_like
-        Absolute pressure. [Pa]
-
     Returns
     -------
     float or array_like
@@ -189,11 +174,6 @@ def density_ideal_dry(temperature: ArrayLike, pressure: ArrayLike) -> ArrayLike:
 @arraylike
 def viscosity(temperature: ArrayLike) -> ArrayLike:
     """Dynamic viscosity of air by Sutherland's law, in the ICAO form.
-
-    Parameters
-    ----------
-    temperature : float or array_like
-        Air temperature. [K]
 
     Returns
     -------
@@ -228,8 +208,6 @@ def speed_of_sound(
 
     Parameters
     ----------
-    temperature : float or array_like
-        Air temperature. [K]
     gamma : float or array_like, optional
         Ratio of specific heats. [-]
     gas_constant : float or array_like, optional

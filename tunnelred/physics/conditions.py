@@ -97,31 +97,10 @@ def impact_pressure(
 ) -> ArrayLike:
     """Impact pressure a pitot-static probe reads in a stream of dynamic pressure q.
 
-    The inverse of :func:`dynamic_pressure`.
-
-    Parameters
-    ----------
-    q : float or array_like
-        Dynamic pressure ½ rho U². [Pa]
-    static_pressure : float or array_like
-        Free-stream static pressure p. [Pa]
-    gamma : float or array_like, optional
-        Ratio of specific heats. [-]
-
-    Returns
-    -------
-    float or array_like
-        Impact pressure qc = p0 − p. [Pa]
-
-    Notes
-    -----
-    M² = 2q/(gamma p) and qc = p [(1 + (gamma − 1)/2 M²)^(gamma/(gamma − 1)) − 1], the isentropic
-    total-to-static ratio of NACA Report 1135 (eq. 44). Subsonic flow only.
-
-    References
-    ----------
-    .. [1] Ames Research Staff, "Equations, tables, and charts for compressible flow",
-       NACA Report 1135, 1953.
+    The inverse of :func:`dynamic_pressure` (whose parameters ``static_pressure`` and ``gamma``
+    and source, NACA Report 1135 eq. 44, it shares): from q = ½ rho U² [Pa], M² = 2q/(gamma p)
+    and the impact pressure qc = p0 − p = p [(1 + (gamma − 1)/2 M²)^(gamma/(gamma − 1)) − 1]
+    [Pa]. Subsonic flow only.
 
     Examples
     --------
@@ -255,9 +234,10 @@ def spin_ratio(omega: ArrayLike, radius: ArrayLike, velocity: ArrayLike) -> Arra
     float or array_like
         alpha, the surface speed over the free-stream speed. [-]
 
-    Notes ----- With the axes of docs/conventions.md (x downstream, y the lift axis, z = x × y), a
-    positive alpha moves the surface at the top (+y) upstream, and potential flow gives CL = −2 pi
-    alpha.
+    Notes
+    -----
+    With the axes of docs/conventions.md (x downstream, y the lift axis, z = x × y), a positive
+    alpha moves the surface at the top (+y) upstream, and potential flow gives CL = −2 pi alpha.
 
     References
     ----------
@@ -278,10 +258,8 @@ def circulation(omega: ArrayLike, radius: ArrayLike) -> ArrayLike:
 
     Parameters
     ----------
-    omega : float or array_like
-        Spin rate, positive counter-clockwise seen from +z. [rad/s]
-    radius : float or array_like
-        Cylinder radius. [m]
+    omega, radius : float or array_like
+        As for :func:`spin_ratio`. [rad/s], [m]
 
     Returns
     -------

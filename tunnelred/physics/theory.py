@@ -2,7 +2,9 @@
 
 Conventions (docs/conventions.md): θ is measured from the windward point (θ = 0 faces the oncoming
 flow) and increases in the sense of positive spin (ω > 0 counter-clockwise seen from +z); the spin
-ratio α = ωR/U is signed. Angles are in degrees at every public surface.
+ratio α = ωR/U is signed. Angles are in degrees at every public surface. The formulas' parameters
+``theta`` (the surface azimuth [deg]) and ``alpha`` (the spin ratio [-]) are these, described here
+once; they take floats, ndarrays, Series or DataArrays and broadcast (tunnelred.common._arraylike).
 """
 
 from __future__ import annotations
@@ -28,13 +30,6 @@ PRANDTL_LIMIT = 4 * np.pi
 @arraylike
 def cp_surface(theta: ArrayLike, alpha: ArrayLike) -> ArrayLike:
     """Surface pressure coefficient of potential flow about a spinning cylinder.
-
-    Parameters
-    ----------
-    theta : float or array_like
-        Surface azimuth from the windward point, positive with positive spin. [deg]
-    alpha : float or array_like
-        Spin ratio ωR/U, signed with ω. [-]
 
     Returns
     -------
@@ -69,11 +64,6 @@ def cp_surface(theta: ArrayLike, alpha: ArrayLike) -> ArrayLike:
 def lift_coefficient(alpha: ArrayLike) -> ArrayLike:
     """Ideal (Kutta–Joukowski) lift coefficient of a spinning cylinder.
 
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio ωR/U, signed with ω. [-]
-
     Returns
     -------
     float or array_like
@@ -100,11 +90,6 @@ def lift_coefficient(alpha: ArrayLike) -> ArrayLike:
 @arraylike
 def stagnation_angles(alpha: ArrayLike) -> tuple[ArrayLike, ArrayLike]:
     """Azimuths of the two potential-flow stagnation points on the surface.
-
-    Parameters
-    ----------
-    alpha : float or array_like
-        Spin ratio ωR/U, signed with ω. [-]
 
     Returns
     -------

@@ -566,12 +566,9 @@ def propagate_monte_carlo(
 
     Parameters
     ----------
-    model : callable
-        ``model(x) -> y`` on dicts of arrays with a leading batch axis (module docstring).
-    inputs : dict of str to Input
-        The input quantities; each is assigned a Gaussian N(value, u²).
-    correlation : dict of (str, str) to float, optional
-        Input correlation coefficients, as for :func:`propagate_linear` [-].
+    model, inputs, correlation
+        As for :func:`propagate_linear`; each input is assigned a Gaussian N(value, u²), jointly
+        normal with the correlations given (Notes).
     draws : int
         Number of draws M; with ``adaptive`` the size of each sequence [-].
     seed : int

@@ -102,10 +102,8 @@ def wake_blockage_2d(
 
     Parameters
     ----------
-    diameter : float or array_like
-        Cylinder diameter. [m]
-    height : float or array_like
-        Wall-to-wall distance of the test section across which lift acts. [m]
+    diameter, height : float or array_like
+        As for :func:`solid_blockage_2d`. [m]
     drag_coefficient : float or array_like
         The run's own uncorrected drag coefficient ``CD_u`` (on ``q d b``). [-]
     method : {"allen-vincenti", "maskell"}
