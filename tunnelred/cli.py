@@ -463,10 +463,6 @@ def _run_compare(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------
-# watch
-
-
-# ---------------------------------------------------------------------------------------------
 # init
 
 
@@ -495,6 +491,9 @@ def _run_init(args) -> int:
     print(f"fill them in, then: tunnelred check {args.dest}")
     return 0
 
+
+# ---------------------------------------------------------------------------------------------
+# watch
 
 # The defaults themselves live in tunnelred.live.watcher (a test keeps these texts in step);
 # importing it here would make every `tunnelred --help` load the whole pipeline.
