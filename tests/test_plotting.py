@@ -332,6 +332,32 @@ def test_cp_pair_shows_the_band_width(results):
     )
 
 
+def test_cp_pair_text_neither_overlaps_nor_leaves_the_figure(results):
+    # At rest the polar radius spans Cp -3 to 1.5 (potential flow's minimum, 1 - (2 sin θ)²):
+    # before, ten radial labels every 0.5 ran into each other near the centre, and the polar
+    # title stood partly above the figure's top edge.
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    pressure = np.isfinite(results["CL_p"].values)
+    at_rest = [r for r, a in zip(results["run"].values[pressure], results["alpha"].values[pressure],
+                                 strict=True) if abs(a) < 0.01]  # fmt: skip
+    assert at_rest, "the fixture has a pressure run at rest"
+    for run in (at_rest[0], plotting.representative_runs(results)[-1]):
+        fig = plotting.plot_cp_pair(results, run)
+        canvas = FigureCanvasAgg(fig)
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        ax_polar = fig.axes[2]
+        boxes = [t.get_window_extent(renderer) for t in ax_polar.get_yticklabels() if t.get_text()]
+        assert 2 <= len(boxes) <= 6, run
+        for i, a in enumerate(boxes):
+            assert not any(a.overlaps(b) for b in boxes[i + 1 :]), (run, i)
+        for text in (ax_polar.title, *ax_polar.get_xticklabels(), *ax_polar.get_yticklabels()):
+            box = text.get_window_extent(renderer)
+            assert fig.bbox.x0 <= box.x0 and box.x1 <= fig.bbox.x1, (run, text.get_text())
+            assert fig.bbox.y0 <= box.y0 and box.y1 <= fig.bbox.y1, (run, text.get_text())
+
+
 def test_axes_sketch_names_the_conventions():
     ax = plotting.plot_axes_sketch()
     texts = " ".join(t.get_text() for t in ax.texts)

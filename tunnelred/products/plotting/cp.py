@@ -112,10 +112,22 @@ def plot_cp(results, run: str, *, ax: Axes | None = None, polar: bool = False) -
 
 
 def _polar_frame(ax: Axes, run: str, low: float) -> None:
-    """Flow from the left, θ counter-clockwise; the radius from below ``low`` to 1.5."""
+    """Flow from the left, θ counter-clockwise; the radius from below ``low`` to 1.5.
+
+    The radial labels are few (about four, none at the centre, where the rings are too close
+    to read) and sit on a light box along the 112.5° ray, so that they neither run into each
+    other nor vanish under the curves (at rest, labels every 0.5 overlapped at the centre).
+    """
     ax.set_theta_zero_location("W")
     ax.set_theta_direction(1)
-    ax.set_rlim(math.floor(low), 1.5)
+    inner = math.floor(low)
+    ax.set_rlim(inner, 1.5)
+    ticks = mpl.ticker.MaxNLocator(nbins=5).tick_values(inner, 1.5)
+    ax.set_rticks([t for t in ticks if inner + 0.2 * (1.5 - inner) <= t < 1.5])
+    ax.set_rlabel_position(112.5)
+    ax.tick_params(axis="y", labelsize=7)
+    for label in ax.get_yticklabels():
+        label.set_bbox({"facecolor": "white", "edgecolor": "none", "alpha": 0.8, "pad": 1})
     ax.set_title(f"Cp around the section, run {run} (flow from the left)")
     ax.legend(loc="lower center", bbox_to_anchor=(0.5, -0.32), fontsize=7)
 
@@ -160,7 +172,7 @@ def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:
     ds = results_dataset(results)
     with house_style():
         if fig is None:
-            fig = Figure(figsize=(9.6, 4.6), layout="constrained")
+            fig = Figure(figsize=(9.6, 4.8), layout="constrained")
         grid = fig.add_gridspec(2, 2, height_ratios=(3.2, 1.0), width_ratios=(1.25, 1.0))
         ax_cp = fig.add_subplot(grid[0, 0])
         ax_u = fig.add_subplot(grid[1, 0], sharex=ax_cp)
@@ -181,7 +193,8 @@ def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:
             ax_u.set_ylim(bottom=0)
         ax_u.set_ylabel(r"$k\,u(C_p)$, k = 2", fontsize=7)
         ax_u.set_xlabel(r"azimuth $\theta$ from the windward point [deg]")
-        ax_polar.set_title("polar form (flow from the left)", fontsize=8, pad=14)
+        # pad 8 clears the 270° label; with 14 the title ran off the top of the figure
+        ax_polar.set_title("polar form (flow from the left)", fontsize=8, pad=8)
         ax_polar.legend().remove()
         flags = str(row["flags"].item()) if "flags" in row else ""
         if flags:
