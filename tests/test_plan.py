@@ -9,6 +9,7 @@ of the errors over seeds.
 
 from __future__ import annotations
 
+import shutil
 from dataclasses import replace
 
 import numpy as np
@@ -74,27 +75,49 @@ def simulated(tmp_path_factory):
     return folder, spec, reduced, plan
 
 
-@pytest.mark.parametrize("name", ["alpha", "CL", "CM", "C_power", "CD"])
+@pytest.fixture(scope="module")
+def planned_from_its_results(simulated, tmp_path_factory):
+    """The same points planned with the simulated campaign's own results as the prior: the
+    coefficients (which scale the type-B terms) are then the runs', and only the noise model
+    and the record statistics are judged."""
+    from tunnelred.pipeline.campaign import reduce_campaign
+
+    folder, spec, _, _ = simulated
+    out = tmp_path_factory.mktemp("results") / "out"
+    reduce_campaign(folder, out, workers=1, progress=False, figures=False)
+    return plan_test(folder, _same_points(out.parent, spec), prior=out, noise=NOISE,
+                     air=_air(spec))  # fmt: skip
+
+
+# Measured (seed 2026, docs/plan.md), plan u / reduction u at alpha 0, 1, 2, 3: with the
+# illustrative prior CL 1.00, 1.01, 0.88, 1.04; with the campaign's results as the prior every
+# output within 0.81-1.05 at every alpha (CL 1.01, 0.89, 0.82, 1.01). The plan's N_eff is
+# the reduction's estimator on the noise model's expected lag sums
+# (series.expected_record_statistics), so the shedding's narrow band gets the credit the
+# reduction gives it (before: 1.68, 1.29 at alpha 0, 1).
+@pytest.mark.parametrize("name", ["alpha", "CL", "CM", "C_power"])
 def test_predicted_u_agrees_with_the_reductions_u(simulated, name):
     _, _, reduced, plan = simulated
     predicted = plan.table[f"u_{name}"].to_numpy()
     reported = reduced[f"u_{name}"].to_numpy()
     judged = reported > 0
-    if name == "CD":
-        # CD's type-A part at low spin comes from the shedding's drag, which the plan does not
-        # model (docs/plan.md): judged where the spin has suppressed it.
-        judged &= np.array(SPIN_RATIOS) >= 2.0
-    if name == "CL":
-        # At low spin u(CL) is the shedding's: the reduction's N_eff (Sokal's window) takes in
-        # its oscillating correlation and now matches the spread over seeds (slow test below);
-        # the plan's N_eff = T / (2 tau_shedding) still ignores it (measured plan / reduction
-        # 1.68, 1.29 at alpha 0, 1): conservative, never optimistic.
-        shedding = (np.array(SPIN_RATIOS) < 2.0) & judged
-        low = predicted[shedding] / reported[shedding]
-        assert np.all((low > 0.8) & (low < 2.0)), low
-        judged &= ~shedding
     ratio = predicted[judged] / reported[judged]
-    assert judged.sum() >= 2
+    assert judged.sum() >= 3
+    assert np.all(np.abs(ratio - 1.0) < 0.2), ratio
+
+
+@pytest.mark.parametrize("name", ["alpha", "CL", "CD", "CM", "C_power"])
+def test_predicted_u_with_the_runs_coefficients_agrees_at_every_spin(
+    simulated, planned_from_its_results, name
+):
+    # CD too: with the illustrative prior its CD (so its CD budget) differs from the demo's
+    # at alpha 1 (plan / reduction 1.52); with the runs' own coefficients it does not.
+    _, _, reduced, _ = simulated
+    predicted = planned_from_its_results.table[f"u_{name}"].to_numpy()
+    reported = reduced[f"u_{name}"].to_numpy()
+    judged = reported > 0
+    ratio = predicted[judged] / reported[judged]
+    assert judged.sum() >= 3
     assert np.all(np.abs(ratio - 1.0) < 0.2), ratio
 
 
@@ -125,6 +148,37 @@ def test_outputs_are_written(simulated, tmp_path):
     assert len(table) == len(SPIN_RATIOS)
     # Every point names what dominates its u(CL).
     assert table["dominant_CL"].notna().all()
+
+
+def test_a_plan_folder_is_replaced_whole_or_not_at_all(simulated, tmp_path, monkeypatch):
+    # The rule "outputs whole or untouched" (RULES: never lose data): a plan that fails while
+    # being written (here its figures, with a full disk's OSError) leaves the previous plan, all
+    # of it, and no file of the new one; a plan that completes replaces every file at once.
+    from tunnelred.common.errors import OutputFolderError
+    from tunnelred.products.plan import figures
+
+    folder, spec, _, plan = simulated
+    out = tmp_path / "plan-out"
+    write_plan(plan, out)
+    before = {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()}
+    assert {"plan.csv", "plan.nc", "plan_budgets.csv", "plan.json"} <= set(before)
+    rows = ["config,speed_set [m/s],spin_ratio,record [s]", "plates,12,1,8"]
+    other = plan_test(folder, _matrix(tmp_path, rows), noise=NOISE, air=_air(spec))
+
+    def full_disk(*args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(figures, "save_figure", full_disk)
+    with pytest.raises(OutputFolderError, match="kept"):
+        write_plan(other, out)
+    after = {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()}
+    assert after == before
+    assert len(list((out / "figures").iterdir())) == 3
+    monkeypatch.undo()
+    write_plan(other, out)
+    assert pd.read_csv(out / "plan.csv")["speed_set"].tolist() == [12.0]
+    # One generation only: the earlier plan's files are gone from it, not beside it.
+    assert len(list((out / ".generations").iterdir())) == 1
 
 
 def test_overload_and_spin_limit_are_reported(simulated, tmp_path):
@@ -165,14 +219,16 @@ def test_short_records_are_told_the_length_they_need(simulated, tmp_path):
 
 def test_record_for_a_target_u_reaches_it(simulated, tmp_path):
     folder, spec, _, _ = simulated
-    rows = ["config,speed_set [m/s],spin_ratio,record [s]", "plates,9,2,1"]
+    # At rest, where the shedding's lift is the largest type-A term (docs/plan.md).
+    rows = ["config,speed_set [m/s],spin_ratio,record [s]", "plates,9,0,1"]
     first = plan_test(folder, _matrix(tmp_path, rows), noise=NOISE, air=_air(spec))
     u_now = first.table.iloc[0]["u_CL"]
-    # A target between the 1 s value and the floor of type-B terms is reached at the length
-    # the plan names: replanned at that length, u(CL) is the target (u^2 = B + A/T exactly
-    # when every type-A term scales with 1/T, as here).
-    long = plan_test(folder, _matrix(tmp_path, rows[:1] + ["plates,9,2,100"]), noise=NOISE,
+    # A target between the 1 s value and the 100 s one is reached at the length the plan names:
+    # replanned at that length, u(CL) is the target (the search bisects to 1 % of the record,
+    # over which u moves far less than 2 %).
+    long = plan_test(folder, _matrix(tmp_path, rows[:1] + ["plates,9,0,100"]), noise=NOISE,
                      air=_air(spec)).table.iloc[0]["u_CL"]  # fmt: skip
+    assert long < 0.9 * u_now
     target = 0.5 * (u_now + long)
     plan = plan_test(
         folder, _matrix(tmp_path, rows), noise=NOISE, air=_air(spec), target=("CL", target)
@@ -181,9 +237,14 @@ def test_record_for_a_target_u_reaches_it(simulated, tmp_path):
     assert 1.0 < needed < 100.0
     assert "record too short for u(CL)" in plan.table.iloc[0]["warnings"]
     again = plan_test(
-        folder, _matrix(tmp_path, [rows[0], f"plates,9,2,{needed}"]), noise=NOISE, air=_air(spec)
+        folder, _matrix(tmp_path, [rows[0], f"plates,9,0,{needed}"]), noise=NOISE, air=_air(spec)
     )
+    assert again.table.iloc[0]["u_CL"] <= target
     assert again.table.iloc[0]["u_CL"] == pytest.approx(target, rel=0.02)
+    # A target below what any record reaches (the type-B floor) is out of reach.
+    floor = plan_test(folder, _matrix(tmp_path, rows), noise=NOISE, air=_air(spec),
+                      target=("CL", 0.5 * long)).table.iloc[0]  # fmt: skip
+    assert floor["record_for_u_CL"] == np.inf and "out of reach" in floor["warnings"]
 
 
 def test_matrix_problems_name_file_row_and_column(simulated, tmp_path):
@@ -206,28 +267,36 @@ def test_matrix_problems_name_file_row_and_column(simulated, tmp_path):
 @pytest.mark.slow
 def test_predicted_u_against_the_spread_over_seeds(tmp_path):
     # Campaigns whose systematic errors are drawn from the declared u (SynthSpec.
-    # systematic_errors): the spread of (reduced - truth) over seeds is what u claims.
-    # Measured (40 seeds, docs/plan.md): spread of CL 0.011, 0.014, 0.021, 0.028 at alpha 0-3;
-    # the reduction reports 0.014, 0.015, 0.024, 0.030 (Sokal-window N_eff; 0.023, 0.020 at
-    # alpha 0, 1 with the first-zero sum) and the plan predicts 0.023, 0.021, 0.023, 0.028. The
-    # plan is conservative at low spin, where the shedding's fluctuation averages out of the mean
-    # better than its N_eff = T / (2 tau) says.
-    seeds = 40
-    errors = []
+    # systematic_errors): the spread of (reduced - truth) over seeds is what u claims (issue 19:
+    # the plan within 20 % of it). 400 seeds: the sample sd is within +-3.5 % (1 sd, chi-square
+    # with 399 dof) of sigma. Measured (docs/plan.md), plan u / spread at alpha 0, 1, 2, 3, CL:
+    # 1.10, 0.99, 1.00, 1.07 with the runs' coefficients as the prior (1.10, 1.13, 1.07, 1.11
+    # with the illustrative prior); the reduction's own mean u / spread 1.11, 1.06, 1.09, 1.10.
+    # CD is not judged: at rest both the plan and the reduction claim 2.5x its spread.
+    seeds = 400
+    names = ("CL", "CM", "C_power", "alpha")
+    errors = {name: [] for name in names}
     for seed in range(seeds):
         spec = _spec(seed, systematic_errors=True)
-        folder = tmp_path / f"s{seed}"
+        folder = tmp_path / "campaign"
         truth = make_campaign(folder, spec).set_index("run")
         campaign = open_campaign(folder)
-        errors += [reduce_run(campaign, r).values["CL"] - truth.loc[r, "CL"] for r in truth.index]
-    plan = plan_test(folder, _same_points(tmp_path, spec), noise=NOISE, air=_air(spec))
-    spread = np.array(errors).reshape(seeds, -1).std(axis=0, ddof=1)
-    ratio = plan.table["u_CL"].to_numpy() / spread
-    # 40 seeds: the sample sd is within +-30 % of sigma at > 99 % (chi-square, 39 dof).
-    spinning = np.array(SPIN_RATIOS) >= 2.0
-    assert np.all(np.abs(ratio[spinning] - 1.0) < 0.3), ratio
-    # At low spin the plan may be conservative, never optimistic.
-    assert np.all(ratio[~spinning] > 0.7), ratio
+        for run in truth.index:
+            values = reduce_run(campaign, run).values
+            for name in names:
+                errors[name].append(values[name] - truth.loc[run, name])
+        if seed < seeds - 1:
+            shutil.rmtree(folder)
+    from tunnelred.pipeline.campaign import reduce_campaign
+
+    out = tmp_path / "out"
+    reduce_campaign(folder, out, workers=1, progress=False, figures=False)
+    plan = plan_test(folder, _same_points(tmp_path, spec), prior=out, noise=NOISE, air=_air(spec))
+    for name in names:
+        spread = np.array(errors[name]).reshape(seeds, -1).std(axis=0, ddof=1)
+        judged = spread > 0  # alpha and C_power are exactly 0 at rest
+        ratio = plan.table[f"u_{name}"].to_numpy()[judged] / spread[judged]
+        assert np.all(np.abs(ratio - 1.0) < 0.2), (name, ratio)
 
 
 def test_command_line_options_cover_every_noise_level():

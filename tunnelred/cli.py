@@ -544,7 +544,7 @@ def _run_watch(args) -> int:
 _NOISE_OPTIONS = (
     "turbulence", "turbulence_time", "balance_noise", "pitot_noise", "spin_jitter",
     "spin_jitter_time", "tap_noise", "tap_noise_floor", "unsteady_cl", "unsteady_cl_decay",
-    "wind_off_record",
+    "shedding_bandwidth", "imbalance", "wind_off_record",
 )  # fmt: skip
 
 
@@ -631,7 +631,7 @@ def _run_plan(args) -> int:
         args.campaign, args.matrix, prior=prior, noise=noise, air=air, target=target,
         eps_limit=args.eps_limit,
     )  # fmt: skip
-    write_plan(result, folder)
+    write_plan(result, folder, args.campaign)
     print(f"{len(result.table)} planned points; plan written to {folder}")
     loud = [w for w in result.warnings if "SPIN LIMIT" in w or "OVERLOAD" in w]
     for warning in result.warnings:

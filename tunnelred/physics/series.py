@@ -15,7 +15,14 @@ import numpy.typing as npt
 
 from tunnelred.common._arraylike import as_array
 
-__all__ = ["SeriesStats", "series_statistics", "effective_sample_size", "correlation_of_means"]
+__all__ = [
+    "SeriesStats",
+    "series_statistics",
+    "effective_sample_size",
+    "expected_record_statistics",
+    "variance_of_the_mean",
+    "correlation_of_means",
+]
 
 
 @dataclass(frozen=True)
@@ -172,7 +179,12 @@ def effective_sample_size(x: npt.ArrayLike) -> float:
     dx = x - x.mean()
     size = _fft_length(2 * n)
     spectrum = np.fft.rfft(dx, size)
-    acov = np.fft.irfft(spectrum.real**2 + spectrum.imag**2, size)[:n]
+    return _n_eff_of_lag_sums(np.fft.irfft(spectrum.real**2 + spectrum.imag**2, size)[:n])
+
+
+def _n_eff_of_lag_sums(acov: np.ndarray) -> float:
+    """N_eff from a record's lag sums Σ_i dx_i dx_(i+k), k = 0 … N−1 (effective_sample_size)."""
+    n = acov.size
     if acov[0] <= 0.0:
         return float(n)
     k = np.arange(1, n)
@@ -185,6 +197,90 @@ def effective_sample_size(x: npt.ArrayLike) -> float:
     non_positive = np.flatnonzero(weighted <= 0.0)
     last = non_positive[0] if non_positive.size else weighted.size
     return float(np.clip(n / (1.0 + 2.0 * np.sum(weighted[:last])), 1.0, n))
+
+
+def _lag_covariances(gamma: npt.ArrayLike, caller: str) -> np.ndarray:
+    gamma = as_array(gamma)
+    if gamma.ndim != 1 or gamma.size < 2:
+        raise ValueError(f"{caller} needs gamma_0 … gamma_(N-1), N >= 2; got shape {gamma.shape}")
+    return gamma
+
+
+def _covariance_with_the_mean(gamma: np.ndarray) -> np.ndarray:
+    """c_i = cov(x_i, x̄) = (1/N) Σ_j gamma_|i−j|, i = 0 … N−1 (cumulative sums: O(N))."""
+    cumulative = np.cumsum(gamma)
+    return (cumulative + cumulative[::-1] - gamma[0]) / gamma.size
+
+
+def variance_of_the_mean(autocovariance: npt.ArrayLike) -> float:
+    """The exact variance of the mean of N samples of a stationary record.
+
+    Parameters
+    ----------
+    autocovariance : array_like
+        gamma_k, k = 0 … N−1 (the unit squared); for two records sampled together, their
+        cross-covariance (even in the lag) gives the covariance of their means.
+
+    Returns
+    -------
+    float
+        var(x̄) = (1/N²) Σ_i Σ_j gamma_|i−j| = (gamma_0 + 2 Σ_k (1 − k/N) gamma_k) / N
+        (Bayley and Hammersley 1946). [unit²]
+
+    Examples
+    --------
+    >>> round(variance_of_the_mean(np.r_[4.0, np.zeros(99)]), 12)  # white noise: sigma² / N
+    0.04
+    """
+    gamma = _lag_covariances(autocovariance, "variance_of_the_mean")
+    return float(np.sum(_covariance_with_the_mean(gamma))) / gamma.size
+
+
+def expected_record_statistics(autocovariance: npt.ArrayLike) -> tuple[float, float]:
+    """The standard deviation and N_eff the reduction will estimate from a modelled record.
+
+    Parameters
+    ----------
+    autocovariance : array_like
+        gamma_k, k = 0 … N−1: the autocovariance of a stationary record of N evenly spaced
+        samples at lag k (the record's unit squared), from a stated noise model.
+
+    Returns
+    -------
+    (float, float)
+        s, the expected sample standard deviation (n − 1), and N_eff: what
+        :func:`effective_sample_size` gives from the record's expected lag sums (its window,
+        its cap). s / sqrt(N_eff) is the type-A u of the mean that :func:`series_statistics`
+        will report for such a record.
+
+    Notes
+    -----
+    The lag sums of the mean-removed record have the expectation
+    E[Σ_{i<N−k} (x_i − x̄)(x_{i+k} − x̄)] = (N − k)(gamma_k + V) − Σ_{i<N−k} (c_i + c_{i+k}),
+    c_i = cov(x_i, x̄) = (1/N) Σ_j gamma_|i−j|, V = var(x̄) = (1/N) Σ_i c_i (expanding the
+    product; O(N) with cumulative sums). The estimator is applied to these expected sums
+    instead of to one record's: a plug-in value of its expectation (the estimator is a ratio
+    with a data-chosen window, so its mean over records differs from it by the estimator's own
+    small bias). A test plan uses it so that its predicted u follows the reduction's N_eff
+    for every stated spectrum (AR(1), narrow-band shedding, a tone) with one home for the window.
+
+    Examples
+    --------
+    >>> s, n_eff = expected_record_statistics(np.r_[1.0, np.zeros(999)])  # white noise
+    >>> round(s, 3), 950 < n_eff < 1050
+    (1.0, True)
+    """
+    gamma = _lag_covariances(autocovariance, "expected_record_statistics")
+    n = gamma.size
+    c = _covariance_with_the_mean(gamma)
+    var_mean = float(np.sum(c)) / n
+    k = np.arange(n)
+    c_cum = np.cumsum(c)
+    head = c_cum[n - 1 - k]  # Σ_{i=0}^{N−1−k} c_i
+    tail = c_cum[-1] - np.r_[0.0, c_cum[:-1]]  # Σ_{i=k}^{N−1} c_i
+    lag_sums = (n - k) * (gamma + var_mean) - head - tail
+    s2 = max(float(lag_sums[0]) / (n - 1), 0.0)
+    return float(np.sqrt(s2)), _n_eff_of_lag_sums(lag_sums)
 
 
 def correlation_of_means(records: list[tuple[npt.ArrayLike, npt.ArrayLike]]) -> np.ndarray:

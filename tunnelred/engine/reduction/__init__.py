@@ -36,6 +36,7 @@ from tunnelred.engine.reduction.flow import (
 )
 from tunnelred.engine.reduction.loads import (
     balance_load_inputs,
+    calibration_from_terms,
     calibration_step,
     net_load_inputs,
     shared_fluctuation,
@@ -69,6 +70,7 @@ __all__ = [
     "run_model",
     "air_data_inputs",
     "balance_load_inputs",
+    "calibration_from_terms",
     "spin_rate_inputs",
     "pressure_run_inputs",
     "geometry_inputs",

@@ -160,6 +160,20 @@ def calibration_step(campaign, spec, data, omega_mean: float) -> CalibrationStep
             for k in range(0, padded.shape[1], 3)
         ])[:width]  # fmt: skip
         terms = terms - interpolated
+    return calibration_from_terms(cfg, terms)
+
+
+def calibration_from_terms(cfg, terms: np.ndarray) -> CalibrationStep | None:
+    """The calibration file's coefficients as one input with their covariance, or None.
+
+    ``cfg`` is the campaign's BalanceConfig, ``terms`` a run's net calibration terms
+    (:func:`tunnelred.physics.balance.calibration_terms` of its mean signals, the tare's
+    removed). Public so that a test plan propagates the same covariance.
+    """
+    if cfg.coefficient_covariance is None:
+        return None
+    second = cfg.second_order is not None
+    terms = np.asarray(terms, dtype=float)
     per_load = terms.size
     sensitivity = np.zeros((3, 3 * per_load))
     for r in range(3):

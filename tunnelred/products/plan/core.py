@@ -174,7 +174,9 @@ def plan_folder(out, campaign=None) -> Path:
     from tunnelred.products.results_folder import check_location, is_results_folder
 
     path = Path(out)
-    if path.is_dir() and (path / "plan.json").is_file() and not is_results_folder(path):
+    if path.is_dir() and (path / "plan.json").is_file():
+        # A plan folder (written as a generation, so it carries the results folder's marker;
+        # a results folder holds its plan in plan/, never plan.json at the top).
         check_location(path, campaign, force=True)
         return path
     checked = check_location(path, campaign)
@@ -183,31 +185,45 @@ def plan_folder(out, campaign=None) -> Path:
     return checked
 
 
-def write_plan(result: PlanResult, out) -> list[Path]:
+def write_plan(result: PlanResult, out, campaign=None) -> list[Path]:
     """Write plan.csv, plan.nc, plan_budgets.csv, plan.json and figures/ into ``out``.
 
-    Each file is written whole or not at all (atomic rename); nothing outside ``out``. Use
-    :func:`plan_folder` to place a plan beside results.
+    ``out`` is written as the results folder is (:mod:`tunnelred.products.results_folder`):
+    locked, the files of one plan written into a new generation and switched to at once, so
+    that ``out`` shows the previous plan whole or this one whole, never a mix; nothing outside
+    ``out``. Use :func:`plan_folder` to place a plan beside results. Returns the paths as seen
+    from ``out`` (links into its current generation).
+
+    Raises
+    ------
+    OutputFolderError
+        ``out`` cannot be used (a file, not writable, a non-empty folder that is neither a plan
+        nor a results folder, another process writing it) or the plan could not be written
+        whole (the previous plan, if any, is kept).
     """
     from tunnelred.products.plan.figures import save_plan_figures
+    from tunnelred.products.results_folder import open_results_folder
 
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise OutputFolderError(f"{out} exists and is not a folder")
-    out.mkdir(parents=True, exist_ok=True)
-    paths = [write_csv(result.table, out / "plan.csv")]
-    ds = result.to_dataset()
-    paths.append(atomic_write_bytes(out / "plan.nc", ds.to_netcdf(engine="scipy")))
-    paths.append(write_csv(result.budgets, out / "plan_budgets.csv"))
-    meta = dict(result.assumptions, safety=SAFETY, tunnelred_version=__version__)
-    paths.append(atomic_write_bytes(out / "plan.json", json.dumps(meta, indent=2).encode()))
-    paths += save_plan_figures(
-        result.table,
-        out / "figures",
-        overload=float(result.assumptions["overload_tolerance"]),
-        eps_limit=float(result.assumptions["eps_limit"]),
-    )
-    return paths
+    earlier_plan = (out / "plan.json").is_file()
+    with open_results_folder(out, campaign, force=earlier_plan) as folder:
+        with folder.stage() as staging:
+            paths = [write_csv(result.table, staging.file("plan.csv"))]
+            ds = result.to_dataset()
+            paths.append(atomic_write_bytes(staging.file("plan.nc"), ds.to_netcdf(engine="scipy")))
+            paths.append(write_csv(result.budgets, staging.file("plan_budgets.csv")))
+            meta = dict(result.assumptions, safety=SAFETY, tunnelred_version=__version__)
+            text = json.dumps(meta, indent=2).encode()
+            paths.append(atomic_write_bytes(staging.file("plan.json"), text))
+            paths += save_plan_figures(
+                result.table,
+                staging.file("figures"),
+                overload=float(result.assumptions["overload_tolerance"]),
+                eps_limit=float(result.assumptions["eps_limit"]),
+            )
+        return [folder.root / Path(p).relative_to(staging.path) for p in paths]
 
 
 def read_plan(folder) -> tuple[pd.DataFrame, dict] | None:
@@ -215,9 +231,13 @@ def read_plan(folder) -> tuple[pd.DataFrame, dict] | None:
 
     Raises InputError when the plan's files cannot be read.
     """
+    from tunnelred.products.results_folder import generation_of
+
     folder = Path(folder)
     if (folder / PLAN_SUBFOLDER / "plan.json").is_file():
         folder = folder / PLAN_SUBFOLDER
+    # Both files from one generation, even while a new plan is being switched to.
+    folder = generation_of(folder)
     if not (folder / "plan.csv").is_file() or not (folder / "plan.json").is_file():
         return None
     try:

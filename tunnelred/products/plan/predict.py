@@ -5,9 +5,11 @@ The prediction reuses the reduction's run model and its GUM propagation
 :func:`tunnelred.physics.uncertainty.propagate_linear`): the planned conditions and the prior's
 coefficients give each input's nominal value, the instruments' declared uncertainties
 (campaign.toml) its type-B terms, and the stated noise levels with the record length its
-type-A terms. A record of length T whose fluctuation has correlation time tau holds
-N_eff = T / (2 tau) independent samples (an AR(1) record sampled finely; capped at the
-sample count), so the mean's standard error is sigma / sqrt(N_eff).
+type-A terms. Each record's type-A u is the one the reduction will estimate from such a record:
+the stated noise model gives the record's autocovariance (turbulence AR(1), white noise, the
+shedding's narrow band, the imbalance's once-per-revolution tone), and
+:func:`tunnelred.physics.series.expected_record_statistics` applies the reduction's own
+N_eff estimator to its expected lag sums.
 """
 
 from __future__ import annotations
@@ -18,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from tunnelred.engine import quality, reduction
-from tunnelred.physics import air, balance, conditions, corrections, pressure, theory
+from tunnelred.physics import air, balance, conditions, corrections, pressure, series, theory
 from tunnelred.physics.uncertainty import propagate_linear
 from tunnelred.products.plan.levels import AirState, NoiseLevels
 from tunnelred.products.plan.matrix import PlannedPoint
@@ -45,8 +47,35 @@ class PointPrediction:
     u_Cp: np.ndarray | None = None
 
 
-def _n_eff(record: float, rate: float, tau: float) -> float:
-    return float(max(1.0, min(record * rate, record / (2.0 * tau))))
+def _lags(record: float, rate: float) -> np.ndarray:
+    """The lag times [s] of a record of this length and sample rate (at least two samples)."""
+    return np.arange(max(2, int(round(record * rate)))) / rate
+
+
+def _ar1(lags: np.ndarray, variance, tau: float) -> np.ndarray:
+    """Autocovariance of a fluctuation with correlation time tau (AR(1), exponential)."""
+    return np.multiply.outer(np.asarray(variance, dtype=float), np.exp(-lags / tau))
+
+
+def _white(lags: np.ndarray, variance) -> np.ndarray:
+    return np.multiply.outer(np.asarray(variance, dtype=float), (lags == 0.0).astype(float))
+
+
+def _band(lags: np.ndarray, variance, frequency: float, bandwidth: float) -> np.ndarray:
+    """A spectral line at ``frequency`` [Hz] of relative full width at half maximum
+    ``bandwidth`` (a Lorentzian: the correlation cos(2 pi f t) exp(-pi B f t)); 0: a tone."""
+    shape = np.cos(2.0 * np.pi * frequency * lags) * np.exp(-np.pi * bandwidth * frequency * lags)
+    return np.multiply.outer(np.asarray(variance, dtype=float), shape)
+
+
+def _u_of_mean(gamma: np.ndarray) -> np.ndarray:
+    """The type-A u of the mean the reduction will report, per record (last axis: lag)."""
+    gamma = np.atleast_2d(gamma)
+    out = []
+    for row in gamma:
+        s, n_eff = series.expected_record_statistics(row)
+        out.append(s / np.sqrt(n_eff))
+    return np.array(out)
 
 
 @dataclass(frozen=True)
@@ -98,13 +127,12 @@ def _nominal(
 def _inputs(cfg, point: PlannedPoint, nom: _Planned, noise: NoiseLevels, air_state, record):
     """The run-level inputs and correlations a run of this record length would have."""
     b = cfg.instruments.balance
-    full_scale = np.array(b.full_scale)
     q_rel = 2.0 * noise.turbulence  # q = rho U^2 / 2
-    n_turb_t = _n_eff(record, point.tunnel_rate, noise.turbulence_time)
-    n_turb_b = _n_eff(record, point.balance_rate, noise.turbulence_time)
-    u_dp = np.sqrt(
-        (nom.dp * q_rel) ** 2 / n_turb_t + noise.pitot_noise**2 / (record * point.tunnel_rate)
-    )
+    lags_t = _lags(record, point.tunnel_rate)
+    u_dp = _u_of_mean(
+        _ar1(lags_t, (nom.dp * q_rel) ** 2, noise.turbulence_time)
+        + _white(lags_t, noise.pitot_noise**2)
+    )[0]
     inputs = reduction.air_data_inputs(
         cfg,
         {
@@ -116,50 +144,94 @@ def _inputs(cfg, point: PlannedPoint, nom: _Planned, noise: NoiseLevels, air_sta
     )
     inputs.update(reduction.geometry_inputs(cfg))
     spin_source = "tachometer"
-    n_spin = _n_eff(record, point.balance_rate, noise.spin_jitter_time)
-    u_omega = abs(nom.omega) * noise.spin_jitter / np.sqrt(n_spin)
+    lags_b = _lags(record, point.balance_rate)
+    jitter = _ar1(lags_b, (nom.omega * noise.spin_jitter) ** 2, noise.spin_jitter_time)
+    u_omega = float(_u_of_mean(jitter)[0])
     inputs.update(reduction.spin_rate_inputs(cfg, nom.omega, u_omega, spin_source, record))
-    white = noise.balance_noise * full_scale
-    u_record = np.sqrt(
-        (nom.loads * q_rel) ** 2 / n_turb_b
-        + white**2 / (record * point.balance_rate)
-        + _shedding(cfg, point, nom, noise) ** 2
-        / _n_eff(record, point.balance_rate, _shedding_time(cfg, point))
-    )
-    n_wind_off = noise.wind_off_record * point.balance_rate
-    u_zero = white / np.sqrt(n_wind_off)
-    spinning = quality.is_spinning(nom.alpha)
-    u_tare = u_zero if nom.omega != 0.0 else np.zeros(3)
+    u_record = _u_of_mean(_load_records(cfg, point, nom, noise, lags_b))
+    # The wind-off records: the zeros (at rest: the balance's noise alone) and the spin tares
+    # (spinning: the imbalance's tone on top), each its own record of wind_off_record.
+    lags_w = _lags(noise.wind_off_record, point.balance_rate)
+    white = _white(lags_w, _white_loads(cfg, noise) ** 2)
+    u_zero = _u_of_mean(white)
+    u_tare = np.zeros(3)
+    if nom.omega != 0.0:
+        u_tare = _u_of_mean(white + _imbalance(lags_w, nom.omega, noise))
     inputs.update(
         reduction.balance_load_inputs(b, nom.loads, np.hypot(u_record, u_zero), np.zeros(3), u_tare)
     )
-    # The loads follow q sample by sample: their means and dp's share the turbulence.
-    var_turb = q_rel**2 / max(1.0, record / (2.0 * noise.turbulence_time))
-    named = [("dp", nom.dp)] + list(zip(_LOADS, nom.loads, strict=True))
+    # The loads follow q sample by sample: their means and dp's share the turbulence. Its
+    # part of each mean's variance, a_i^2 = var(turbulence's mean) / var(the record's mean),
+    # gives the means' correlation a_i a_j (one common fluctuation: a valid correlation matrix);
+    # the reduction estimates it from the records (conditions.correlation_of_means) and scales
+    # it, as here, by the share of each input's u that is its own record's.
+    turbulence = [_ar1(lags_t, (nom.dp * q_rel) ** 2, noise.turbulence_time)]
+    turbulence += list(_ar1(lags_b, (nom.loads * q_rel) ** 2, noise.turbulence_time))
+    whole = [turbulence[0] + _white(lags_t, noise.pitot_noise**2)]
+    whole += list(_load_records(cfg, point, nom, noise, lags_b))
+    a = []
+    signs = np.sign([nom.dp, *nom.loads])
+    for sign, part, record_gamma in zip(signs, turbulence, whole, strict=True):
+        total = series.variance_of_the_mean(record_gamma)
+        share = series.variance_of_the_mean(part) / total if total > 0 else 0.0
+        a.append(sign * np.sqrt(min(share, 1.0)))
+    own = [u_dp, *u_record]
+    named = ["dp", *_LOADS]
     correlation = {}
     for i in range(len(named)):
         for j in range(i + 1, len(named)):
-            (a, va), (c, vc) = named[i], named[j]
-            ua, uc = float(inputs[a].u), float(inputs[c].u)
-            if ua > 0 and uc > 0:
-                r = float(np.clip(va * vc * var_turb / (ua * uc), -1.0, 1.0))
-                if r != 0.0:
-                    correlation[(a, c)] = r
+            ui, uj = float(inputs[named[i]].u), float(inputs[named[j]].u)
+            r = a[i] * a[j] * own[i] / ui * own[j] / uj if ui > 0 and uj > 0 else 0.0
+            if r != 0.0:
+                correlation[(named[i], named[j])] = float(r)
+    calibration = _calibration(cfg, nom)
+    if calibration is not None:
+        inputs.update(calibration.inputs)
+        correlation.update(calibration.correlation)
     taps = None
     if point.pressure_rate > 0 and cfg.taps:
-        taps = _tap_inputs(cfg, point, nom, noise, record, spinning, q_rel)
+        taps = _tap_inputs(cfg, point, nom, noise, record, quality.is_spinning(nom.alpha), q_rel)
         inputs.update(taps[0])
-    return inputs, correlation, taps
+    return inputs, correlation, taps, calibration
+
+
+def _white_loads(cfg, noise: NoiseLevels) -> np.ndarray:
+    return noise.balance_noise * np.array(cfg.instruments.balance.full_scale)
+
+
+def _imbalance(lags: np.ndarray, omega: float, noise: NoiseLevels) -> np.ndarray:
+    """The once-per-revolution force m e omega^2 on Fx and Fy (a tone, F^2/2 on each)."""
+    force = noise.imbalance * omega**2
+    tone = _band(lags, force**2 / 2.0, abs(omega) / (2.0 * np.pi), 0.0)
+    return np.stack([tone, tone, np.zeros_like(tone)])
+
+
+def _load_records(cfg, point, nom: _Planned, noise: NoiseLevels, lags: np.ndarray) -> np.ndarray:
+    """Autocovariance of each load record (Fx, Fy, Mz) a run at this point would hold."""
+    gamma = _ar1(lags, (nom.loads * 2.0 * noise.turbulence) ** 2, noise.turbulence_time)
+    gamma += _white(lags, _white_loads(cfg, noise) ** 2)
+    frequency = _STROUHAL * point.speed_set / cfg.model.diameter
+    gamma += _band(lags, _shedding(cfg, nom, noise) ** 2, frequency, noise.shedding_bandwidth)
+    if nom.omega != 0.0:
+        gamma += _imbalance(lags, nom.omega, noise)
+    return gamma
+
+
+def _calibration(cfg, nom: _Planned):
+    """The calibration file's covariance, acting through the net signals of the point's loads."""
+    b = cfg.instruments.balance
+    if b.coefficient_covariance is None:
+        return None
+    second = None if b.second_order is None else np.array(b.second_order)
+    signals = balance.signals_from_loads(nom.loads, np.array(b.matrix), second)
+    terms = balance.calibration_terms(signals, second_order=second is not None)
+    return reduction.calibration_from_terms(b, np.asarray(terms).reshape(-1))
 
 
 _STROUHAL = 0.2  # vortex shedding of a circular cylinder (common practice)
 
 
-def _shedding_time(cfg, point) -> float:
-    return cfg.model.diameter / (2.0 * np.pi * _STROUHAL * point.speed_set)
-
-
-def _shedding(cfg, point, nom: _Planned, noise: NoiseLevels) -> np.ndarray:
+def _shedding(cfg, nom: _Planned, noise: NoiseLevels) -> np.ndarray:
     """RMS of the shedding loads on the balance axes [N, N, N m] (lift only)."""
     cl_rms = noise.unsteady_cl * np.exp(-((nom.alpha / noise.unsteady_cl_decay) ** 2))
     lift = cl_rms * nom.q * cfg.model.diameter * cfg.model.span
@@ -186,8 +258,9 @@ def _tap_inputs(cfg, point, nom: _Planned, noise: NoiseLevels, record, spinning,
     head = float(pressure.centrifugal_head(nom.rho, nom.omega, radius, cfg.model.transducer_radius))
     reading = cp * nom.q - head
     sigma = np.hypot(noise.tap_noise * nom.q, noise.tap_noise_floor)
-    n_turb = _n_eff(record, point.pressure_rate, noise.turbulence_time)
-    u_reading = np.sqrt(sigma**2 / samples + (cp * nom.q * q_rel) ** 2 / n_turb)
+    # Turbulence: the readings follow q, an AR(1) record at the taps' rate.
+    var_turb = _u_of_mean(_ar1(_lags(record, point.pressure_rate), 1.0, noise.turbulence_time))
+    u_reading = np.sqrt(sigma**2 / samples + (cp * nom.q * q_rel) ** 2 * var_turb[0] ** 2)
     inputs = reduction.pressure_run_inputs(cfg, reading, u_reading, nom.omega)
     delays = np.array([tap.tubing_delay for tap in cfg.taps])
     model = reduction.PressureModel(
@@ -201,14 +274,21 @@ def _tap_inputs(cfg, point, nom: _Planned, noise: NoiseLevels, record, spinning,
     return inputs, model, integrate, theta, reading
 
 
-def _propagate(cfg, inputs, correlation, taps):
+def _propagate(cfg, inputs, correlation, taps, calibration):
     model = reduction.run_model(
         cfg,
         has_balance=True,
         pressure_points=None if taps is None else taps[1],
         integrate=False if taps is None else taps[2],
+        calibration=calibration,
     )
     return propagate_linear(model, inputs, correlation=correlation)
+
+
+def _predicted(cfg, point, nom: _Planned, noise: NoiseLevels, air_state, record: float):
+    """The run model's values and u at this point for a record of this length, and its taps."""
+    inputs, correlation, taps, calibration = _inputs(cfg, point, nom, noise, air_state, record)
+    return _propagate(cfg, inputs, correlation, taps, calibration), taps
 
 
 def _scalar(x) -> float:
@@ -227,8 +307,7 @@ def predict_point(
 ) -> PointPrediction:
     """Predict one planned point (docs/plan.md lists what each value means)."""
     nom = _nominal(cfg, point, prior, air_state)
-    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, point.record)
-    linear = _propagate(cfg, inputs, correlation, taps)
+    linear, taps = _predicted(cfg, point, nom, noise, air_state, point.record)
     # The prior is free air, the balance sees the tunnel: one step of the run model's own
     # correction backwards (its second-order remainder is far below the prior's own doubt).
     scale = []
@@ -238,8 +317,7 @@ def predict_point(
         scale.append(raw / corrected if corrected and np.isfinite(raw / corrected) else 1.0)
     alpha_free = _scalar(linear.values["alpha"]) / nom.alpha if nom.alpha else 1.0
     nom = _nominal(cfg, point, prior, air_state, tuple(scale), alpha_free)
-    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, point.record)
-    linear = _propagate(cfg, inputs, correlation, taps)
+    linear, taps = _predicted(cfg, point, nom, noise, air_state, point.record)
     tol = cfg.tolerances_for(point.config)
     b = cfg.instruments.balance
     full_scale = np.array(b.full_scale)
@@ -268,13 +346,15 @@ def predict_point(
     warnings: list[str] = []
 
     # Balance loads: the mean, and a peak of the mean plus three standard deviations of the
-    # samples (turbulence and white noise; tares and imbalance come on top).
+    # samples (turbulence, white noise, shedding; the tares' mean loads come on top).
     sample_sd = np.sqrt(
         (nom.loads * 2.0 * noise.turbulence) ** 2
         + (noise.balance_noise * full_scale) ** 2
-        + _shedding(cfg, point, nom, noise) ** 2
+        + _shedding(cfg, nom, noise) ** 2
     )
-    peak = (np.abs(nom.loads) + 3.0 * sample_sd) / full_scale
+    # The imbalance's force rotates with the model: its amplitude adds to the peak of Fx, Fy.
+    swing = abs(noise.imbalance) * nom.omega**2 * np.array([1.0, 1.0, 0.0])
+    peak = (np.abs(nom.loads) + swing + 3.0 * sample_sd) / full_scale
     for k, name in enumerate(_LOADS):
         values[f"{name}_fraction"] = float(abs(nom.loads[k]) / full_scale[k])
         values[f"{name}_peak_fraction"] = float(peak[k])
@@ -377,15 +457,43 @@ def predict_point(
     return PointPrediction(point, values, budgets, warnings, theta, u_cp)
 
 
+#: The record lengths a target is searched over: from the planned one down to 1/64 of it and
+#: up to 1024 times it, then bisected (in log T) to this relative width.
+_SHORTEST, _LONGEST, _RESOLUTION = 1.0 / 64.0, 1024.0, 0.01
+
+
 def _record_for(cfg, point, nom, noise, air_state, name: str, wanted: float, u_now: float):
-    """Record length giving u(name) = wanted: u² = B + A / T, fitted at T and 4 T."""
-    longer = 4.0 * point.record
-    inputs, correlation, taps = _inputs(cfg, point, nom, noise, air_state, longer)
-    u_long = _scalar(_propagate(cfg, inputs, correlation, taps).u[name])
-    a = (u_now**2 - u_long**2) / (1.0 / point.record - 1.0 / longer)
-    floor = u_now**2 - a / point.record
-    if wanted**2 <= floor or a <= 0 and wanted < u_now:
-        return float("inf")
-    if a <= 0:
-        return 0.0
-    return float(a / (wanted**2 - floor))
+    """The shortest record whose predicted u(name) is at most ``wanted`` (inf: none up to
+    1024 times the planned record).
+
+    Searched on the prediction itself (doubling or halving the record, then bisection), not on
+    a fitted u² = B + A / T: the u the reduction reports from a short record is not A / T (its
+    N_eff estimate of a record a few correlation times long runs low), so the prediction need
+    not fall as 1 / T.
+    """
+
+    def u_at(record: float) -> float:
+        return _scalar(_predicted(cfg, point, nom, noise, air_state, record)[0].u[name])
+
+    record = point.record
+    if u_now <= wanted:
+        short = record
+        while short * 0.5 >= point.record * _SHORTEST and u_at(short * 0.5) <= wanted:
+            short *= 0.5
+        if short * 0.5 < point.record * _SHORTEST:
+            return float(short)
+        low, high = short * 0.5, short
+    else:
+        high = record
+        while u_at(high) > wanted:
+            if high >= point.record * _LONGEST:
+                return float("inf")
+            high *= 2.0
+        low = high * 0.5
+    while high / low - 1.0 > _RESOLUTION:
+        middle = np.sqrt(low * high)
+        if u_at(middle) <= wanted:
+            high = middle
+        else:
+            low = middle
+    return float(high)
