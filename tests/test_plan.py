@@ -202,6 +202,54 @@ def test_overload_and_spin_limit_are_reported(simulated, tmp_path):
     assert plan.table.set_index("point").loc["fast", "spin_fraction_of_limit"] > 1.0
 
 
+def test_every_flag_is_prechecked_or_says_why_not():
+    # The flags are one table (quality.CHECKS, DEVELOPERS.md "Adding a quality flag"): a new
+    # flag must be judged in advance by the plan or be listed with the reason it cannot be.
+    from tunnelred.engine.quality import CHECKS
+    from tunnelred.products.plan.predict import NOT_PRECHECKED, PRECHECKED
+
+    names = [c.name for c in CHECKS]
+    assert sorted(names) == sorted([*PRECHECKED, *NOT_PRECHECKED])
+    assert not set(PRECHECKED) & set(NOT_PRECHECKED)
+
+
+def test_flags_and_ranges_are_checked_in_advance(simulated, tmp_path):
+    folder, spec, _, _ = simulated
+    toml = (folder / "campaign.toml").read_text(encoding="utf-8")
+    limited = tmp_path / "limited"
+    limited.mkdir()
+    # 3000 rpm rating; 9 m/s at alpha 2.17 on the 0.125 m cylinder is 2984 rpm, 99.5 % of it:
+    # the jitter's 3 sd (0.6 %) reach the rating.
+    (limited / "campaign.toml").write_text(
+        toml.replace("[model]\n", '[model]\nmax_spin_rate = "3000 rpm"\n', 1), encoding="utf-8"
+    )
+    (limited / "runs.csv").write_text("", encoding="utf-8")
+    omega = 2984.0 * 2 * np.pi / 60.0
+    rows = ["point,config,speed_set [m/s],spin_ratio,record [s]",
+            f"near,plates,9,{omega * 0.0625 / 9.0:.6f},4",
+            # 105 m/s in air at 293 K: a = 343 m/s, M = 0.31 (ICAO Doc 7488 speed of sound,
+            # from memory), past the reduction's M < 0.3 (plausibility.RANGES).
+            "fast,plates,105,0,4",
+            "calm,plates,9,1,4"]  # fmt: skip
+    plan = plan_test(limited, _matrix(tmp_path, rows), noise=NOISE, air=_air(spec))
+    table = plan.table.set_index("point")
+    assert "SPIN LIMIT:" in table.loc["near", "warnings"]
+    assert "SPIN LIMIT EXCEEDED" not in table.loc["near", "warnings"]
+    assert (
+        "Mach" in table.loc["fast", "warnings"]
+        and "not be reduced" in table.loc["fast", "warnings"]
+    )
+    assert "overload" in table.loc["fast", "flags_expected"]
+    assert table.loc["calm", "flags_expected"] == ""
+    # A drive that holds its rpm to 3 % (against the 2 % spin_scatter tolerance) is told so by
+    # the flag's own check and reason.
+    jittery = plan_test(limited, _matrix(tmp_path, [rows[0], rows[3]]),
+                        noise=replace(NOISE, spin_jitter=0.03), air=_air(spec))  # fmt: skip
+    row = jittery.table.iloc[0]
+    assert row["flags_expected"] == "spin_scatter"
+    assert "flag spin_scatter expected: spin ratio scatter 3.0 % exceeds 2.0 %" in row["warnings"]
+
+
 def test_short_records_are_told_the_length_they_need(simulated, tmp_path):
     folder, spec, _, _ = simulated
     # alpha 0.5 at 12 m/s on a 0.125 m cylinder: omega = 96 rad/s, 15.3 rev/s; 1 s holds 15

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from tunnelred.engine import quality, reduction
+from tunnelred.engine import plausibility, quality, reduction
 from tunnelred.physics import air, balance, conditions, corrections, pressure, series, theory
 from tunnelred.physics.uncertainty import propagate_linear
 from tunnelred.products.plan.levels import AirState, NoiseLevels
@@ -359,12 +359,6 @@ def predict_point(
         values[f"{name}_fraction"] = float(abs(nom.loads[k]) / full_scale[k])
         values[f"{name}_peak_fraction"] = float(peak[k])
     values["load_fraction_max"] = float(np.max(peak))
-    if np.max(peak) > tol.overload:
-        which = _LOADS[int(np.argmax(peak))]
-        warnings.append(
-            f"OVERLOAD: {which} peak {100 * np.max(peak):.0f} % of full scale exceeds the "
-            f"overload tolerance {100 * tol.overload:.0f} %"
-        )
     # Scanner range.
     values["scanner_fraction"] = np.nan
     if taps is not None and cfg.instruments.scanner_full_scale:
@@ -372,36 +366,33 @@ def predict_point(
         values["scanner_fraction"] = use
         if use > 1.0:
             warnings.append(f"scanner range exceeded: {100 * use:.0f} % of its full scale")
-    # Revolutions per record against min_revolutions (phase binning of the taps).
     revolutions = abs(nom.omega) * point.record / (2.0 * np.pi)
     values["revolutions"] = revolutions
     values["record_for_revolutions"] = (
         tol.min_revolutions * 2.0 * np.pi / abs(nom.omega) if nom.omega else np.nan
     )
-    if taps is not None and quality.is_spinning(nom.alpha) and revolutions < tol.min_revolutions:
-        warnings.append(
-            f"record too short: {revolutions:.1f} revolutions, min_revolutions is "
-            f"{tol.min_revolutions:g}; record at least {values['record_for_revolutions']:.1f} s"
-        )
-    # The spin rate against the model's rating.
-    values["spin_fraction_of_limit"] = np.nan
-    if cfg.model.max_spin_rate:
-        fraction = abs(nom.omega) / cfg.model.max_spin_rate
-        values["spin_fraction_of_limit"] = fraction
-        if fraction > 1.0:
-            warnings.append(
-                f"SPIN LIMIT EXCEEDED: {values['rpm']:.0f} rpm is "
-                f"{100 * fraction:.0f} % of the model's max_spin_rate "
-                f"({cfg.model.max_spin_rate * quality.RPM_PER_RAD_S:.0f} rpm); do not run this "
-                "point without the model's designers' approval and the facility's safety rules"
-            )
-    # Spin steadiness the spin_scatter flag will judge: alpha(t) scatters with omega and U.
+    # alpha(t) scatters with omega and U.
     values["spin_scatter"] = float(np.hypot(noise.spin_jitter, noise.turbulence))
-    if quality.is_spinning(nom.alpha) and values["spin_scatter"] > tol.spin_scatter:
-        warnings.append(
-            f"spin scatter {100 * values['spin_scatter']:.1f} % would exceed the spin_scatter "
-            f"tolerance {100 * tol.spin_scatter:.1f} %"
-        )
+    warnings += _spin_limit(cfg, nom, noise, values)
+    warnings += _implausible(cfg, linear, noise)
+    # Every flag the prediction can judge, judged by the flags' own table (quality.CHECKS).
+    flags = quality.check_run(_measures(point, nom, values, linear, taps, peak), tol)
+    values["flags_expected"] = ";".join(f.name for f in flags)
+    for flag in flags:
+        if flag.name == "overload":
+            which = _LOADS[int(np.argmax(peak))]
+            warnings.append(
+                f"OVERLOAD: {which} peak {100 * np.max(peak):.0f} % of full scale exceeds the "
+                f"overload tolerance {100 * tol.overload:.0f} %"
+            )
+        elif flag.name == "few_revolutions":
+            warnings.append(
+                f"record too short: {revolutions:.1f} revolutions, min_revolutions is "
+                f"{tol.min_revolutions:g}; record at least "
+                f"{values['record_for_revolutions']:.1f} s"
+            )
+        else:
+            warnings.append(f"flag {flag.name} expected: {flag.reason}")
     # Wall corrections, as the run model applies them.
     for name in ("eps_solid", "eps_wake", "delta_CD_buoyancy", "delta_alpha_lift"):
         values[name] = _scalar(linear.values[name])
@@ -460,6 +451,111 @@ def predict_point(
 #: The record lengths a target is searched over: from the planned one down to 1/64 of it and
 #: up to 1024 times it, then bisected (in log T) to this relative width.
 _SHORTEST, _LONGEST, _RESOLUTION = 1.0 / 64.0, 1024.0, 0.01
+
+
+#: The flags of quality.CHECKS the plan judges in advance from its prediction, and why each
+#: other one cannot be (docs/plan.md, "Flags checked in advance"; tests/test_plan.py keeps the
+#: two in step with the table).
+PRECHECKED = (
+    "spin_scatter", "overload", "stream_overlap", "few_revolutions", "cl_disagreement",
+    "stagnation_cp", "speed_setpoint", "spin_setpoint",
+)  # fmt: skip
+NOT_PRECHECKED = {
+    "spin_drift": "a drift of the spin over a run is no stated level",
+    "speed_drift": "a drift of the speed over a run is no stated level",
+    "temperature_drift": "the air's change over a run is no stated level",
+    "zero_shift": "the zeros' drift between the pre- and post-run zeros is no stated level",
+    "tare_extrapolated": "PLAN.csv names no spin-tare runs; their rpm range is the run sheet's",
+    "dead_tap": "a failed tap is a fault, not a level",
+    "repeat_disagreement": "judged between runs of a campaign, not on one point",
+}
+
+
+def _measures(point, nom: _Planned, values: dict, linear, taps, peak) -> quality.RunMeasures:
+    """The measures a run recorded at this point would be judged on, as the plan predicts them
+    (the set points are the planned ones; the streams cover the whole record)."""
+    spinning = quality.is_spinning(nom.alpha)
+    measures = {
+        "overload": tuple(float(f) for f in peak),
+        "stream_overlap": 1.0,
+        "alpha": _scalar(linear.values["alpha"]),
+        "speed_set": point.speed_set,
+        "U_measured": _scalar(linear.values["U_uncorrected"]),
+        "spin_set": float(values["rpm"]),
+        "spin_rpm": abs(_scalar(linear.values["omega"])) * quality.RPM_PER_RAD_S,
+    }
+    if spinning:
+        measures["spin_scatter"] = float(values["spin_scatter"])
+    if taps is not None:
+        measures["Cp_max"] = float(np.max(_scalar_array(linear.values["Cp"])))
+        measures["u_Cp_max"] = float(values["u_Cp_max"])
+        if spinning:
+            measures["revolutions"] = float(values["revolutions"])
+        if taps[2]:
+            measures.update(
+                CL=values["CL"],
+                u_CL=values["u_CL"],
+                CL_p=_scalar(linear.values["CL_p"]),
+                u_CL_p=values["u_CL_p"],
+                corr_CL_CL_p=_correlation(linear, "CL", "CL_p"),
+            )
+    return quality.RunMeasures(**measures)
+
+
+def _scalar_array(x) -> np.ndarray:
+    return np.asarray(x, dtype=float).reshape(-1)
+
+
+def _correlation(linear, a: str, b: str) -> float:
+    try:
+        r = float(np.asarray(linear.correlation(a, b)).reshape(-1)[0])
+    except (KeyError, ValueError, ZeroDivisionError):  # an output with no u
+        return 0.0
+    return r if np.isfinite(r) else 0.0
+
+
+def _spin_limit(cfg, nom: _Planned, noise: NoiseLevels, values: dict) -> list[str]:
+    """The spin rate against the model's rating (the reduction refuses a run above it)."""
+    values["spin_fraction_of_limit"] = np.nan
+    limit = cfg.model.max_spin_rate
+    if not limit:
+        return []
+    fraction = abs(nom.omega) / limit
+    values["spin_fraction_of_limit"] = fraction
+    rated = f"{limit * quality.RPM_PER_RAD_S:.0f} rpm"
+    if fraction > 1.0:
+        return [
+            f"SPIN LIMIT EXCEEDED: {values['rpm']:.0f} rpm is {100 * fraction:.0f} % of the "
+            f"model's max_spin_rate ({rated}); do not run this point without the model's "
+            "designers' approval and the facility's safety rules"
+        ]
+    if fraction * (1.0 + 3.0 * noise.spin_jitter) > 1.0:
+        return [
+            f"SPIN LIMIT: {values['rpm']:.0f} rpm is {100 * fraction:.1f} % of the model's "
+            f"max_spin_rate ({rated}): the spin jitter's peaks (3 standard deviations) reach it, "
+            "and the reduction refuses a run whose spin log passes it"
+        ]
+    return []
+
+
+def _implausible(cfg, linear, noise: NoiseLevels) -> list[str]:
+    """The air data against the ranges the reduction refuses a run outside
+    (plausibility.RANGES), the Mach number at the turbulence's peaks (3 standard deviations)."""
+    peaks = {
+        "T": _scalar(linear.values["T"]),
+        "p_baro": _scalar(linear.values["p_baro"]),
+        "rho": _scalar(linear.values["rho"]),
+        "Mach": _scalar(linear.values["Mach"]) * (1.0 + 3.0 * noise.turbulence),
+    }
+    out = []
+    for r in plausibility.RANGES:
+        value = peaks.get(r.name)
+        if value is not None and not r.low <= value <= r.high:
+            out.append(
+                f"{r.name} {value:.4g} {r.unit} outside the reduction's range: {r.what} "
+                "(the run would not be reduced)"
+            )
+    return out
 
 
 def _record_for(cfg, point, nom, noise, air_state, name: str, wanted: float, u_now: float):
