@@ -296,6 +296,25 @@ def test_tare_over_a_batch_of_rates():
     np.testing.assert_array_equal(extrapolated, [False, True])
 
 
+def test_tare_interpolation_error_is_the_remainder_of_a_quadratic():
+    # Linear interpolation of f between x1, x2 misses it by f''(xi)/2 (x - x1)(x2 - x) (Burden &
+    # Faires, Numerical Analysis, Theorem 3.3, from memory); for a quadratic f'' is constant, so
+    # the stated u equals the true miss: the windage torque -c w^2 with c = 4e-8 N m s^2 between
+    # tares at 200, 500, 1000 rad/s, read at 700 rad/s.
+    from tunnelred.physics.balance import tare_interpolation_error
+
+    rates = np.array([200.0, 500.0, 1000.0])
+    curve = np.stack([0.05 * (rates / 1e3) ** 2, 0.0 * rates, -4e-8 * rates**2], axis=-1)
+    u = tare_interpolation_error(700.0, rates, curve)
+    line, _ = tare_loads(700.0, rates, curve)
+    truth = np.array([0.05 * 0.7**2, 0.0, -4e-8 * 700.0**2])
+    np.testing.assert_allclose(u, np.abs(line - truth), rtol=1e-9)
+    np.testing.assert_allclose(u[2], 0.5 * 8e-8 * 200.0 * 300.0, rtol=1e-12)  # by hand
+    # On a tare rate, and with only two tares (no curvature known), nothing is added.
+    np.testing.assert_array_equal(tare_interpolation_error(500.0, rates, curve), 0.0)
+    np.testing.assert_array_equal(tare_interpolation_error(700.0, rates[1:], curve[1:]), 0.0)
+
+
 def test_tare_rejects_an_unknown_extrapolation_rule():
     with pytest.raises(ValueError, match="flag"):
         tare_loads(0.0, TARE_RATES, TARE, extrapolation="clip")

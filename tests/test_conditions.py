@@ -530,3 +530,23 @@ def test_variance_of_the_mean_of_a_stationary_record():
     assert series.variance_of_the_mean(np.r_[2.0, np.zeros(49)]) == pytest.approx(2.0 / 50)
     with pytest.raises(ValueError, match="N >= 2"):
         series.variance_of_the_mean([1.0])
+
+
+def test_white_noise_variance_separates_the_noise_from_an_ar1_flow():
+    # An AR(1) record x_t = phi x_(t-1) + e has autocovariance s^2 phi^k (Box & Jenkins, Time
+    # Series Analysis, §3.2, from memory), so the linear extrapolation of lags 1, 2 to 0 leaves
+    # (1 - phi)^2 s^2 of it in the estimate; white noise of variance w^2 adds at lag 0 only.
+    from tunnelred.physics.series import white_noise_variance
+
+    rng = np.random.default_rng(7)
+    n, phi, w = 200_000, 0.936, 0.05
+    flow = lfilter([np.sqrt(1 - phi**2)], [1.0, -phi], rng.standard_normal(n)) * 0.3
+    expected = w**2 + (1 - phi) ** 2 * 0.3**2
+    # Sampling error of the lag sums: about 3 % of w^2 at this length (measured over seeds).
+    assert white_noise_variance(flow + w * rng.standard_normal(n)) == pytest.approx(
+        expected, rel=0.1
+    )
+    assert white_noise_variance(w * rng.standard_normal(n)) == pytest.approx(w**2, rel=0.02)
+    # The flow alone: only its (1 - phi)^2 s^2 = 3.7e-4 residue, far below the noise's 2.5e-3.
+    assert white_noise_variance(flow) < 0.2 * w**2
+    assert np.isnan(white_noise_variance([1.0, 2.0, 3.0]))

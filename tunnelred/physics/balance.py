@@ -29,6 +29,7 @@ __all__ = [
     "signals_from_loads",
     "interpolate_zero",
     "tare_loads",
+    "tare_interpolation_error",
     "balance_to_wind",
     "force_coefficients",
     "overload_fraction",
@@ -436,10 +437,7 @@ def tare_loads(
         raise ValueError(
             f"tare_loads must be {rates.size} x 3 (one row a tare run); found shape {loads.shape}"
         )
-    rates, inverse, counts = np.unique(rates, return_inverse=True, return_counts=True)
-    means = np.zeros((rates.size, 3))
-    np.add.at(means, inverse, loads)
-    means /= counts[:, None]
+    rates, means = _tare_curve(rates, loads)
 
     spin_rate = np.asarray(spin_rate, dtype=float)
     extrapolated = (spin_rate < rates[0]) | (spin_rate > rates[-1])
@@ -458,6 +456,66 @@ def tare_loads(
     weight = (spin_rate - rates[lower]) / (rates[lower + 1] - rates[lower])
     tare = means[lower] + weight[..., None] * (means[lower + 1] - means[lower])
     return tare, extrapolated
+
+
+def _tare_curve(rates: np.ndarray, loads: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The tare runs' distinct rates, ascending, and their mean loads (repeats averaged)."""
+    rates, inverse, counts = np.unique(rates, return_inverse=True, return_counts=True)
+    means = np.zeros((rates.size, 3))
+    np.add.at(means, inverse, loads)
+    return rates, means / counts[:, None]
+
+
+def tare_interpolation_error(
+    spin_rate: float, tare_spin_rates: npt.ArrayLike, tare_loads: npt.ArrayLike
+) -> np.ndarray:
+    """Standard uncertainty of the spin tare from its linear interpolation in ω, per load.
+
+    Parameters
+    ----------
+    spin_rate : float
+        Signed spin rate of the data run. [rad/s]
+    tare_spin_rates, tare_loads : array_like, shapes (k,) and (k, 3)
+        As :func:`tare_loads`.
+
+    Returns
+    -------
+    numpy.ndarray, shape (3,)
+        u of the interpolated Fx [N], Fy [N], Mz [N m]; 0 on a tare rate and where fewer than
+        three distinct tare rates leave the curvature unknown.
+
+    Notes
+    -----
+    A straight line between two tare rates misses the curve by ½ T''(ξ) (ω − ω₁)(ω₂ − ω), the
+    remainder of linear interpolation (R. L. Burden and J. D. Faires, *Numerical Analysis*,
+    Theorem 3.3, from memory). |T''| is taken as the larger of the second divided differences
+    2 T[ω₀, ω₁, ω₂] at the segment's two ends (the one end that has a neighbour on each side at
+    the first and last segments), and the remainder as a standard uncertainty: exact for a tare
+    quadratic in ω (windage, spin-induced forces), and, from the tare runs' own scatter, more
+    than the curvature where the tares lie closer than their noise resolves. Beyond the tare
+    range the nearest segment's line is extended and |(ω − ω₁)(ω₂ − ω)| grows with the distance.
+
+    Examples
+    --------
+    >>> w = np.array([100.0, 200.0, 300.0])
+    >>> tare = np.stack([np.zeros(3), np.zeros(3), 1e-6 * w**2], axis=-1)
+    >>> round(float(tare_interpolation_error(150.0, w, tare)[2]), 12)  # ½ · 2e-6 · 50 · 50
+    0.0025
+    """
+    rates, means = _tare_curve(
+        np.asarray(tare_spin_rates, dtype=float), np.asarray(tare_loads, dtype=float)
+    )
+    if rates.size < 3:
+        return np.zeros(3)
+    h = np.diff(rates)
+    slopes = np.diff(means, axis=0) / h[:, None]
+    inner = np.abs(2.0 * np.diff(slopes, axis=0) / (h[:-1] + h[1:])[:, None])
+    curvature = np.full((rates.size, 3), np.nan)
+    curvature[1:-1] = inner
+    lower = int(np.clip(np.searchsorted(rates, spin_rate, side="right") - 1, 0, rates.size - 2))
+    kappa = np.fmax(curvature[lower], curvature[lower + 1])
+    spread = abs((spin_rate - rates[lower]) * (rates[lower + 1] - spin_rate))
+    return 0.5 * kappa * spread
 
 
 @arraylike

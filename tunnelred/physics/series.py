@@ -21,6 +21,7 @@ __all__ = [
     "effective_sample_size",
     "expected_record_statistics",
     "variance_of_the_mean",
+    "white_noise_variance",
     "correlation_of_means",
 ]
 
@@ -281,6 +282,49 @@ def expected_record_statistics(autocovariance: npt.ArrayLike) -> tuple[float, fl
     lag_sums = (n - k) * (gamma + var_mean) - head - tail
     s2 = max(float(lag_sums[0]) / (n - 1), 0.0)
     return float(np.sqrt(s2)), _n_eff_of_lag_sums(lag_sums)
+
+
+def white_noise_variance(x: npt.ArrayLike) -> float:
+    """The variance of a record's uncorrelated (white) part: the instrument's own noise.
+
+    Parameters
+    ----------
+    x : array_like
+        The 1-D record (any unit), evenly sampled.
+
+    Returns
+    -------
+    float
+        σ_w² in the record's unit squared, within [0, s²]; NaN for fewer than four samples.
+
+    Notes
+    -----
+    A record of a fluctuating flow is the flow's own, correlated, signal plus the transducer's
+    white noise. White noise adds to the autocovariance at lag 0 only, so its variance is the
+    step of γ at the origin: σ_w² = γ(0) − (2γ(1) − γ(2)), the correlated part extrapolated
+    linearly from lags 1 and 2 (the "nugget" of a variogram; G. Matheron, Econ. Geol. 58 (1963)
+    1246–1266, from memory). Exact for white noise (γ(1) = γ(2) = 0) and for a correlated part
+    that is linear over two lags; an AR(1) part with lag-one correlation φ is over-counted by
+    (1 − φ)² of its variance (0.4 % at φ = 0.94, the demo's 50 Hz pitot record). γ_k is the
+    biased sample autocovariance of the mean-removed record.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(3)
+    >>> smooth = np.cumsum(rng.standard_normal(20_000)) * 0.01
+    >>> noisy = smooth - smooth.mean() + 0.1 * rng.standard_normal(20_000)
+    >>> 0.009 < white_noise_variance(noisy) < 0.011
+    True
+    """
+    x = as_array(x)
+    if x.ndim != 1:
+        raise ValueError(f"white_noise_variance needs a 1-D record; got shape {x.shape}")
+    n = x.size
+    if n < 4:
+        return float("nan")
+    dx = x - x.mean()
+    gamma = [float(np.dot(dx[: n - k], dx[k:])) / n for k in range(3)]
+    return float(np.clip(gamma[0] - (2.0 * gamma[1] - gamma[2]), 0.0, gamma[0]))
 
 
 def correlation_of_means(records: list[tuple[npt.ArrayLike, npt.ArrayLike]]) -> np.ndarray:

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from tunnelred.engine import quality
-from tunnelred.physics import conditions
+from tunnelred.physics import conditions, series
 from tunnelred.physics.uncertainty import Input
 
 
@@ -28,6 +28,14 @@ def tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     measures["u_speed_drift"] = drift_uncertainty(fs["U"].to_numpy(), t) / u_speed.mean
     measures["temperature_drift"] = abs(stats["T"].drift)
     means = {"dp" if name == column else name: (s.mean, s.u_mean) for name, s in stats.items()}
+    # The measurand is the mean of the flow this run had (docs/methods.md, "The measurand of q,
+    # U, Re"): the flow's own unsteadiness over the record is no error of that mean, the
+    # transducer's white noise is. The unsteadiness stays in the coefficients (dp_flow).
+    dp = stats[column]
+    u_noise = np.sqrt(series.white_noise_variance(tunnel[column].to_numpy()) / dp.n)
+    u_noise = min(float(u_noise), dp.u_mean) if np.isfinite(u_noise) else dp.u_mean
+    means["dp"] = (dp.mean, u_noise)
+    means["dp_flow"] = (0.0, float(np.sqrt(dp.u_mean**2 - u_noise**2)))
     return air_data_inputs(cfg, means)
 
 
@@ -35,8 +43,12 @@ def air_data_inputs(cfg, means: dict[str, tuple[float, float]]) -> dict[str, Inp
     """The tunnel's run-level inputs from its record means and their type-A u.
 
     ``means`` maps ``dp`` (the q_source's reading), ``T``, ``p_baro``, ``RH`` to (mean, u of the
-    mean) in SI; the instruments' specification terms come from campaign.toml. Public so that a
-    test plan (tunnelred.products.plan) builds the inputs a run would have.
+    mean) in SI; the instruments' specification terms come from campaign.toml. An optional
+    ``dp_flow`` (0, u) is the part of the record's u(mean dp) that is the flow's own
+    unsteadiness: no error of the run's mean q, U, Re, it enters the q the coefficients are
+    made with, where it cancels against the loads that follow the same flow. Without it ``dp``'s
+    u goes to q and the coefficients alike. Public so that a test plan
+    (tunnelred.products.plan) builds the inputs a run would have.
     """
     column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
     ins = cfg.instruments
@@ -52,6 +64,8 @@ def air_data_inputs(cfg, means: dict[str, tuple[float, float]]) -> dict[str, Inp
         "RH": Input(*means["RH"], "A", "relative humidity"),
         "RH_spec": Input(0.0, ins.u_hygrometer, "B", "hygrometer"),
     }
+    if "dp_flow" in means:
+        inputs["dp_flow"] = Input(*means["dp_flow"], "A", "flow unsteadiness (coefficients' q)")
     if cfg.tunnel.q_source == "contraction":
         inputs["k_contraction"] = Input(
             cfg.tunnel.contraction_factor,

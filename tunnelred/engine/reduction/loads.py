@@ -55,6 +55,7 @@ def net_load_inputs(campaign, spec, data, omega_mean: float, measures: dict):
 
     tare = np.zeros(3)
     u_tare = np.zeros(3)
+    u_tare_interp = np.zeros(3)
     if spec.tare:
         states = sorted((tare_state(campaign, r) for r in spec.tare), key=lambda s: s.omega)
         rates = np.array([s.omega for s in states])
@@ -69,23 +70,35 @@ def net_load_inputs(campaign, spec, data, omega_mean: float, measures: dict):
             raise ReductionError(spec.run, str(exc), "runs.csv", spec.line) from exc
         tare = np.asarray(tare, dtype=float)
         u_tare = np.sqrt(np.mean([s.u_loads**2 for s in states], axis=0))
+        u_tare_interp = balance.tare_interpolation_error(
+            omega_mean, rates, np.array([s.loads for s in states])
+        )
         if extrapolated:
             measures["tare_extrapolated"] = True
             measures["tare_range"] = (float(rates.min()), float(rates.max()))
             measures["omega"] = omega_mean
 
-    inputs = balance_load_inputs(cfg, means, np.hypot(u_a, u_zero_loads), tare, u_tare)
+    inputs = balance_load_inputs(
+        cfg, means, np.hypot(u_a, u_zero_loads), tare, u_tare, u_tare_interp
+    )
     records = [(name, loads_t[:, k], t, u_a[k]) for k, name in enumerate(("Fx", "Fy", "Mz"))]
     return inputs, records
 
 
 def balance_load_inputs(
-    cfg, loads: np.ndarray, u_loads: np.ndarray, tare: np.ndarray, u_tare: np.ndarray
+    cfg,
+    loads: np.ndarray,
+    u_loads: np.ndarray,
+    tare: np.ndarray,
+    u_tare: np.ndarray,
+    u_tare_interp: np.ndarray | None = None,
 ) -> dict[str, Input]:
     """The balance's run-level inputs from its mean loads, their tares and their type-A u.
 
     ``cfg`` is the campaign's BalanceConfig; ``loads`` and ``tare`` are (Fx, Fy, Mz) in N, N m
-    (the zero removed), ``u_loads`` their type-A u (the zero's scatter included). The
+    (the zero removed), ``u_loads`` their type-A u (the zero's scatter included),
+    ``u_tare_interp`` the tare curve's interpolation error in ω
+    (:func:`tunnelred.physics.balance.tare_interpolation_error`; None: no such input). The
     specification, calibration and alignment terms come from ``cfg``. Public so that a test
     plan (tunnelred.products.plan) builds the inputs a run would have.
     """
@@ -95,6 +108,10 @@ def balance_load_inputs(
         inputs[name] = Input(loads[k], u_loads[k], "A", f"balance {name}")
         inputs[f"{name}_spec"] = Input(0.0, u_b[k], "B", f"balance {name} specification")
         inputs[f"{name}_tare"] = Input(tare[k], u_tare[k], "A", f"spin tare {name}")
+        if u_tare_interp is not None:
+            inputs[f"{name}_tare_interp"] = Input(
+                0.0, u_tare_interp[k], "B", f"spin tare {name}, interpolation in spin rate"
+            )
     inputs["calibration"] = Input(1.0, cfg.u_matrix_relative, "B", "balance calibration factor")
     align = cfg.alignment_angle
     inputs["alignment"] = Input(align, cfg.u_alignment_angle, "B", "balance alignment [deg]")
@@ -112,16 +129,31 @@ def shared_fluctuation(cfg, tunnel, records, inputs: dict) -> dict[tuple[str, st
     """
     column = "dp_pitot" if cfg.tunnel.q_source == "pitot" else "dp_contraction"
     dp = tunnel[column].to_numpy()
-    named = [("dp", dp, tunnel["time"].to_numpy(), float(inputs["dp"].u))] + records
+    # The loads follow the flow, not the transducer's noise: they correlate with dp_flow, the
+    # flow's part of the dp record's u (all of it without dp_flow).
+    if "dp_flow" in inputs:
+        name, u_dp = "dp_flow", float(np.hypot(inputs["dp"].u, inputs["dp_flow"].u))
+    else:
+        name, u_dp = "dp", float(inputs["dp"].u)
+    named = [(name, dp, tunnel["time"].to_numpy(), u_dp)] + records
     R = conditions.correlation_of_means([(values, time) for _, values, time, _ in named])
     share = []
-    for name, _, _, u_record in named:
-        u = float(inputs[name].u)
+    for label, _, _, u_record in named:
+        u = float(inputs[label].u)
         share.append(u_record / u if u > 0 else 0.0)
+    C = np.eye(len(named))
+    for i in range(len(named)):
+        for j in range(i + 1, len(named)):
+            C[i, j] = C[j, i] = np.clip(float(R[i, j]) * share[i] * share[j], -1.0, 1.0)
+    # dp_flow's share exceeds 1 by the noise part; a matrix so scaled past validity is pulled
+    # back toward the identity until it is one (the noise share is a few % at most).
+    scale = 1.0
+    while np.linalg.eigvalsh(np.eye(len(named)) + scale * (C - np.eye(len(named))))[0] < 1e-9:
+        scale *= 0.99
     correlation = {}
     for i in range(len(named)):
         for j in range(i + 1, len(named)):
-            r = float(R[i, j]) * share[i] * share[j]
+            r = float(C[i, j]) * scale
             if r != 0.0:
                 correlation[(named[i][0], named[j][0])] = r
     return correlation

@@ -43,6 +43,12 @@ def run_model(
         mu = air.viscosity(temperature)
         q_u = conditions.dynamic_pressure(qc, p)
         U_u = conditions.velocity(q_u, rho)
+        # The coefficients' q carries the flow's unsteadiness over the record, which their loads
+        # (and tap readings) follow; the run's mean q, U, Re do not (air_data_inputs).
+        q_coef, U_coef = q_u, U_u
+        if "dp_flow" in x:
+            q_coef = conditions.dynamic_pressure(qc + x["dp_flow"], p)
+            U_coef = conditions.velocity(q_coef, rho)
         d, b, h = x["diameter"], x["span"], x["height"]
         radius = d / 2
         omega = x["omega"] * (1 + x["omega_spec"])
@@ -62,7 +68,8 @@ def run_model(
         if has_balance:
             loads = [
                 # The tare was read through the same calibration as the run.
-                (x[n] + x[f"{n}_spec"] - x[f"{n}_tare"]) * x["calibration"]
+                (x[n] + x[f"{n}_spec"] - x[f"{n}_tare"] - x.get(f"{n}_tare_interp", 0.0))
+                * x["calibration"]
                 for n in ("Fx", "Fy", "Mz")
             ]
             if calibration is not None:
@@ -73,7 +80,7 @@ def run_model(
             drag, lift = balance.balance_to_wind(
                 loads[0], loads[1], x["alignment"] - x["flow_angle"]
             )
-            coeffs = balance.force_coefficients(lift, drag, loads[2], q_u, U_u, omega, d, b)
+            coeffs = balance.force_coefficients(lift, drag, loads[2], q_coef, U_coef, omega, d, b)
         else:
             coeffs = {k: nan for k in ("CL", "CD", "CM", "C_power", "L_D")}
         cp_u = None
@@ -88,7 +95,7 @@ def run_model(
             # The delays were turned into azimuth with the measured spin rate: its error too.
             delta = delta - np.degrees((omega - pm.omega)[..., None] * pm.delay)
             p_tap = x["p_bin"] + x["p_scanner"] @ pm.share.T + pm.slope * delta + head[..., None]
-            cp_u = p_tap / q_u[..., None]
+            cp_u = p_tap / q_coef[..., None]
         if theta_bins is not None and integrate:
             CL_p, CD_p = pressure.integrate_cp(theta_bins, cp_u, max_gap=red.max_tap_gap)
             if "quadrature_CL_p" in x:  # the rule's own error at the points' spacing

@@ -72,8 +72,9 @@ def reduction_section(b: Builder, data: ReportData) -> None:
 
 #: Readable names and units of the budget inputs (the names the run model gives them).
 BUDGET_INPUTS: dict[str, tuple[str, str]] = {
-    "dp": ("pitot pressure difference, time average", "Pa"),
+    "dp": ("pitot pressure difference, time average (transducer noise)", "Pa"),
     "dp_spec": ("pitot transducer", "Pa"),
+    "dp_flow": ("flow unsteadiness over the record (coefficients' q)", "Pa"),
     "T": ("air temperature, time average", "K"),
     "T_spec": ("thermometer", "K"),
     "p": ("barometric pressure, time average", "Pa"),
@@ -91,6 +92,9 @@ BUDGET_INPUTS: dict[str, tuple[str, str]] = {
     "Fx_tare": ("spin tare Fx", "N"),
     "Fy_tare": ("spin tare Fy", "N"),
     "Mz_tare": ("spin tare Mz", "N·m"),
+    "Fx_tare_interp": ("spin tare Fx, interpolation in spin rate", "N"),
+    "Fy_tare_interp": ("spin tare Fy, interpolation in spin rate", "N"),
+    "Mz_tare_interp": ("spin tare Mz, interpolation in spin rate", "N·m"),
     "calibration": ("balance calibration factor", "–"),
     "calibration_coefficients": (
         "balance calibration coefficients (with covariance)",
