@@ -85,7 +85,13 @@ def drift_uncertainty(values: np.ndarray, time: np.ndarray) -> float:
     against the record, the variance of a regression slope grows by the same factor N / N_eff
     as that of the mean: least squares on a polynomial trend is asymptotically efficient, with
     the variance set by the noise spectrum at zero frequency (U. Grenander, Ann. Math. Stat. 25
-    (1954) 252–272, from memory).
+    (1954) 252–272, from memory). The residuals about a line fitted to a correlated record
+    scatter less than the noise: E[(N − 2) s_r²] = σ² (N − tr(H R)) with H the fit's hat matrix
+    and R the noise correlation, tr(H R) ≈ 2 N / N_eff (one N / N_eff for the mean, one for the
+    slope); s_r² is scaled by (N − 2)/(N − 2 N/N_eff) accordingly (the unbiased variance of
+    autocorrelated data, A. Zięba, Metrol. Meas. Syst. 17 (2010) 3–16, carried from the mean to
+    the line). On 4 s AR(1) records with τ = 0.3 s (3000 records) u went from 0.70 to 0.80 of the
+    drift's true spread: N_eff of the short residual record is still overestimated.
     NaN for fewer than three samples.
     """
     x, t = np.asarray(values, dtype=float), np.asarray(time, dtype=float)
@@ -94,9 +100,9 @@ def drift_uncertainty(values: np.ndarray, time: np.ndarray) -> float:
     tc = t - t.mean()
     slope = np.dot(tc, x - x.mean()) / np.dot(tc, tc)
     residuals = x - x.mean() - slope * tc
-    s_r = np.sqrt(np.dot(residuals, residuals) / (x.size - 2))
-    inflation = np.sqrt(x.size / conditions.effective_sample_size(residuals))
-    return float(s_r / np.sqrt(np.dot(tc, tc)) * inflation * (t[-1] - t[0]))
+    tau = x.size / conditions.effective_sample_size(residuals)
+    s_r = np.sqrt(np.dot(residuals, residuals) / max(x.size - 2.0 * tau, 1.0))
+    return float(s_r / np.sqrt(np.dot(tc, tc)) * np.sqrt(tau) * (t[-1] - t[0]))
 
 
 def stream_overlap(streams) -> float:
