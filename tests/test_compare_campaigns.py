@@ -99,6 +99,17 @@ def test_a_planted_hysteresis_is_found_at_its_size(planted_campaign):
         assert others["significant"].mean() <= NULL_RATE, others[others["significant"]]
 
 
+def test_a_planted_hysteresis_raises_no_repeat_disagreement(planted_campaign):
+    # Up and down legs at one set point differ by the planted 0.3 in CL, about 15 u: before,
+    # the repeat check took them as repeats and flagged every down run and its up partner.
+    results, _ = planted_campaign
+    down = results["spin_set"].duplicated(keep=False)  # set points visited on both legs
+    assert down.sum() >= 6
+    assert not results["flag_repeat_disagreement"].astype(bool).any(), results.loc[
+        results["flag_repeat_disagreement"].astype(bool), ["run", "spin_set", "flag_reasons"]
+    ]
+
+
 def test_demo_hysteresis_false_positive_rate(demo_results):
     # The demo's truth has no hysteresis (sample_runs/README.md); on its sparse down sweeps the
     # earlier grid-only comparison called 253 of 468 points significant.

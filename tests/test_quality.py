@@ -332,6 +332,45 @@ def test_flag_columns_layout():
         q.flag_columns([Flag("wobble", 1.0, 0.0, "")])
 
 
+def test_repeat_disagreement_takes_only_runs_of_one_sweep_direction_as_repeats():
+    # One configuration at 20 m/s, swept up 0 → 600 → 1200 rpm and back down to 0, in start
+    # order (the rows are shuffled: the order comes from `start`). The down leg's CL is 0.3
+    # below the up leg's, 10.6 u of the difference: a hysteresis, not a disagreement
+    # (JCGM 100:2008 eq. (10) for u of the difference of independent runs).
+    # u1 and u1b repeat 600 rpm on the way up and disagree (0.2 → 7.1 u); t1 and t2 repeat the
+    # turning point, which both legs share, and disagree (0.25 → 8.8 u).
+    runs = ["u0", "u1", "u1b", "t1", "t2", "d1", "d0"]
+    df = pd.DataFrame(
+        {
+            "run": runs,
+            "config": "bare",
+            "start": [f"2026-03-10T09:{m:02d}:00" for m in range(len(runs))],
+            "speed_set": 20.0,
+            "spin_set": [0.0, 600.0, 600.0, 1200.0, 1200.0, 600.0, 0.0],
+            "CL": [0.0, -1.0, -1.2, -2.0, -2.25, -1.3, -0.3],
+            "u_CL": 0.02,
+            "CD": 0.8,
+            "u_CD": 0.02,
+        }
+    ).sample(frac=1.0, random_state=3)
+    flags = q.repeat_disagreement(df, T)
+    assert sorted(flags) == ["t1", "t2", "u1", "u1b"]
+    assert "repeat run u1b" in flags["u1"].reason and "repeat run t2" in flags["t1"].reason
+    # Before: d1 and d0 were taken as repeats of u1, u1b and u0 (same set point) and flagged.
+    assert "d1" not in flags and "d0" not in flags and "u0" not in flags
+
+
+def test_sweep_legs_of_set_spin_rates():
+    # The turning plateau belongs to both legs; a plateau of repeats stays in its leg.
+    legs = q.spin_legs(np.array([0, 600, 600, 1200, 1200, 600, 0, 600]))
+    assert [(d, m.tolist()) for d, m in legs] == [
+        ("up", [0, 1, 2, 3, 4]),
+        ("down", [3, 4, 5, 6]),
+        ("up", [6, 7]),
+    ]
+    assert [(d, m.tolist()) for d, m in q.spin_legs(np.array([5, 5, 5]))] == [("single", [0, 1, 2])]
+
+
 def test_repeat_disagreement_on_a_small_campaign():
     # r1, r2, r3 repeat one set point (19.9 and 20.1 m/s round to 20.0; 598 and 603 rpm to 600).
     # r3's CL is 0.15 from r1 and 0.14 from r2, u = 0.02 each: 0.15 / sqrt(2 * 0.02^2) = 5.3 > k = 2

@@ -37,6 +37,7 @@ __all__ = [
     "judge",
     "check_run",
     "repeat_disagreement",
+    "spin_legs",
     "flag_columns",
     "parse_flag_reasons",
 ]
@@ -469,6 +470,60 @@ def check_run(measures: RunMeasures | Mapping[str, object], tolerances: Toleranc
     return [f for f in found if f is not None]
 
 
+def spin_legs(spin: np.ndarray) -> list[tuple[str, np.ndarray]]:
+    """Legs of a time-ordered sequence of set spin rates: (direction, positions) each.
+
+    Runs at one set point in a row form a plateau; the plateaus change monotonically within a
+    leg, and the plateau where the direction reverses belongs to both legs. A sequence that
+    never reverses is one ``"single"`` leg; otherwise each leg is ``"up"`` or ``"down"``. The
+    one rule for the sweeps of the comparisons and figures (tunnelred.products.compare) and for
+    which runs :func:`repeat_disagreement` takes as repeats.
+
+    Examples
+    --------
+    >>> [(d, p.tolist()) for d, p in spin_legs(np.array([0, 500, 500, 1000, 500, 0]))]
+    [('up', [0, 1, 2, 3]), ('down', [3, 4, 5])]
+    """
+    spin = np.asarray(spin)
+    changes = np.flatnonzero(np.diff(spin) != 0)
+    plateau = np.concatenate([[0], np.cumsum(np.diff(spin) != 0)])
+    levels = spin[np.concatenate([[0], changes + 1])]
+    if levels.size == 1:
+        return [("single", np.arange(spin.size))]
+    step = np.sign(np.diff(levels))
+    leg_of_step = np.concatenate([[0], np.cumsum(step[1:] != step[:-1])])
+    n_legs = int(leg_of_step[-1]) + 1
+    legs = []
+    for k in range(n_legs):
+        steps = np.flatnonzero(leg_of_step == k)
+        members = np.flatnonzero((plateau >= steps[0]) & (plateau <= steps[-1] + 1))
+        direction = "single" if n_legs == 1 else ("up" if step[steps[0]] > 0 else "down")
+        legs.append((direction, members))
+    return legs
+
+
+def _run_order(df: pd.DataFrame) -> np.ndarray:
+    """Positions of ``df``'s rows in ``start`` order (the table's order without it)."""
+    if "start" not in df:
+        return np.arange(len(df))
+    start = pd.to_datetime(df["start"], utc=True, errors="coerce", format="ISO8601")
+    seconds = (start - pd.Timestamp(0, tz="UTC")).dt.total_seconds().to_numpy(dtype=float)
+    return np.argsort(seconds, kind="stable")
+
+
+def _directions(keyed: pd.DataFrame) -> dict[object, frozenset[str]]:
+    """Each row's sweep directions (index label → {"up"}, {"down"}, both at a turning point,
+    or {"single"}): the legs of :func:`spin_legs` within its configuration and set speed."""
+    found: dict[object, set[str]] = {}
+    for _, group in keyed.groupby(["config", "_speed"], sort=False):
+        group = group.iloc[_run_order(group)]
+        labels = group.index.to_numpy()
+        for direction, members in spin_legs(group["_spin"].to_numpy()):
+            for label in labels[members]:
+                found.setdefault(label, set()).add(direction)
+    return {label: frozenset(d) for label, d in found.items()}
+
+
 def repeat_disagreement(
     results: pd.DataFrame,
     tolerances: Tolerances | Callable[[str], Tolerances],
@@ -477,13 +532,14 @@ def repeat_disagreement(
     spin_resolution: float = 10.0,
     coefficients: Sequence[str] = ("CL", "CD"),
 ) -> dict[str, Flag]:
-    """Flag repeated runs (same configuration and set point) whose coefficients disagree.
+    """Flag repeated runs (same configuration, set point and sweep direction) that disagree.
 
     Parameters
     ----------
     results : pandas.DataFrame
         One row a run, with ``run`` (a column, else the index), ``config``, ``speed_set`` [m/s],
-        ``spin_set`` [rpm] and, for each coefficient X compared, ``X`` and ``u_X`` [-].
+        ``spin_set`` [rpm], optionally ``start`` (the run order; else the rows' order) and, for
+        each coefficient X compared, ``X`` and ``u_X`` [-].
     tolerances : Tolerances or callable
         ``agreement_k`` is the coverage factor of the test. A callable gives the tolerances of
         a configuration label (``CampaignConfig.tolerances_for``), so that each configuration's
@@ -503,6 +559,12 @@ def repeat_disagreement(
 
     Notes
     -----
+    Repeats are runs of one configuration at one set speed and set spin rate (rounded) taken in
+    the same direction of the spin sweep: in run order within the configuration and speed, the
+    legs of :func:`spin_legs`. A run on the way up and one on the way down at the same set point
+    are not repeats, since a real hysteresis of the flow may part them; the runs at the turning
+    point belong to both legs, and a second leg in one direction repeats the first.
+
     Runs i, j of one group disagree on X when |X_i − X_j| > k √(u²(X_i) + u²(X_j)). Taking the
     runs as independent over-states u(X_i − X_j) where they share type-B components (the same
     balance calibration, the same geometry), which cancel in a difference: the test is
@@ -528,12 +590,17 @@ def repeat_disagreement(
     speed = np.round(df["speed_set"].to_numpy(dtype=float) / speed_resolution) * speed_resolution
     spin = np.round(df["spin_set"].to_numpy(dtype=float) / spin_resolution) * spin_resolution
     keyed = df.assign(_speed=speed, _spin=spin).dropna(subset=["_speed", "_spin"])
+    keyed = keyed.reset_index(drop=True)
+    directions = _directions(keyed)
     worst: dict[str, tuple[float, float, str]] = {}
     for (label, _, _), group in keyed.groupby(["config", "_speed", "_spin"], sort=False):
         if len(group) < 2:
             continue
         k = float(getattr(tolerances_for(str(label)), str(check.tolerance)))
         runs = group["run"].astype(str).to_numpy()
+        legs = [directions[i] for i in group.index]
+        repeats = np.array([[i != j and bool(a & b) for j, b in enumerate(legs)]
+                            for i, a in enumerate(legs)])  # fmt: skip
         for name in coefficients:
             if name not in group or f"u_{name}" not in group:
                 continue
@@ -541,12 +608,11 @@ def repeat_disagreement(
             u = group[f"u_{name}"].to_numpy(dtype=float)
             with np.errstate(divide="ignore", invalid="ignore"):
                 z = np.abs(x[:, None] - x[None, :]) / np.sqrt(u[:, None] ** 2 + u[None, :] ** 2)
-            z = np.where(np.isnan(z), 0.0, z)
-            np.fill_diagonal(z, 0.0)
+            z = np.where(np.isnan(z) | ~repeats, 0.0, z)
             # A run is flagged when it disagrees with most of its repeats: among three or more
             # the odd one out is named, not the repeats it spoils; a pair cannot tell which.
             disagreeing = (z > k).sum(axis=1)
-            for i in np.flatnonzero(disagreeing > (len(group) - 1) / 2):
+            for i in np.flatnonzero(disagreeing > repeats.sum(axis=1) / 2):
                 j = int(np.argmax(z[i]))
                 if z[i, j] <= worst.get(runs[i], (-1.0, ""))[0]:
                     continue

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from tunnelred.engine.quality import spin_legs
 from tunnelred.products.store import run_table
 
 __all__ = [
@@ -111,8 +112,9 @@ def numeric_column(table: pd.DataFrame, name: str) -> np.ndarray:
     return pd.to_numeric(table[name], errors="coerce").to_numpy(dtype=float)
 
 
-#: Flags that do not keep a run out of a comparison: the repeat check compares the runs at one
-#: set point, the legs of a sweep included, so a real hysteresis raises it on its own evidence.
+#: Flags that do not keep a run out of a comparison: the repeat check names both runs of a
+#: disagreeing pair (it cannot tell which is wrong), so leaving them out would drop the set
+#: point rather than a faulty run.
 COMPARISON_FLAGS_IGNORED = ("repeat_disagreement",)
 
 
@@ -228,29 +230,6 @@ def _re_bands(reynolds: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.nd
     return band, medians
 
 
-def _legs(spin: np.ndarray) -> list[tuple[str, np.ndarray]]:
-    """Legs of a time-ordered sequence of set spin rates: (direction, positions) each.
-
-    Runs at one set point in a row form a plateau; the plateaus change monotonically within a
-    leg, and the plateau where the direction reverses belongs to both legs.
-    """
-    changes = np.flatnonzero(np.diff(spin) != 0)
-    plateau = np.concatenate([[0], np.cumsum(np.diff(spin) != 0)])
-    levels = spin[np.concatenate([[0], changes + 1])]
-    if levels.size == 1:
-        return [("single", np.arange(spin.size))]
-    step = np.sign(np.diff(levels))
-    leg_of_step = np.concatenate([[0], np.cumsum(step[1:] != step[:-1])])
-    n_legs = int(leg_of_step[-1]) + 1
-    legs = []
-    for k in range(n_legs):
-        steps = np.flatnonzero(leg_of_step == k)
-        members = np.flatnonzero((plateau >= steps[0]) & (plateau <= steps[-1] + 1))
-        direction = "single" if n_legs == 1 else ("up" if step[steps[0]] > 0 else "down")
-        legs.append((direction, members))
-    return legs
-
-
 def find_sweeps(
     results,
     *,
@@ -334,7 +313,7 @@ def find_sweeps(
             nominal_speed = float(lev)
             where = f"{nominal_speed:g} m/s"
         seen: dict[str, int] = {}
-        for direction, members in _legs(spin[rows]):
+        for direction, members in spin_legs(spin[rows]):
             seen[direction] = seen.get(direction, 0) + 1
             label = direction if seen[direction] == 1 else f"{direction} {seen[direction]}"
             picked = rows[members]
