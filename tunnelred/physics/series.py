@@ -290,7 +290,7 @@ def white_noise_variance(x: npt.ArrayLike) -> float:
     Parameters
     ----------
     x : array_like
-        The 1-D record (any unit), evenly sampled.
+        As for :func:`effective_sample_size`.
 
     Returns
     -------
