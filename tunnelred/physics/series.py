@@ -2,8 +2,9 @@
 
 Consecutive samples of a tunnel record are correlated, so the u of a mean comes from the effective
 number of independent samples (:func:`effective_sample_size`) rather than the sample count; the
-means of records taken over one interval are correlated too (:func:`correlation_of_means`). Every
-stream's time-series layer (tunnelred.engine.reduction) reads its records through this module.
+means of records taken over one interval are correlated too (:func:`correlation_of_means`), and
+the u of a record's drift takes the same N_eff (:func:`drift_uncertainty`). Every stream's
+time-series layer (tunnelred.engine.reduction) reads its records through this module.
 """
 
 from __future__ import annotations
@@ -23,6 +24,7 @@ __all__ = [
     "variance_of_the_mean",
     "white_noise_variance",
     "correlation_of_means",
+    "drift_uncertainty",
 ]
 
 
@@ -404,3 +406,32 @@ def correlation_of_means(records: list[tuple[npt.ArrayLike, npt.ArrayLike]]) -> 
         R = R / np.outer(d, d)
         np.fill_diagonal(R, 1.0)
     return R
+
+
+def drift_uncertainty(values: npt.ArrayLike, time: npt.ArrayLike) -> float:
+    """Standard uncertainty of a record's least-squares change b (t_N − t_1), from its noise.
+
+    u(b) = s_r / sqrt(Σ (t_i − t̄)²) · sqrt(N / N_eff), with s_r the residuals' standard
+    deviation about the line (N − 2 degrees of freedom) and N_eff their effective sample size
+    (:func:`effective_sample_size`): for noise that is correlated over times short
+    against the record, the variance of a regression slope grows by the same factor N / N_eff
+    as that of the mean: least squares on a polynomial trend is asymptotically efficient, with
+    the variance set by the noise spectrum at zero frequency (U. Grenander, Ann. Math. Stat. 25
+    (1954) 252–272, from memory). The residuals about a line fitted to a correlated record
+    scatter less than the noise: E[(N − 2) s_r²] = σ² (N − tr(H R)) with H the fit's hat matrix
+    and R the noise correlation, tr(H R) ≈ 2 N / N_eff (one N / N_eff for the mean, one for the
+    slope); s_r² is scaled by (N − 2)/(N − 2 N/N_eff) accordingly (the unbiased variance of
+    autocorrelated data, A. Zięba, Metrol. Meas. Syst. 17 (2010) 3–16, carried from the mean to
+    the line). On 4 s AR(1) records with τ = 0.3 s (3000 records) u went from 0.70 to 0.80 of the
+    drift's true spread: N_eff of the short residual record is still overestimated.
+    NaN for fewer than three samples.
+    """
+    x, t = np.asarray(values, dtype=float), np.asarray(time, dtype=float)
+    if x.size < 3:
+        return float("nan")
+    tc = t - t.mean()
+    slope = np.dot(tc, x - x.mean()) / np.dot(tc, tc)
+    residuals = x - x.mean() - slope * tc
+    tau = x.size / effective_sample_size(residuals)
+    s_r = np.sqrt(np.dot(residuals, residuals) / max(x.size - 2.0 * tau, 1.0))
+    return float(s_r / np.sqrt(np.dot(tc, tc)) * np.sqrt(tau) * (t[-1] - t[0]))

@@ -27,7 +27,6 @@ from tunnelred.common.errors import InputError, ReductionError
 from tunnelred.engine import plausibility, quality
 from tunnelred.engine.reduction.flow import (
     air_data_inputs,
-    drift_uncertainty,
     geometry_inputs,
     spin_inputs,
     spin_rate_inputs,
@@ -59,6 +58,7 @@ from tunnelred.engine.reduction.taps import (
     reading_slope,
 )
 from tunnelred.physics import conditions
+from tunnelred.physics.series import drift_uncertainty  # importable from here, as before
 from tunnelred.physics.uncertainty import propagate_linear, propagate_monte_carlo
 
 __all__ = [

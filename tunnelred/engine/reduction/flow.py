@@ -25,7 +25,7 @@ def tunnel_inputs(cfg, tunnel, fs, measures: dict) -> dict:
     }
     u_speed = conditions.series_statistics(fs["U"].to_numpy(), t)
     measures["speed_drift"] = abs(u_speed.drift) / u_speed.mean
-    measures["u_speed_drift"] = drift_uncertainty(fs["U"].to_numpy(), t) / u_speed.mean
+    measures["u_speed_drift"] = series.drift_uncertainty(fs["U"].to_numpy(), t) / u_speed.mean
     measures["temperature_drift"] = abs(stats["T"].drift)
     means = {"dp" if name == column else name: (s.mean, s.u_mean) for name, s in stats.items()}
     # The measurand is the mean of the flow this run had (docs/methods.md, "The measurand of q,
@@ -74,35 +74,6 @@ def air_data_inputs(cfg, means: dict[str, tuple[float, float]]) -> dict[str, Inp
             "contraction factor",
         )
     return inputs
-
-
-def drift_uncertainty(values: np.ndarray, time: np.ndarray) -> float:
-    """Standard uncertainty of a record's least-squares change b (t_N − t_1), from its noise.
-
-    u(b) = s_r / sqrt(Σ (t_i − t̄)²) · sqrt(N / N_eff), with s_r the residuals' standard
-    deviation about the line (N − 2 degrees of freedom) and N_eff their effective sample size
-    (:func:`conditions.effective_sample_size`): for noise that is correlated over times short
-    against the record, the variance of a regression slope grows by the same factor N / N_eff
-    as that of the mean: least squares on a polynomial trend is asymptotically efficient, with
-    the variance set by the noise spectrum at zero frequency (U. Grenander, Ann. Math. Stat. 25
-    (1954) 252–272, from memory). The residuals about a line fitted to a correlated record
-    scatter less than the noise: E[(N − 2) s_r²] = σ² (N − tr(H R)) with H the fit's hat matrix
-    and R the noise correlation, tr(H R) ≈ 2 N / N_eff (one N / N_eff for the mean, one for the
-    slope); s_r² is scaled by (N − 2)/(N − 2 N/N_eff) accordingly (the unbiased variance of
-    autocorrelated data, A. Zięba, Metrol. Meas. Syst. 17 (2010) 3–16, carried from the mean to
-    the line). On 4 s AR(1) records with τ = 0.3 s (3000 records) u went from 0.70 to 0.80 of the
-    drift's true spread: N_eff of the short residual record is still overestimated.
-    NaN for fewer than three samples.
-    """
-    x, t = np.asarray(values, dtype=float), np.asarray(time, dtype=float)
-    if x.size < 3:
-        return float("nan")
-    tc = t - t.mean()
-    slope = np.dot(tc, x - x.mean()) / np.dot(tc, tc)
-    residuals = x - x.mean() - slope * tc
-    tau = x.size / conditions.effective_sample_size(residuals)
-    s_r = np.sqrt(np.dot(residuals, residuals) / max(x.size - 2.0 * tau, 1.0))
-    return float(s_r / np.sqrt(np.dot(tc, tc)) * np.sqrt(tau) * (t[-1] - t[0]))
 
 
 def stream_overlap(streams) -> float:
