@@ -321,7 +321,7 @@ def _add_report(subparsers) -> None:
         "Cp against potential flow, an uncertainty budget, the quality flags with their "
         "reasons, the configuration comparison, and an appendix with the configuration and the "
         "SHA-256 of every input.",
-        epilog="examples:\n  tunnelred report out \n  tunnelred report out -o entry-3.pdf",
+        epilog="examples:\n  tunnelred report out\n  tunnelred report out -o entry-3.pdf",
     )
     p.add_argument("results", type=Path, help="results folder of tunnelred reduce")
     p.add_argument("-o", "--out", type=Path, help="PDF to write (default RESULTS/report.pdf)")
@@ -511,7 +511,9 @@ def _add_watch(subparsers) -> None:
         "it (and its zero and tare runs) names exists and ends with a line break, and none of "
         "them has changed for SETTLE seconds. OUT is kept up to date (results, figures/live.png) "
         "and a live view shows the latest runs with their flags. Ctrl-C stops it cleanly.",
-        epilog="example:\n  tunnelred watch /data/entry-3 -o /data/entry-3-out --settle 5",
+        epilog="example:\n  tunnelred watch /data/entry-3 -o /data/entry-3-out --settle 5\n\n"
+        "exit status: 0 stopped with Ctrl-C, 143 stopped by SIGTERM, 2 usage error or OUT in "
+        "use by another reduction or watch.",
     )
     p.add_argument("campaign", type=Path, help="the campaign folder being written")
     p.add_argument("-o", "--out", type=Path, required=True, help="output folder (created)")
