@@ -388,6 +388,14 @@ def test_plan_command(simulated, tmp_path, capsys):
                  "--prior", "measured"]) == 1  # fmt: skip
     assert "prior: expected one of illustrative, potential" in capsys.readouterr().out
     assert not (tmp_path / "o2").exists()
+    # A folder holding other files is refused, its files untouched (RULES: never write outside
+    # the output folder, inputs read-only); the command offers no --force, and says so.
+    foreign = tmp_path / "foreign"
+    foreign.mkdir()
+    (foreign / "notes.txt").write_text("mine", encoding="utf-8")
+    assert main(["plan", str(folder), "--matrix", matrix, "-o", str(foreign)]) == 2
+    assert "holds neither a plan nor tunnelred results" in capsys.readouterr().err
+    assert [p.name for p in foreign.iterdir()] == ["notes.txt"]
 
 
 def test_report_includes_the_plan_beside_the_results(simulated, tmp_path):

@@ -179,7 +179,15 @@ def plan_folder(out, campaign=None) -> Path:
         # a results folder holds its plan in plan/, never plan.json at the top).
         check_location(path, campaign, force=True)
         return path
-    checked = check_location(path, campaign)
+    # force: the non-empty folder is judged here, since check_location's way out (--force) is
+    # not a plan's: other files beside a plan's would be mistaken for its own.
+    checked = check_location(path, campaign, force=True)
+    if checked.is_dir() and any(checked.iterdir()) and not is_results_folder(checked):
+        raise OutputFolderError(
+            f"{checked} is not empty and holds neither a plan nor tunnelred results; choose a "
+            "new or empty folder, an earlier plan's folder (replaced) or a results folder (the "
+            "plan goes into its plan/)"
+        )
     if checked.is_dir() and is_results_folder(checked):
         return checked / PLAN_SUBFOLDER
     return checked
