@@ -89,6 +89,16 @@ def planned_from_its_results(simulated, tmp_path_factory):
                      air=_air(spec))  # fmt: skip
 
 
+def _assert_u_within_20_percent(plan, reduced, name):
+    """The plan's u of ``name`` within 20 % of the reduction's at 3 or more points."""
+    predicted = plan.table[f"u_{name}"].to_numpy()
+    reported = reduced[f"u_{name}"].to_numpy()
+    judged = reported > 0
+    ratio = predicted[judged] / reported[judged]
+    assert judged.sum() >= 3
+    assert np.all(np.abs(ratio - 1.0) < 0.2), ratio
+
+
 # Measured (seed 2026, docs/plan.md), plan u / reduction u at alpha 0, 1, 2, 3: with the
 # illustrative prior CL 1.00, 1.01, 0.88, 1.04; with the campaign's results as the prior every
 # output within 0.81-1.05 at every alpha (CL 1.01, 0.89, 0.82, 1.01). The plan's N_eff is
@@ -98,12 +108,7 @@ def planned_from_its_results(simulated, tmp_path_factory):
 @pytest.mark.parametrize("name", ["alpha", "CL", "CM", "C_power"])
 def test_predicted_u_agrees_with_the_reductions_u(simulated, name):
     _, _, reduced, plan = simulated
-    predicted = plan.table[f"u_{name}"].to_numpy()
-    reported = reduced[f"u_{name}"].to_numpy()
-    judged = reported > 0
-    ratio = predicted[judged] / reported[judged]
-    assert judged.sum() >= 3
-    assert np.all(np.abs(ratio - 1.0) < 0.2), ratio
+    _assert_u_within_20_percent(plan, reduced, name)
 
 
 @pytest.mark.parametrize("name", ["alpha", "CL", "CD", "CM", "C_power"])
@@ -113,12 +118,7 @@ def test_predicted_u_with_the_runs_coefficients_agrees_at_every_spin(
     # CD too: with the illustrative prior its CD (so its CD budget) differs from the demo's
     # at alpha 1 (plan / reduction 1.52); with the runs' own coefficients it does not.
     _, _, reduced, _ = simulated
-    predicted = planned_from_its_results.table[f"u_{name}"].to_numpy()
-    reported = reduced[f"u_{name}"].to_numpy()
-    judged = reported > 0
-    ratio = predicted[judged] / reported[judged]
-    assert judged.sum() >= 3
-    assert np.all(np.abs(ratio - 1.0) < 0.2), ratio
+    _assert_u_within_20_percent(planned_from_its_results, reduced, name)
 
 
 def test_predicted_cp_u_agrees_with_the_reductions(tmp_path):
@@ -181,8 +181,8 @@ def test_a_plan_folder_is_replaced_whole_or_not_at_all(simulated, tmp_path, monk
     assert len(list((out / ".generations").iterdir())) == 1
 
 
-def test_overload_and_spin_limit_are_reported(simulated, tmp_path):
-    folder, spec, _, _ = simulated
+def _rated_campaign(folder, tmp_path):
+    """A campaign with ``folder``'s configuration, its model rated for 3000 rpm, and no runs."""
     toml = (folder / "campaign.toml").read_text(encoding="utf-8")
     limited = tmp_path / "limited"
     limited.mkdir()
@@ -190,6 +190,12 @@ def test_overload_and_spin_limit_are_reported(simulated, tmp_path):
         toml.replace("[model]\n", '[model]\nmax_spin_rate = "3000 rpm"\n', 1), encoding="utf-8"
     )
     (limited / "runs.csv").write_text("", encoding="utf-8")
+    return limited
+
+
+def test_overload_and_spin_limit_are_reported(simulated, tmp_path):
+    folder, spec, _, _ = simulated
+    limited = _rated_campaign(folder, tmp_path)
     # 40 m/s at alpha 0.3: drag ~ 1.1 q d b = 1.1 x 980 Pa x 0.0925 m2 = 100 N on a 40 N Fx
     # range; 9 m/s at alpha 3 on a 0.125 m cylinder is 4125 rpm, above the 3000 rpm rating.
     rows = ["point,config,speed_set [m/s],spin_ratio,record [s]"]
@@ -215,15 +221,9 @@ def test_every_flag_is_prechecked_or_says_why_not():
 
 def test_flags_and_ranges_are_checked_in_advance(simulated, tmp_path):
     folder, spec, _, _ = simulated
-    toml = (folder / "campaign.toml").read_text(encoding="utf-8")
-    limited = tmp_path / "limited"
-    limited.mkdir()
     # 3000 rpm rating; 9 m/s at alpha 2.17 on the 0.125 m cylinder is 2984 rpm, 99.5 % of it:
     # the jitter's 3 sd (0.6 %) reach the rating.
-    (limited / "campaign.toml").write_text(
-        toml.replace("[model]\n", '[model]\nmax_spin_rate = "3000 rpm"\n', 1), encoding="utf-8"
-    )
-    (limited / "runs.csv").write_text("", encoding="utf-8")
+    limited = _rated_campaign(folder, tmp_path)
     omega = 2984.0 * 2 * np.pi / 60.0
     rows = ["point,config,speed_set [m/s],spin_ratio,record [s]",
             f"near,plates,9,{omega * 0.0625 / 9.0:.6f},4",

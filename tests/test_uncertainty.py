@@ -150,15 +150,7 @@ def test_one_batched_model_call_and_zero_u_inputs_skipped():
 def test_budget_shares_sum_to_one_and_signs():
     res = propagate_linear(force_model, FORCE_INPUTS)
     budget = res.budget("CL")
-    assert list(budget.columns) == [
-        "input",
-        "value",
-        "u",
-        "sensitivity",
-        "contribution",
-        "share",
-        "kind",
-    ]
+    assert list(budget.columns) == "input value u sensitivity contribution share kind".split()
     # Independent inputs: u^2(y) = sum c_i^2 u^2(x_i) (JCGM 100:2008 eq. (10)) → shares sum to 1.
     assert budget["share"].sum() == pytest.approx(1.0, rel=1e-12)
     assert CORRELATION_ROW not in set(budget["input"])
