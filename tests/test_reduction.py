@@ -140,6 +140,46 @@ def test_monte_carlo_agrees_with_the_linear_propagation(demo_campaign_dir, demo_
         assert mc == pytest.approx(linear, rel=0.05), name
 
 
+# Fields of RunMeasures a clean spinning run with every stream legitimately leaves at their
+# defaults: omega and tare_range are filled only when the spin rate lies outside the tare runs'
+# (for the tare_extrapolated flag's reason; tare_extrapolated stays False), dead_taps only when a
+# tap is excluded, pressure_gap only when the pressure forces are left out.
+EMPTY_ON_A_CLEAN_RUN = {"tare_extrapolated", "omega", "tare_range", "dead_taps", "pressure_gap"}
+
+
+def _is_empty(value) -> bool:
+    if isinstance(value, float):
+        return np.isnan(value)
+    if isinstance(value, tuple) and value and isinstance(value[0], float):
+        return bool(np.isnan(value).any())
+    return not value
+
+
+def test_a_run_with_every_stream_fills_every_measure(demo_campaign_dir, demo_truth, monkeypatch):
+    # A measure the reduction stops producing must fail here, not silently disable its flag.
+    # R016: balance, tunnel and pressure logs, spinning (tachometer and encoder), tares around
+    # its spin rate, no planted fault.
+    from dataclasses import fields
+
+    from tunnelred.engine import quality
+
+    assert demo_truth.loc["R016", "planted_fault"] == ""
+    judged = []
+    check_run = quality.check_run
+    monkeypatch.setattr(quality, "check_run", lambda m, tol: judged.append(m) or check_run(m, tol))
+    reduce_run(open_campaign(demo_campaign_dir, check_logs=False), "R016")
+    (measures,) = judged
+    values = {f.name: getattr(measures, f.name) for f in fields(quality.RunMeasures)}
+    assert EMPTY_ON_A_CLEAN_RUN <= set(values)
+    empty = {name for name, value in values.items() if _is_empty(value)}
+    assert empty == EMPTY_ON_A_CLEAN_RUN
+    # Defaults that are numbers (0.0) rather than NaN are filled too: a record's noise makes
+    # each of these non-zero.
+    for name in ("u_speed_drift", "u_Cp_max", "corr_CL_CL_p"):
+        assert values[name] != 0.0, name
+    assert len(values["zero_shift"]) == len(values["overload"]) == 3
+
+
 def test_a_zero_or_tare_run_is_not_reduced(demo_campaign_dir):
     campaign = open_campaign(demo_campaign_dir, check_logs=False)
     zero = campaign.zero_runs()[0].run
