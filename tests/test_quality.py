@@ -252,54 +252,28 @@ def test_the_table_is_the_list_of_flags():
     assert tolerance_keys <= set(vars(T))
 
 
+# A line a group of checks: spin and air steadiness; balance; taps and streams; balance
+# against pressure; the run at rest; set points.
 CLEAN = {
-    "spin_scatter": 0.01,
-    "spin_drift": 0.005,
-    "speed_drift": 0.002,
-    "temperature_drift": 0.1,
-    "zero_shift": [0.0005, 0.0003, 0.0001],
-    "tare_extrapolated": False,
-    "overload": [0.2, 0.5, 0.1],
-    "dead_taps": {},
-    "stream_overlap": 0.99,
-    "revolutions": 150.0,
-    "CL": -1.50,
-    "u_CL": 0.04,
-    "CL_p": -1.45,
-    "u_CL_p": 0.04,
-    "corr_CL_CL_p": 0.2,
-    "alpha": 0.0,
-    "Cp_max": 1.01,
-    "speed_set": 20.0,
-    "U_measured": 20.3,
-    "spin_set": 0.0,
-    "spin_rpm": 0.4,
-}
+    "spin_scatter": 0.01, "spin_drift": 0.005, "speed_drift": 0.002, "temperature_drift": 0.1,
+    "zero_shift": [0.0005, 0.0003, 0.0001], "tare_extrapolated": False, "overload": [0.2, 0.5, 0.1],
+    "dead_taps": {}, "stream_overlap": 0.99, "revolutions": 150.0,
+    "CL": -1.50, "u_CL": 0.04, "CL_p": -1.45, "u_CL_p": 0.04, "corr_CL_CL_p": 0.2,
+    "alpha": 0.0, "Cp_max": 1.01,
+    "speed_set": 20.0, "U_measured": 20.3, "spin_set": 0.0, "spin_rpm": 0.4,
+}  # fmt: skip
 
+# Measures every per-run check flags (2000 rpm is outside the tare runs' 0-1500 rpm).
 BAD = {
-    "spin_scatter": 0.05,
-    "spin_drift": 0.05,
-    "speed_drift": 0.05,
-    "temperature_drift": 2.0,
+    "spin_scatter": 0.05, "spin_drift": 0.05, "speed_drift": 0.05, "temperature_drift": 2.0,
     "zero_shift": [0.0005, 0.004, 0.0001],
-    "tare_extrapolated": True,
-    "omega": 2000 * RPM,
-    "tare_range": (0.0, 1500 * RPM),
+    "tare_extrapolated": True, "omega": 2000 * RPM, "tare_range": (0.0, 1500 * RPM),
     "overload": [0.2, 0.95, 0.1],
-    "dead_taps": {"tap03": "reads constant"},
-    "stream_overlap": 0.5,
-    "revolutions": 5.0,
-    "CL": -1.50,
-    "u_CL": 0.01,
-    "CL_p": -1.20,
-    "u_CL_p": 0.01,
-    "alpha": 0.0,
-    "Cp_max": 0.8,
-    "speed_set": 6.0,
-    "U_measured": 60.0,
-    "spin_set": 1000.0,
-    "spin_rpm": 1500.0,
-}
+    "dead_taps": {"tap03": "reads constant"}, "stream_overlap": 0.5, "revolutions": 5.0,
+    "CL": -1.50, "u_CL": 0.01, "CL_p": -1.20, "u_CL_p": 0.01,
+    "alpha": 0.0, "Cp_max": 0.8,
+    "speed_set": 6.0, "U_measured": 60.0, "spin_set": 1000.0, "spin_rpm": 1500.0,
+}  # fmt: skip
 
 
 def test_check_run_clean_and_bad():

@@ -275,12 +275,10 @@ def test_forward_wall_interference_inverts(small):
         # eps_sb = (pi^2/12)(d/h)^2, eps_wb = (d/4h) CD_u, evaluated here by hand.
         assert t["eps_solid"] == pytest.approx(math.pi**2 / 12.0 * (d / h) ** 2, rel=1e-12)
         assert t["eps_wake"] == pytest.approx(d / (4.0 * h) * t["CD_uncorrected"], rel=1e-9)
+        sizes = dict(diameter=d, height=h, span=spec.span, width=spec.tunnel_width)
         corr = corrections.wall_correction(
             spec.blockage,
-            diameter=d,
-            height=h,
-            span=spec.span,
-            width=spec.tunnel_width,
+            **sizes,
             drag_coefficient=t["CD_uncorrected"],
             lift_coefficient=t["CL_uncorrected"],
             dynamic_pressure=t["q_uncorrected"],
