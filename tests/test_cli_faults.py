@@ -8,6 +8,7 @@ control characters in strings from files, which must never reach the terminal ra
 from __future__ import annotations
 
 import os
+import shutil
 import socket
 import subprocess
 import sys
@@ -188,6 +189,37 @@ def test_report_and_compare_on_a_corrupt_results_file(tmp_path, capsys, command)
     assert "Traceback" not in out + err
     assert "results.nc" in out and "cannot be read" in out
     assert not (folder / "report.pdf").exists()
+
+
+@pytest.mark.parametrize(
+    ("command", "target"),
+    [
+        ("report", "runs.csv"),  # before: the PDF replaced runs.csv
+        ("report", "logs/report.pdf"),
+        ("export", "results.xlsx"),
+        ("compare", "comparison"),
+    ],
+)
+def test_nothing_is_written_into_a_campaign_folder(reduced, tmp_path, capsys, command, target):
+    campaign_dir, out = reduced
+    campaign = tmp_path / "campaign"
+    (campaign / "logs").mkdir(parents=True)
+    for name in ("campaign.toml", "runs.csv"):
+        shutil.copy(campaign_dir / name, campaign / name)
+    before = {p: p.read_bytes() for p in campaign.rglob("*") if p.is_file()}
+    option = {"report": "-o", "export": "--xlsx", "compare": "-o"}[command]
+    assert main([command, str(out), option, str(campaign / target)]) == 2
+    _, err = capsys.readouterr()
+    assert "Traceback" not in err
+    assert "campaign folder" in err or "must end in .pdf" in err
+    assert {p: p.read_bytes() for p in campaign.rglob("*") if p.is_file()} == before
+
+
+def test_a_report_is_a_pdf(reduced, tmp_path, capsys):
+    _, out = reduced
+    assert main(["report", str(out), "-o", str(tmp_path / "entry.csv")]) == 2
+    assert "the report's name must end in .pdf" in capsys.readouterr().err
+    assert not (tmp_path / "entry.csv").exists()
 
 
 # ---------------------------------------------------------------------------------------------

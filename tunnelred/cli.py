@@ -71,6 +71,19 @@ def _require_folders(*folders: Path | None) -> None:
             raise UsageError(f"{folder}: no such folder")
 
 
+def _refuse_campaign_target(path: Path) -> None:
+    """Stop with a usage error (exit 2) when ``path``, a report, workbook or comparison to
+    write, is in a campaign folder (one holding campaign.toml) or below one: tunnelred never
+    writes among the inputs (`report -o CAMPAIGN/runs.csv` replaced runs.csv by a PDF)."""
+    target = Path(os.path.realpath(path.expanduser()))
+    for folder in (target, *target.parents):
+        if (folder / "campaign.toml").is_file():
+            raise UsageError(
+                f"{path} is inside the campaign folder {folder}, which tunnelred never writes; "
+                "choose a place outside it"
+            )
+
+
 def _lines(lines) -> str:
     """Lines of output for the terminal, each escaped (see :func:`printable`)."""
     return "\n".join(printable(line) for line in lines)
@@ -339,6 +352,10 @@ def _run_report(args) -> int:
     from tunnelred.products.report import write_report
 
     _require_folders(args.results, args.campaign)
+    if args.out is not None:
+        if args.out.suffix.lower() != ".pdf":
+            return _fail_usage(f"{args.out}: the report's name must end in .pdf")
+        _refuse_campaign_target(args.out)
     pdf = write_report(args.results, args.out, campaign=args.campaign, full_config=args.full_config)
     print(f"report written to {printable(pdf)}")
     return 0
@@ -370,6 +387,7 @@ def _run_export(args) -> int:
     _require_folders(args.results)
     if args.xlsx.suffix.lower() != ".xlsx":
         return _fail_usage(f"{args.xlsx}: the workbook's name must end in .xlsx")
+    _refuse_campaign_target(args.xlsx)
     print(f"workbook written to {printable(write_xlsx(args.results, args.xlsx))}")
     return 0
 
@@ -440,6 +458,7 @@ def _run_compare(args) -> int:
     from tunnelred.products.compare import PAIR_TOLERANCE, run_compare
 
     _require_folders(*args.results)
+    _refuse_campaign_target(args.out)
     for option, value in (("--pair-tolerance", args.pair_tolerance), ("--max-gap", args.max_gap)):
         if value is not None and not value >= 0.0:
             return _fail_usage(f"{option} takes a spin-ratio step of 0 or more, not {value}")
