@@ -150,6 +150,10 @@ def _cartesian_frame(ax: Axes, run: str, low: float, ideal_min: float) -> None:
     ax.legend(loc="best")
 
 
+#: The size of :func:`plot_cp_pair`'s own figure [in].
+CP_PAIR_SIZE = (9.6, 4.8)
+
+
 def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:
     """A run's Cp(θ) in cartesian and polar form, with its expanded uncertainty made visible.
 
@@ -172,7 +176,7 @@ def plot_cp_pair(results, run: str, *, fig: Figure | None = None) -> Figure:
     ds = results_dataset(results)
     with house_style():
         if fig is None:
-            fig = Figure(figsize=(9.6, 4.8), layout="constrained")
+            fig = Figure(figsize=CP_PAIR_SIZE, layout="constrained")
         grid = fig.add_gridspec(2, 2, height_ratios=(3.2, 1.0), width_ratios=(1.25, 1.0))
         ax_cp = fig.add_subplot(grid[0, 0])
         ax_u = fig.add_subplot(grid[1, 0], sharex=ax_cp)
