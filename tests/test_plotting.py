@@ -406,6 +406,20 @@ def test_standard_figures_written(results, tmp_path):
         assert image.size == (960, 660)  # FIGURE_SIZE 6.4 in × 4.4 in at 150 dpi
 
 
+def test_figures_drawn_on_a_kept_figure_are_those_drawn_alone(results, tmp_path):
+    # The standard set is drawn on one Figure a size, cleared job after job (its renderer keeps
+    # text metrics); each PNG must be the one a new Figure gives, byte for byte (Agg rendering
+    # and zlib are deterministic for the same figure and backend).
+    from tunnelred.products.plotting import standard
+
+    kept = plotting.save_standard_figures(results, tmp_path / "kept")
+    (tmp_path / "alone" / "figures").mkdir(parents=True)
+    for job, path in zip(standard.standard_figures(results), kept, strict=True):
+        alone = plotting.draw_standard_figure(results, job, tmp_path / "alone")
+        assert alone.name == path.name
+        assert alone.read_bytes() == path.read_bytes(), path.name
+
+
 def test_figures_drawn_in_a_pool_are_those_drawn_here(results, tmp_path):
     # Drawing is shared with a process pool (tunnelred reduce --workers N): each job must give
     # the same PNG, byte for byte, as when this process draws it (Agg rendering and zlib are
