@@ -40,21 +40,25 @@ ureg = pint.UnitRegistry()
 ureg.define("@alias revolution = rev")
 
 # dimension key → (target unit for pint, units attribute written on results, what to say)
-DIMENSIONS: dict[str, tuple[str, str, str]] = {
+_SI_DIMENSIONS: dict[str, tuple[str, str, str]] = {
     "length": ("m", "m", "a length (m, mm, in, …)"),
     "time": ("s", "s", "a time (s, ms, min, …)"),
     "pressure": ("Pa", "Pa", "a pressure (Pa, hPa, kPa, psi, mmHg, inH2O, …)"),
     "pressure_gradient": ("Pa/m", "Pa m-1", "a pressure per length (Pa/m, …)"),
     "temperature": ("K", "K", "a temperature (K, degC, degF)"),
     "temperature_difference": ("K", "K", "a temperature difference (K, degC)"),
-    "angle": ("deg", "deg", "an angle (deg, rad, …)"),
-    "rotation_rate": ("rad/s", "rad s-1", "a rotation rate (rpm, rps, rad/s, deg/s)"),
     "speed": ("m/s", "m s-1", "a speed (m/s, km/h, ft/s, …)"),
     "force": ("N", "N", "a force (N, kN, lbf, …)"),
     "torque": ("N*m", "N m", "a torque (N m, lbf in, …)"),
     "frequency": ("Hz", "Hz", "a frequency (Hz, kHz, …)"),
+}
+# The project's three conventions (module docstring), each checked more strictly than pint does.
+_CONVENTIONS: dict[str, tuple[str, str, str]] = {
+    "angle": ("deg", "deg", "an angle (deg, rad, …)"),
+    "rotation_rate": ("rad/s", "rad s-1", "a rotation rate (rpm, rps, rad/s, deg/s)"),
     "fraction": ("", "1", "a dimensionless number or fraction ([1], [%])"),
 }
+DIMENSIONS: dict[str, tuple[str, str, str]] = {**_SI_DIMENSIONS, **_CONVENTIONS}
 
 # pint root units that make a unit angular; checked beside pint's dimensionality (see above).
 _ANGLE_ROOT = ureg.radian
