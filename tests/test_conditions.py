@@ -550,3 +550,21 @@ def test_white_noise_variance_separates_the_noise_from_an_ar1_flow():
     # The flow alone: only its (1 - phi)^2 s^2 = 3.7e-4 residue, far below the noise's 2.5e-3.
     assert white_noise_variance(flow) < 0.2 * w**2
     assert np.isnan(white_noise_variance([1.0, 2.0, 3.0]))
+
+
+def test_expected_white_noise_variance_matches_the_estimator_over_records():
+    # A 50 Hz pitot record: AR(1) flow (phi = 0.935, the demo's 0.3 s at 50 Hz) plus white noise
+    # of a third of its sd. The nugget estimator's mean over 200 records (a Monte Carlo of the
+    # estimator itself) against its value on the expected lag sums; it over-counts the AR(1)
+    # part by about (1 - phi)^2 of its variance (series.white_noise_variance Notes), the same in
+    # both. Tolerance 5 % (the Monte Carlo mean's relative sd is about 1 %).
+    rng = np.random.default_rng(11)
+    n, phi, white = 200, 0.935, 1.0 / 3.0
+    gamma = phi ** np.arange(n) + white**2 * (np.arange(n) == 0)
+    simulated = []
+    for _ in range(200):
+        flow = lfilter([np.sqrt(1 - phi**2)], [1.0, -phi], rng.standard_normal(n + 3000))[3000:]
+        simulated.append(series.white_noise_variance(flow + white * rng.standard_normal(n)))
+    expected = series.expected_white_noise_variance(gamma)
+    assert expected == pytest.approx(np.mean(simulated), rel=0.05)
+    assert expected == pytest.approx(white**2 + (1 - phi) ** 2, rel=0.05)

@@ -22,6 +22,7 @@ __all__ = [
     "effective_sample_size",
     "expected_record_statistics",
     "variance_of_the_mean",
+    "expected_white_noise_variance",
     "white_noise_variance",
     "correlation_of_means",
     "drift_uncertainty",
@@ -273,7 +274,13 @@ def expected_record_statistics(autocovariance: npt.ArrayLike) -> tuple[float, fl
     >>> round(s, 3), 950 < n_eff < 1050
     (1.0, True)
     """
-    gamma = _lag_covariances(autocovariance, "expected_record_statistics")
+    lag_sums = _expected_lag_sums(_lag_covariances(autocovariance, "expected_record_statistics"))
+    s2 = max(float(lag_sums[0]) / (lag_sums.size - 1), 0.0)
+    return float(np.sqrt(s2)), _n_eff_of_lag_sums(lag_sums)
+
+
+def _expected_lag_sums(gamma: np.ndarray) -> np.ndarray:
+    """E[Σ_{i<N−k} (x_i − x̄)(x_{i+k} − x̄)], k = 0 … N−1 (expected_record_statistics)."""
     n = gamma.size
     c = _covariance_with_the_mean(gamma)
     var_mean = float(np.sum(c)) / n
@@ -281,9 +288,21 @@ def expected_record_statistics(autocovariance: npt.ArrayLike) -> tuple[float, fl
     c_cum = np.cumsum(c)
     head = c_cum[n - 1 - k]  # Σ_{i=0}^{N−1−k} c_i
     tail = c_cum[-1] - np.r_[0.0, c_cum[:-1]]  # Σ_{i=k}^{N−1} c_i
-    lag_sums = (n - k) * (gamma + var_mean) - head - tail
-    s2 = max(float(lag_sums[0]) / (n - 1), 0.0)
-    return float(np.sqrt(s2)), _n_eff_of_lag_sums(lag_sums)
+    return (n - k) * (gamma + var_mean) - head - tail
+
+
+def expected_white_noise_variance(autocovariance: npt.ArrayLike) -> float:
+    """What :func:`white_noise_variance` gives from a modelled record: its nugget taken on the
+    record's expected lag sums (:func:`expected_record_statistics`; N >= 4)."""
+    gamma = _lag_covariances(autocovariance, "expected_white_noise_variance")
+    if gamma.size < 4:
+        return float("nan")
+    return _nugget(_expected_lag_sums(gamma)[:3] / gamma.size)
+
+
+def _nugget(gamma: np.ndarray) -> float:
+    """σ_w² = γ(0) − (2γ(1) − γ(2)), within [0, γ(0)] (white_noise_variance)."""
+    return float(np.clip(gamma[0] - (2.0 * gamma[1] - gamma[2]), 0.0, gamma[0]))
 
 
 def white_noise_variance(x: npt.ArrayLike) -> float:
@@ -325,8 +344,7 @@ def white_noise_variance(x: npt.ArrayLike) -> float:
     if n < 4:
         return float("nan")
     dx = x - x.mean()
-    gamma = [float(np.dot(dx[: n - k], dx[k:])) / n for k in range(3)]
-    return float(np.clip(gamma[0] - (2.0 * gamma[1] - gamma[2]), 0.0, gamma[0]))
+    return _nugget(np.array([float(np.dot(dx[: n - k], dx[k:])) / n for k in range(3)]))
 
 
 def correlation_of_means(records: list[tuple[npt.ArrayLike, npt.ArrayLike]]) -> np.ndarray:

@@ -37,6 +37,7 @@ from tunnelred.engine.reduction.loads import (
     balance_load_inputs,
     calibration_from_terms,
     calibration_step,
+    input_correlations,
     net_load_inputs,
     shared_fluctuation,
 )
@@ -71,6 +72,7 @@ __all__ = [
     "air_data_inputs",
     "balance_load_inputs",
     "calibration_from_terms",
+    "input_correlations",
     "spin_rate_inputs",
     "pressure_run_inputs",
     "geometry_inputs",

@@ -141,21 +141,31 @@ def shared_fluctuation(cfg, tunnel, records, inputs: dict) -> dict[tuple[str, st
     for label, _, _, u_record in named:
         u = float(inputs[label].u)
         share.append(u_record / u if u > 0 else 0.0)
-    C = np.eye(len(named))
-    for i in range(len(named)):
-        for j in range(i + 1, len(named)):
+    return input_correlations([label for label, *_ in named], R, share)
+
+
+def input_correlations(names: list[str], R: np.ndarray, share: list[float]) -> dict:
+    """The inputs' correlation coefficients from their records' means' correlation ``R``.
+
+    Each input's coefficient is scaled by ``share``, the part of its u that is its record's
+    scatter. Public so that a test plan (tunnelred.products.plan) scales its own the same way.
+    """
+    n = len(names)
+    C = np.eye(n)
+    for i in range(n):
+        for j in range(i + 1, n):
             C[i, j] = C[j, i] = np.clip(float(R[i, j]) * share[i] * share[j], -1.0, 1.0)
     # dp_flow's share exceeds 1 by the noise part; a matrix so scaled past validity is pulled
     # back toward the identity until it is one (the noise share is a few % at most).
     scale = 1.0
-    while np.linalg.eigvalsh(np.eye(len(named)) + scale * (C - np.eye(len(named))))[0] < 1e-9:
+    while np.linalg.eigvalsh(np.eye(n) + scale * (C - np.eye(n)))[0] < 1e-9:
         scale *= 0.99
     correlation = {}
-    for i in range(len(named)):
-        for j in range(i + 1, len(named)):
+    for i in range(n):
+        for j in range(i + 1, n):
             r = float(C[i, j]) * scale
             if r != 0.0:
-                correlation[(named[i][0], named[j][0])] = r
+                correlation[(names[i], names[j])] = r
     return correlation
 
 

@@ -129,14 +129,19 @@ def _inputs(cfg, point: PlannedPoint, nom: _Planned, noise: NoiseLevels, air_sta
     b = cfg.instruments.balance
     q_rel = 2.0 * noise.turbulence  # q = rho U^2 / 2
     lags_t = _lags(record, point.tunnel_rate)
-    u_dp = _u_of_mean(
-        _ar1(lags_t, (nom.dp * q_rel) ** 2, noise.turbulence_time)
-        + _white(lags_t, noise.pitot_noise**2)
-    )[0]
+    dp_record = _ar1(lags_t, (nom.dp * q_rel) ** 2, noise.turbulence_time) + _white(
+        lags_t, noise.pitot_noise**2
+    )
+    u_dp = float(_u_of_mean(dp_record)[0])
+    # The run's mean flow is the measurand (docs/methods.md): dp's u is the record's white noise
+    # as the reduction estimates it, the flow's unsteadiness goes to dp_flow.
+    u_noise = np.sqrt(series.expected_white_noise_variance(dp_record) / lags_t.size)
+    u_noise = min(float(u_noise), u_dp) if np.isfinite(u_noise) else u_dp
     inputs = reduction.air_data_inputs(
         cfg,
         {
-            "dp": (nom.dp, float(u_dp)),
+            "dp": (nom.dp, u_noise),
+            "dp_flow": (0.0, float(np.sqrt(u_dp**2 - u_noise**2))),
             "T": (air_state.T, 0.0),
             "p_baro": (air_state.p_baro, 0.0),
             "RH": (air_state.RH, 0.0),
@@ -167,23 +172,21 @@ def _inputs(cfg, point: PlannedPoint, nom: _Planned, noise: NoiseLevels, air_sta
     # it, as here, by the share of each input's u that is its own record's.
     turbulence = [_ar1(lags_t, (nom.dp * q_rel) ** 2, noise.turbulence_time)]
     turbulence += list(_ar1(lags_b, (nom.loads * q_rel) ** 2, noise.turbulence_time))
-    whole = [turbulence[0] + _white(lags_t, noise.pitot_noise**2)]
-    whole += list(_load_records(cfg, point, nom, noise, lags_b))
+    whole = [dp_record, *_load_records(cfg, point, nom, noise, lags_b)]
     a = []
     signs = np.sign([nom.dp, *nom.loads])
     for sign, part, record_gamma in zip(signs, turbulence, whole, strict=True):
         total = series.variance_of_the_mean(record_gamma)
-        share = series.variance_of_the_mean(part) / total if total > 0 else 0.0
-        a.append(sign * np.sqrt(min(share, 1.0)))
+        turbulent = series.variance_of_the_mean(part) / total if total > 0 else 0.0
+        a.append(sign * np.sqrt(min(turbulent, 1.0)))
+    # The loads correlate with dp_flow, its share of the dp record's u above 1 by the noise
+    # part, as in the reduction (reduction.input_correlations scales both alike).
+    named = ["dp_flow", *_LOADS]
     own = [u_dp, *u_record]
-    named = ["dp", *_LOADS]
-    correlation = {}
-    for i in range(len(named)):
-        for j in range(i + 1, len(named)):
-            ui, uj = float(inputs[named[i]].u), float(inputs[named[j]].u)
-            r = a[i] * a[j] * own[i] / ui * own[j] / uj if ui > 0 and uj > 0 else 0.0
-            if r != 0.0:
-                correlation[(named[i], named[j])] = float(r)
+    share = [
+        o / float(inputs[n].u) if inputs[n].u > 0 else 0.0 for n, o in zip(named, own, strict=True)
+    ]
+    correlation = reduction.input_correlations(named, np.outer(a, a), share)
     calibration = _calibration(cfg, nom)
     if calibration is not None:
         inputs.update(calibration.inputs)
