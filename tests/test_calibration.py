@@ -209,3 +209,30 @@ def test_coverage_of_the_calibration_uncertainty(tmp_path):
             inside[name] += abs(error) <= 2 * u_cal
     for name, count in inside.items():
         assert 0.92 <= count / draws <= 0.98, (name, count / draws)
+
+
+def test_a_plan_propagates_the_covariance_as_a_run_does(tmp_path):
+    # The plan (tunnelred.products.plan) builds the same calibration input from its predicted
+    # loads: the variance it adds to u(CL), u(CD), u(CM) is g^T J Sigma J^T g (JCGM 100:2008
+    # eq. (13), correlated inputs) with J = dF/dM = the net signals M^-1 F at the plan's nominal
+    # loads and g the plan's own sensitivities to the loads, as for a run above.
+    from tunnelred.products.plan import plan_test
+
+    _, cov = synthetic_fit(MATRIX, sigma=(0.05, 0.2, 0.002))
+    plans = {}
+    for name, given in (("with", cov), ("without", None)):
+        spec = _campaign(tmp_path / name, covariance=given)
+        matrix = tmp_path / f"{name}.csv"
+        matrix.write_text("config,speed_set [m/s],spin_ratio,record [s]\nplates,9,2,2\n")
+        plans[name] = plan_test(tmp_path / name, matrix)
+    with_, without = plans["with"], plans["without"]
+    assert "calibration_coefficients" in set(with_.budgets["input"])
+    budget = without.budgets.set_index(["output", "input"])
+    loads = np.array([budget.loc[("CL", n), "value"] for n in ("Fx", "Fy", "Mz")])
+    jacobian = np.kron(np.eye(3), np.linalg.solve(np.array(spec.matrix), loads))
+    load_cov = jacobian @ cov @ jacobian.T
+    for output in ("CL", "CD", "CM"):
+        g = np.array([budget.loc[(output, n), "sensitivity"] for n in ("Fx", "Fy", "Mz")])
+        added = with_.table[f"u_{output}"].iloc[0] ** 2 - without.table[f"u_{output}"].iloc[0] ** 2
+        assert added == pytest.approx(g @ load_cov @ g, rel=1e-3), output
+        assert added > 0
