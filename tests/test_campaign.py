@@ -138,6 +138,22 @@ def test_process_pool_identical_to_serial(campaign_dir, monkeypatch):
     pd.testing.assert_frame_equal(pooled.budgets, serial.budgets)
 
 
+def test_more_workers_than_runs_start_no_more_processes_than_runs(campaign_dir, monkeypatch):
+    # before: --workers 100000 asked the pool for 99999 processes (and the figures for as
+    # many), which never finished starting on a 4-run campaign
+    started = []
+    real_init = engine._PoolStart.__init__
+
+    def init(self, path, helpers):
+        started.append(helpers)
+        real_init(self, path, min(helpers, 1))  # one process is enough, and old code ends
+
+    monkeypatch.setattr(engine._PoolStart, "__init__", init)
+    result = _reduce(campaign_dir, None, workers=100_000, figures=False)
+    assert result.reduced == len(DATA_RUNS)
+    assert started == [len(DATA_RUNS) - 1]  # this process is the last worker
+
+
 def test_dask_local_cluster_identical_to_serial(campaign_dir):
     pytest.importorskip("distributed")
     serial = _reduce(campaign_dir, None)

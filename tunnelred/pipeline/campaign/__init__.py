@@ -323,7 +323,8 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
             # Started only when there is work for it: this process reduces from the front of
             # the list while the pool's processes start, and the pool is joined when done,
             # so that no half-started process outlives the command.
-            pool = _PoolStart(str(settings.path), settings.workers - 1)
+            # no more processes than runs left (--workers 100000 started that many, for ever)
+            pool = _PoolStart(str(settings.path), min(settings.workers, len(todo)) - 1)
             stream = _run_pool(campaign, pool, todo, mc)
         with contextlib.closing(stream), _blas_one_thread():
             for outcome in stream:

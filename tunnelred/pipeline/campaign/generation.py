@@ -82,7 +82,8 @@ def _write_generation(staging, ds, failures_table, budgets, settings: _Settings)
 @contextlib.contextmanager
 def _figure_helpers(settings: _Settings):
     """(executor, helpers): processes to draw figures beside this one, or (None, 0) for none."""
-    helpers = settings.workers - 1 if settings.dask is None else 0
+    # drawing is CPU-bound: no more helpers than cores (--workers 100000 tried to start them all)
+    helpers = min(settings.workers, os.cpu_count() or 1) - 1 if settings.dask is None else 0
     if helpers < 1:
         yield None, 0
         return
