@@ -192,10 +192,30 @@ _FLOOR_CODE = (
 )
 
 
-def _timed(command: list[str]) -> float:
+def _timed(command: list[str]) -> tuple[float, float]:
+    """Wall time [s] of one whole command, and the peak RSS [MiB] of its largest process.
+
+    The peak comes from wait4's rusage of the command, which covers it and every descendant it
+    (or they) waited for: the pool and dask processes too.
+    """
     started = time.perf_counter()
-    subprocess.run(command, check=True, capture_output=True)
-    return time.perf_counter() - started
+    child = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    stderr = child.stderr.read()
+    _, status, usage = os.wait4(child.pid, 0)
+    wall = time.perf_counter() - started
+    child.returncode = os.waitstatus_to_exitcode(status)
+    if child.returncode != 0:
+        raise subprocess.CalledProcessError(child.returncode, command, stderr=stderr)
+    return wall, usage.ru_maxrss / (1024 if sys.platform != "darwin" else 1024**2)
+
+
+# The reduction alone, figures aside: reduce_campaign without figures, in a whole process.
+_REDUCTION_CODE = (
+    "import sys\n"
+    "from tunnelred.pipeline.campaign import reduce_campaign\n"
+    "reduce_campaign(sys.argv[1], sys.argv[2], workers=1, fresh=True, progress=False, "
+    "figures=False)"
+)
 
 
 def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
@@ -212,6 +232,7 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
     py = sys.executable
     cli = [py, "-m", "tunnelred", "reduce", str(campaign)]
     work = Path(tempfile.mkdtemp(prefix="tunnelred-versus-"))
+
     def commands_of(round_: int) -> dict[str, list[str]]:
         # A new OUT for every fresh reduction: an OUT whose previous generation holds the same
         # results would carry its figures over, and "fresh" would not draw them.
@@ -221,6 +242,7 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
             "naive": [py, str(HERE / "naive_reference.py"), str(campaign), str(work / "naive.csv")],
             "floor": [py, "-c", _FLOOR_CODE, str(campaign)],
             "rerun": [*cli, "-o", out["out1"], "--workers", "1"],
+            "reduction_1": [py, "-c", _REDUCTION_CODE, str(campaign), str(work / f"outr_{round_}")],
         }
         if parallel:
             commands["tunnelred_2"] = [*cli, "-o", out["out2"], "--fresh", "--workers", "2"]
@@ -230,11 +252,14 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
         return commands
 
     times: dict[str, list[float]] = {name: [] for name in commands_of(0)}
+    rss: dict[str, list[float]] = {name: [] for name in commands_of(0)}
     load = [os.getloadavg()[0]]
     for round_ in range(rounds):
         for name, command in commands_of(round_).items():
-            times[name].append(_timed(command))
-            print(f"  {name}: {times[name][-1]:.2f} s", file=sys.stderr, flush=True)
+            wall, peak = _timed(command)
+            times[name].append(wall)
+            rss[name].append(peak)
+            print(f"  {name}: {wall:.2f} s, {peak:.0f} MiB", file=sys.stderr, flush=True)
         load.append(os.getloadavg()[0])
     median = {name: statistics.median(v) for name, v in times.items()}
     record = {
@@ -244,9 +269,11 @@ def _versus(campaign: Path, rounds: int, parallel: bool) -> dict:
         "rounds": rounds,
         "times": times,
         "median": median,
+        "rss_peak_mib": {name: max(v) for name, v in rss.items()},
         "load_average_1min": load,
         "tunnelred_over_naive": median["tunnelred_1"] / median["naive"],
         "tunnelred_over_floor": median["tunnelred_1"] / median["floor"],
+        "reduction_over_floor": median["reduction_1"] / median["floor"],
         "rerun_fraction": median["rerun"] / median["tunnelred_1"],
         "agreement": _agreement(work / "out1_0", work / "naive.csv"),
     }
@@ -281,6 +308,8 @@ def _print_versus(r: dict) -> None:
           f"tunnelred / naive = {r['tunnelred_over_naive']:.2f}")  # fmt: skip
     print(f"  pyarrow parse of every log            {m['floor']:8.2f} s   "
           f"tunnelred / floor = {r['tunnelred_over_floor']:.1f}")  # fmt: skip
+    print(f"  reduction alone (no figures), 1 worker {m['reduction_1']:7.2f} s   "
+          f"reduction / floor = {r['reduction_over_floor']:.2f}")  # fmt: skip
     print(f"  unchanged re-run                      {m['rerun']:8.2f} s   "
           f"{r['rerun_fraction']:.1%} of fresh")  # fmt: skip
     if "speedup_2_workers" in r:
@@ -292,6 +321,8 @@ def _print_versus(r: dict) -> None:
         print(
             f"  {name}: naive vs tunnelred median |rel diff| {a['median']:.2e}, max {a['max']:.2e}"
         )
+    print("  peak RSS of the largest process [MiB]: "
+          + ", ".join(f"{k} {v:.0f}" for k, v in r["rss_peak_mib"].items()))  # fmt: skip
     print(
         f"  1-minute load average during: {', '.join(f'{x:.1f}' for x in r['load_average_1min'])}"
     )

@@ -275,6 +275,15 @@ def _pass_index(
     consecutive samples, numbered in one scan; otherwise np.unique groups them.
     """
     key = revolution * bins + b
+    if key.ndim == 2:
+        # Whole series, one a row: steps are taken within rows, so no sample pairs across series.
+        step = np.diff(key, axis=1)
+        if step.size == 0 or not (step.max() > 0 and step.min() < 0):
+            starts = np.ones(key.shape, dtype=bool)
+            np.not_equal(step, 0, out=starts[:, 1:])
+            starts = starts.reshape(-1)
+            return np.cumsum(starts) - 1, b.reshape(-1)[starts]
+        key, series, revolution, b = (a.reshape(-1) for a in (key, series, revolution, b))
     step = np.diff(key)
     same_series = series[1:] == series[:-1]
     monotone = not (np.any(step[same_series] > 0) and np.any(step[same_series] < 0))
@@ -410,31 +419,43 @@ def bin_cp(
     n = theta.shape[-1] if theta.ndim else 1
     n_series = theta.size // n if n else 0
     series = np.broadcast_to(np.arange(n_series).reshape(theta.shape[:-1] + (1,)), theta.shape)
-    keep = np.isfinite(theta) & np.isfinite(cp)
-    if keep.all():  # flat views, no copies
-        theta, cp, revolution, series = (a.reshape(-1) for a in (theta, cp, revolution, series))
+    whole = bool(theta.size and np.isfinite(theta).all() and np.isfinite(cp).all())
+    if whole:
+        # Every sample kept: series stay whole rows (n_series, n), views, no copies.
+        theta, cp, revolution, series = (
+            a.reshape(n_series, n) for a in (theta, cp, revolution, series)
+        )
     else:
+        keep = np.isfinite(theta) & np.isfinite(cp)
         theta, cp, revolution, series = theta[keep], cp[keep], revolution[keep], series[keep]
 
     width = 360.0 / bins
+    centres = (np.arange(bins) + 0.5) * width
     wrapped = np.mod(theta, 360.0)
     b = np.minimum((wrapped / width).astype(np.int64), bins - 1)
-    count = np.bincount(b, minlength=bins)
+    flat_b, flat_cp = b.reshape(-1), cp.reshape(-1)
+    count = np.bincount(flat_b, minlength=bins)
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.bincount(b, weights=cp, minlength=bins) / count
+        mean = np.bincount(flat_b, weights=flat_cp, minlength=bins) / count
         # Two passes (mean first, then squared departures) to keep the variance accurate when the
         # mean is large against the scatter.
-        squares = np.bincount(b, weights=(cp - mean[b]) ** 2, minlength=bins)
+        departure = flat_cp - mean[flat_b]
+        squares = np.bincount(flat_b, weights=departure * departure, minlength=bins)
         std = np.sqrt(squares / (count - 1))
-        from_centre = wrapped - (b + 0.5) * width
-        offset = np.bincount(b, weights=from_centre, minlength=bins) / count
-        mean_square_offset = np.bincount(b, weights=from_centre**2, minlength=bins) / count
+        from_centre = wrapped.reshape(-1) - centres[flat_b]
+        offset = np.bincount(flat_b, weights=from_centre, minlength=bins) / count
+        np.multiply(from_centre, from_centre, out=from_centre)
+        mean_square_offset = np.bincount(flat_b, weights=from_centre, minlength=bins) / count
     std[count < 2] = np.nan
-    series_count = np.bincount(series * bins + b, minlength=max(n_series, 1) * bins)
+    if whole:
+        series_count = np.stack([np.bincount(row, minlength=bins) for row in b])
+    else:
+        series_count = np.bincount(series * bins + b, minlength=max(n_series, 1) * bins)
     series_count = series_count.reshape(-1, bins)[: max(n_series, 1)]
 
     if cp.size:
         which, pass_bin = _pass_index(series, revolution, b, bins)
+        cp = flat_cp
     else:
         which, pass_bin = np.zeros(0, np.int64), np.zeros(0, np.int64)
     pass_mean = np.bincount(which, weights=cp) / np.bincount(which)
