@@ -110,8 +110,9 @@ def _pressure_inputs(
     revolutions = abs(omega_mean) * (t[-1] - t[0]) / (2 * np.pi)
     # Each tap's bin means, all taps in one bincount: the dead-tap test needs no more.
     width = 360.0 / bins
-    cells = np.minimum((np.mod(thetas, 360.0) // width).astype(int), bins - 1)
-    cells += np.arange(len(names))[:, None] * bins
+    wrapped = np.mod(thetas, 360.0)
+    tap_bins = np.minimum((wrapped // width).astype(int), bins - 1)
+    cells = tap_bins + np.arange(len(names))[:, None] * bins
     size = len(names) * bins
     sums = np.bincount(cells.ravel(), weights=(readings / q_mean).ravel(), minlength=size)
     counts = np.bincount(cells.ravel(), minlength=size)
@@ -121,7 +122,7 @@ def _pressure_inputs(
     u_per_tap = None
     if spinning:
         per_tap, u_per_tap = _tap_comparison(
-            cfg, thetas, cells, counts, per_tap, q_mean, omega_mean
+            cfg, wrapped, tap_bins, cells, counts, per_tap, q_mean, omega_mean
         )
     dead = pressure.find_dead_taps(names, per_tap, tolerance=tolerances.dead_tap, u=u_per_tap)
     measures["dead_taps"] = dead
@@ -131,7 +132,9 @@ def _pressure_inputs(
     grid = (np.arange(bins) + 0.5) * width
     if spinning:
         measures["revolutions"] = revolutions
-        binned = pressure.bin_cp(thetas[keep], readings[keep], bins=bins, revolution=turns[keep])
+        if len(keep) < len(names):
+            thetas, readings, turns = thetas[keep], readings[keep], turns[keep]
+        binned = pressure.bin_cp(thetas, readings, bins=bins, revolution=turns)
         # A bin seen on a single pass has no between-revolution scatter to judge it by.
         filled = np.flatnonzero((binned.count > 0) & np.isfinite(binned.u_mean))
         mean = binned.mean[filled]
@@ -168,7 +171,9 @@ def _pressure_inputs(
     return points, sorted(dead)
 
 
-def _tap_comparison(cfg, thetas, cells, counts, per_tap, q_mean: float, omega_mean: float):
+def _tap_comparison(
+    cfg, wrapped, tap_bins, cells, counts, per_tap, q_mean: float, omega_mean: float
+):
     """Each tap's bin means at the bin centres, and their u from the tap's own errors.
 
     The taps' bin means are compared with each other (pressure.find_dead_taps). Each tap leaves
@@ -179,11 +184,13 @@ def _tap_comparison(cfg, thetas, cells, counts, per_tap, q_mean: float, omega_me
     """
     bins = per_tap.shape[1]
     width = 360.0 / bins
-    from_centre = np.mod(thetas, 360.0) - (np.mod(cells, bins) + 0.5) * width
+    # wrapped: the taps' azimuths in [0, 360); tap_bins: their bins (cells less tap × bins).
+    from_centre = (wrapped - ((np.arange(bins) + 0.5) * width)[tap_bins]).ravel()
     size = per_tap.size
+    cells = cells.ravel()
     with np.errstate(invalid="ignore", divide="ignore"):
-        offset = np.bincount(cells.ravel(), from_centre.ravel(), size) / counts
-        square = np.bincount(cells.ravel(), (from_centre**2).ravel(), size) / counts
+        offset = np.bincount(cells, from_centre, size) / counts
+        square = np.bincount(cells, from_centre * from_centre, size) / counts
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # a bin no tap saw
         reference = np.nanmedian(per_tap, axis=0)
