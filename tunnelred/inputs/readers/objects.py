@@ -83,6 +83,12 @@ class FileHashes(Mapping):
     def _set(self, rel: str, sha: str) -> None:
         self._known[rel] = sha
 
+    def offer(self, rel: str, sha: str) -> None:
+        """Keep ``sha``, computed elsewhere from the file's bytes (a worker's parse), unless a
+        hash of ``rel`` is known here already."""
+        if rel in self._files and rel not in self._known and sha:
+            self._known[rel] = sha
+
     def __getitem__(self, rel: str) -> str:
         if rel not in self._known:
             if rel not in self._files:

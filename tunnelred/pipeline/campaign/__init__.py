@@ -18,6 +18,7 @@ import dataclasses
 import hashlib
 import json
 import os
+import secrets
 import sys
 import time
 from dataclasses import dataclass
@@ -266,37 +267,75 @@ class _Settings:
 
 @dataclass
 class _Plan:
-    """The runs of one reduction: those that failed already and the cache key of the others."""
+    """The runs of one reduction: those that failed already and the cache key of the others.
+
+    A key is None until it is needed (:func:`_known_keys`, :func:`_key_of`).
+    """
 
     selected: list[str]
     unreadable: list[str]
     failures: dict[str, list[dict]]
-    keys: dict[str, str]
+    keys: dict[str, str | None]
+    rows: dict[str, str] = dataclasses.field(default_factory=dict)  # row records made so far
 
 
 def _plan(campaign, settings: _Settings) -> _Plan:
-    """Runs with input problems fail at once; every other selected run gets its cache key."""
+    """Runs with input problems fail at once; every other selected run is to be reduced."""
     selected = _select(campaign, settings.run_ids)
     failures: dict[str, list[dict]] = {}
     # A row too broken to say its kind may be a data run: it is listed with the failures.
     unreadable = list(campaign.unreadable_runs) if settings.run_ids is None else []
     for rid in unreadable:
         failures[rid] = [_problem_row(rid, p) for p in campaign.run_problems(rid)]
-    keys: dict[str, str] = {}
-    rows: dict[str, str] = {}
+    keys: dict[str, str | None] = {}
     for rid in selected:
         problems = campaign.run_problems(rid)
         if problems:
             failures[rid] = [_problem_row(rid, p) for p in problems]
         else:
-            keys[rid] = _key(campaign, rid, settings.monte_carlo, rows)
+            keys[rid] = None
     return _Plan(selected, unreadable, failures, keys)
+
+
+def _known_keys(campaign, plan: _Plan, cache: Path | None, settings: _Settings) -> None:
+    """Every run's cache key now, when something is to be looked up by it before reducing.
+
+    That is a cache holding entries that may answer, or a dask scheduler whose long-lived workers
+    tell a changed campaign by a hash of every input. Otherwise (a fresh reduction, an empty
+    cache, no OUT) each key waits for its run's outcome (:func:`_key_of`): the logs are then
+    hashed from the very bytes the reduction parsed, and read once instead of twice.
+    """
+    remote = settings.dask not in (None, "local")
+    if not (remote or (cache is not None and not settings.fresh and _has_entries(cache))):
+        return
+    for rid in plan.keys:
+        plan.keys[rid] = _key(campaign, rid, settings.monte_carlo, plan.rows)
+
+
+def _has_entries(cache: Path) -> bool:
+    try:
+        with os.scandir(cache) as entries:
+            return any(True for _ in entries)
+    except OSError:
+        return False
+
+
+def _key_of(campaign, plan: _Plan, outcome: _Outcome, monte_carlo: int) -> str:
+    """A run's cache key once it is reduced, from the file hashes its reduction computed."""
+    key = plan.keys[outcome.run]
+    if key is None:
+        for rel, sha in (outcome.result.inputs if outcome.result is not None else {}).items():
+            campaign.file_hashes.offer(rel, sha)  # a worker's parse hashed it; this process did not
+        key = plan.keys[outcome.run] = _key(campaign, outcome.run, monte_carlo, plan.rows)
+    return key
 
 
 def _cached_outcomes(plan: _Plan, cache: Path | None, settings: _Settings) -> dict[str, _Outcome]:
     outcomes: dict[str, _Outcome] = {}
     if cache is not None and not settings.fresh:
         for rid, key in plan.keys.items():
+            if key is None:
+                continue
             hit = _cache_read(cache, key, rid)
             if hit is not None:
                 outcomes[rid] = hit
@@ -315,7 +354,9 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
             # Workers open the campaign afresh, as `reduce` does: they would not know.
             stream = _run_serial(campaign, todo, mc)
         elif settings.dask is not None:
-            token = _token(campaign, plan.keys)
+            # A local cluster lives for this reduction only: any token is its own.
+            local = settings.dask == "local"
+            token = secrets.token_hex(8) if local else _token(campaign, plan.keys)
             stream = _run_dask(str(settings.path), token, todo, mc, settings.workers, settings.dask)
         elif settings.workers == 1 or len(todo) <= 1:
             stream = _run_serial(campaign, todo, mc)
@@ -331,7 +372,7 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
                 outcomes[outcome.run] = outcome
                 if caching and outcome.cacheable:
                     try:
-                        _cache_write(cache, plan.keys[outcome.run], outcome)
+                        _cache_write(cache, _key_of(campaign, plan, outcome, mc), outcome)
                     except OSError:
                         caching = False  # a full disk: reduce on; the results say so later
                 bar.update(1)
@@ -341,6 +382,7 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
 
 def _reduce(campaign, plan: _Plan, folder, settings: _Settings, started: float, extras):
     cache = folder.inside(folder.cache) if folder is not None else None
+    _known_keys(campaign, plan, cache, settings)
     outcomes = _cached_outcomes(plan, cache, settings)
     from_cache = sum(1 for o in outcomes.values() if o.result is not None)
     _reduce_pending(campaign, plan, cache, settings, outcomes)
@@ -369,7 +411,8 @@ def _reduce(campaign, plan: _Plan, folder, settings: _Settings, started: float, 
                 written.update(extras(staging, ds) or {})
         outputs = {name: folder.root / name for name in written}
         if settings.run_ids is None:
-            _cache_prune(cache, set(plan.keys.values()))
+            # A key not made (caching stopped on a full disk) keeps no entry either.
+            _cache_prune(cache, {key for key in plan.keys.values() if key is not None})
     return CampaignResults(
         dataset=ds,
         failures=failures_table,
