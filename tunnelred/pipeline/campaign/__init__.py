@@ -43,6 +43,7 @@ from tunnelred.pipeline.campaign.cache import (  # noqa: F401  (names tests and 
 from tunnelred.pipeline.campaign.executors import (  # noqa: F401
     _DASK_HINT,
     _check_scheduler,
+    _DaskStart,
     _distributed,
     _pool_context,
     _PoolStart,
@@ -235,18 +236,24 @@ def reduce_campaign(
         report=report,
         provisional=provisional,
     )
-    campaign = open_campaign(path, check_logs=False, closing_zero_pending=provisional)
-    shared = campaign.shared_problems()
-    if shared:
-        # every run would fail with these same problems: stop once, before OUT is touched
-        raise InputError(shared)
-    plan = _plan(campaign, settings)  # an unknown run id is refused before OUT is touched
-    folder = out if held or out is None else open_results_folder(out, path, force=force)
+    # The cluster starts while the campaign opens (provisional runs are reduced here).
+    dask_start = _DaskStart(dask, settings.workers) if dask and not provisional else None
     try:
-        return _reduce(campaign, plan, folder, settings, started, extras)
+        campaign = open_campaign(path, check_logs=False, closing_zero_pending=provisional)
+        shared = campaign.shared_problems()
+        if shared:
+            # every run would fail with these same problems: stop once, before OUT is touched
+            raise InputError(shared)
+        plan = _plan(campaign, settings)  # an unknown run id is refused before OUT is touched
+        folder = out if held or out is None else open_results_folder(out, path, force=force)
+        try:
+            return _reduce(campaign, plan, folder, settings, started, extras, dask_start)
+        finally:
+            if folder is not None and not held:
+                folder.close()
     finally:
-        if folder is not None and not held:
-            folder.close()
+        if dask_start is not None:
+            dask_start.close()
 
 
 @dataclass(frozen=True)
@@ -342,7 +349,9 @@ def _cached_outcomes(plan: _Plan, cache: Path | None, settings: _Settings) -> di
     return outcomes
 
 
-def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes: dict) -> None:
+def _reduce_pending(
+    campaign, plan: _Plan, cache, settings: _Settings, outcomes: dict, dask_start=None
+) -> None:
     """Reduce the runs the cache did not answer, on the executor asked for, caching each."""
     todo = [rid for rid in plan.keys if rid not in outcomes]
     mc = settings.monte_carlo
@@ -357,7 +366,9 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
             # A local cluster lives for this reduction only: any token is its own.
             local = settings.dask == "local"
             token = secrets.token_hex(8) if local else _token(campaign, plan.keys)
-            stream = _run_dask(str(settings.path), token, todo, mc, settings.workers, settings.dask)
+            stream = _run_dask(
+                str(settings.path), token, todo, mc, settings.workers, settings.dask, dask_start
+            )
         elif settings.workers == 1 or len(todo) <= 1:
             stream = _run_serial(campaign, todo, mc)
         else:
@@ -380,12 +391,14 @@ def _reduce_pending(campaign, plan: _Plan, cache, settings: _Settings, outcomes:
         bar.close()
 
 
-def _reduce(campaign, plan: _Plan, folder, settings: _Settings, started: float, extras):
+def _reduce(
+    campaign, plan: _Plan, folder, settings: _Settings, started: float, extras, dask_start=None
+):
     cache = folder.inside(folder.cache) if folder is not None else None
     _known_keys(campaign, plan, cache, settings)
     outcomes = _cached_outcomes(plan, cache, settings)
     from_cache = sum(1 for o in outcomes.values() if o.result is not None)
-    _reduce_pending(campaign, plan, cache, settings, outcomes)
+    _reduce_pending(campaign, plan, cache, settings, outcomes, dask_start)
 
     failures = plan.failures
     results = []

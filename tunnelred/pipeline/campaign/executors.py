@@ -292,22 +292,74 @@ def _dask_client(dask: str, workers: int):
         ) from None
 
 
-def _run_dask(path, token, run_ids, monte_carlo, workers, dask):
+class _DaskStart:
+    """A dask client (and its local cluster), started in a thread while the campaign opens.
+
+    A local cluster's worker processes take seconds to start and import tunnelred; started at
+    once, that overlaps opening the campaign and planning. :meth:`take` hands the client over
+    (:func:`_run_dask` closes it); :meth:`close` closes one never taken.
+    """
+
+    def __init__(self, dask: str, workers: int):
+        self._made = None
+        self._error: BaseException | None = None
+        self._taken = False
+        self._thread = threading.Thread(target=self._start, args=(dask, workers), daemon=True)
+        self._thread.start()
+
+    def _start(self, dask: str, workers: int) -> None:
+        try:
+            self._made = _dask_client(dask, workers)
+        except BaseException as exc:  # raised again in the caller's thread, by take()
+            self._error = exc
+
+    def take(self):
+        self._thread.join()
+        if self._error is not None:
+            raise self._error
+        self._taken = True
+        return self._made
+
+    def close(self) -> None:
+        self._thread.join()
+        if self._made is not None and not self._taken:
+            client, cluster = self._made
+            client.close()
+            if cluster is not None:
+                cluster.close()
+
+
+def _dask_chunks(run_ids, workers: int) -> list[list[str]]:
+    """Runs in contiguous chunks, about four a worker: fewer round trips to the scheduler than
+    one task a run, and still enough tasks to keep every worker busy to the end."""
+    run_ids = list(run_ids)
+    size = max(1, -(-len(run_ids) // (4 * max(1, workers))))
+    return [run_ids[i : i + size] for i in range(0, len(run_ids), size)]
+
+
+def _run_dask(path, token, run_ids, monte_carlo, workers, dask, start: _DaskStart | None = None):
     from distributed import as_completed
 
-    client, cluster = _dask_client(dask, workers)
+    client, cluster = start.take() if start is not None else _dask_client(dask, workers)
     futures = []
     try:
+        chunks = _dask_chunks(run_ids, workers)
         futures = [
-            client.submit(_dask_task, path, token, rid, monte_carlo, pure=False) for rid in run_ids
+            client.submit(_dask_task, path, token, chunk, monte_carlo, pure=False)
+            for chunk in chunks
         ]
-        names = {future.key: rid for future, rid in zip(futures, run_ids, strict=True)}
+        names = {future.key: chunk for future, chunk in zip(futures, chunks, strict=True)}
         for future in as_completed(futures):
-            run_id = names[future.key]
+            chunk = names[future.key]
             try:
-                yield future.result()
+                outcomes = future.result()
             except Exception as exc:
-                yield _Outcome(run_id, failures=[_internal_row(run_id, exc)], cacheable=False)
+                # The worker died or the outcomes did not come back: the chunk's runs fail.
+                outcomes = [
+                    _Outcome(rid, failures=[_internal_row(rid, exc)], cacheable=False)
+                    for rid in chunk
+                ]
+            yield from outcomes
     finally:
         client.cancel(futures)
         client.close()

@@ -87,10 +87,11 @@ def _worker(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
     return _open_and_reduce(path, token, run_id, monte_carlo)
 
 
-def _dask_task(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
-    """A dask worker's task: the worker may serve others, so the BLAS limit is for this run."""
+def _dask_task(path: str, token: str, run_ids: list[str], monte_carlo: int) -> list[_Outcome]:
+    """A dask worker's task, a chunk of runs: the worker may serve others, so the BLAS limit is
+    for these runs only."""
     with _blas_one_thread():
-        return _open_and_reduce(path, token, run_id, monte_carlo)
+        return [_open_and_reduce(path, token, run_id, monte_carlo) for run_id in run_ids]
 
 
 def _open_and_reduce(path: str, token: str, run_id: str, monte_carlo: int) -> _Outcome:
