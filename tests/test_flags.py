@@ -2,7 +2,7 @@
 
 One small synthetic campaign (tunnelred.demo; one configuration, three speeds, spin ratios 0 to 4,
 short wind-off records) plants each fault kind of FAULT_KINDS in its own up-sweep run; every faulty
-run is followed by a clean retake at its set point, and the rest of the sweep, a down-sweep point
+run is followed by two clean retakes at its set point, and the rest of the sweep, a down-sweep point
 per speed and one repeat are clean as well. The campaign is written and reduced once for the module
 (tunnelred.pipeline.campaign.reduce_campaign, two worker processes). Each planted run must raise its
 own flag and, besides it, only the flags its fault makes inevitable; its reason must quote the value
@@ -68,8 +68,8 @@ RELATED = {
     # The interpolated zero of the faulty run carries about half the step (it lies midway
     # between its zeros): 0.3 % of the 120 N Fy full scale is 0.36 N, on q d b ≈ 2.0 N at 6 m/s
     # a CL bias of ≈ 0.18, about 3 × the combined u of two runs, which the repeat check sees
-    # against the down-sweep run at the same set point (its clean retake uses shifted zeros on
-    # both sides and is unbiased).
+    # against the two clean retakes in the same sweep (they use shifted zeros on both sides and
+    # are unbiased).
     "zero_shift": {"repeat_disagreement"},
 }
 
@@ -81,8 +81,10 @@ def flag_spec(seed: int = 11) -> SynthSpec:
         configurations=demo.configurations[:1],
         speeds=(6.0, 9.0, 12.0),
         spin_ratios_up=(0.0, 1.0, 2.0, 3.0, 4.0),
-        # A third run at the zero-shift and pitot-offset set points, so that the repeat check
-        # can tell the biased run from its clean retake (a pair cannot say which one is wrong).
+        # Two clean retakes of every faulty run: the repeat check compares runs of one sweep
+        # direction, and among three it names the biased run (a pair cannot say which one is
+        # wrong). The down-sweep point and the repeat lie in other legs and must stay unflagged.
+        retakes=2,
         spin_ratios_down=(2.0,),
         repeat_point=(CONFIG, 9.0, 0.0),
         repeat_count=1,
@@ -374,4 +376,4 @@ def test_pressure_faults_keep_a_clean_pressure_retake(campaign):
     for flag in ("dead_tap", "few_revolutions", "cl_disagreement", "stagnation_cp"):
         run = _planted(truth, flag)
         retake = runs.index[runs["notes"].str.endswith(f"retake of {run}")]
-        assert len(retake) == 1 and runs.loc[retake[0], "pressure_log"] != ""
+        assert len(retake) == 2 and (runs.loc[retake, "pressure_log"] != "").all()

@@ -121,8 +121,8 @@ class Fault:
     -----
     Every faulty run is followed by a clean retake at the same set point. A fault that biases
     the coefficients (``zero_shift``, ``repeat_disagreement``) makes the faulty run disagree with
-    that retake; give the set point a third run (a down-sweep point or a repeat) so that the
-    repeat check can tell which one is wrong.
+    that retake; give it a second retake (``SynthSpec.retakes = 2``) so that the repeat check,
+    which compares runs of one sweep direction, can tell which one is wrong.
 
     Examples
     --------
@@ -200,6 +200,10 @@ class SynthSpec:
         (config, speed [m/s], spin ratio [-]) of the repeat runs, taken at the end of that block.
     repeat_count : int
         How many repeat runs.
+    retakes : int
+        Clean retakes after each faulty run, at its set point in the same sweep (at least 1).
+        The repeat check compares runs of one sweep direction only; with two retakes it can
+        tell a biased faulty run from them, while a pair cannot say which one is wrong.
     tare_rpms : tuple of float
         Spin rates of the spin-tare runs of each configuration. [rpm]
     rpm_step : float
@@ -322,6 +326,7 @@ class SynthSpec:
     pressure_spin_ratios: tuple[float, ...] = (0.0, 1.0, 2.0, 3.0, 4.0)
     repeat_point: tuple[str, float, float] | None = ("plates", 9.0, 2.0)
     repeat_count: int = 2
+    retakes: int = 1
     tare_rpms: tuple[float, ...] = (400.0, 1000.0, 2000.0, 3000.0, 4000.0, 5000.0, 6000.0, 7500.0)
     rpm_step: float = 5.0
     data_duration: float = 4.0
@@ -463,6 +468,8 @@ def _close(a: float, b: float) -> bool:
 
 def schedule(spec: SynthSpec) -> list[ScheduledRun]:
     """Every run in time order, with its zero and tare runs named."""
+    if spec.retakes < 1:
+        raise ValueError(f"a faulty run needs at least one clean retake; retakes = {spec.retakes}")
     runs: list[ScheduledRun] = []
     counters = {"zero": 0, "tare": 0, "data": 0}
     prefix = {"zero": "Z", "tare": "T", "data": "R"}
@@ -522,7 +529,8 @@ def schedule(spec: SynthSpec) -> list[ScheduledRun]:
                 if fault is not None:
                     if fault.kind == "zero_shift":
                         zero()
-                    add("data", notes=f"{text}, retake of {first.run}", leg=leg, **common)
+                    for _ in range(spec.retakes):
+                        add("data", notes=f"{text}, retake of {first.run}", leg=leg, **common)
             zero()
     if faults:
         raise ValueError(f"faults match no up-sweep run: {faults}")
