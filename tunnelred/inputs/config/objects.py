@@ -24,6 +24,9 @@ MAX_CP_BINS = 3600
 
 @dataclass(frozen=True)
 class CampaignInfo:
+    """campaign.toml's [campaign] table: the title and facility the report's first page names,
+    with an optional date and free-text notes (docs/input-format.md)."""
+
     title: str
     facility: str
     date: str = ""

@@ -1,5 +1,10 @@
 """Coefficient figures: a coefficient against the spin ratio with k = 2 bars and its sweep legs
 joined, the drag polar, pressure lift against balance lift, and the comparison of groups of runs.
+
+Every figure function takes ``results`` (an xarray.Dataset, CampaignResults or the path of a
+results folder or results.nc, read by :func:`results_dataset`) and ``ax`` (the
+matplotlib.axes.Axes to draw on; a new Figure's Axes when None), and returns the Axes drawn on;
+``by`` groups the runs (:func:`group_runs`). Their docstrings list only what differs.
 """
 
 from __future__ import annotations
@@ -259,13 +264,6 @@ def plot_coefficient(
 def plot_drag_polar(results, *, ax: Axes | None = None, by: str = "series") -> Axes:
     """The drag polar: CL against CD, each run with k = 2 bars in both, sweeps joined.
 
-    Parameters
-    ----------
-    results : xarray.Dataset, CampaignResults or path-like
-    ax : matplotlib.axes.Axes, optional
-    by : str
-        Grouping of the runs (:func:`group_runs`).
-
     Returns
     -------
     matplotlib.axes.Axes
@@ -286,13 +284,7 @@ def plot_drag_polar(results, *, ax: Axes | None = None, by: str = "series") -> A
 def plot_pressure_lift(results, *, ax: Axes | None = None, by: str = "series") -> Axes:
     """CL from ∮Cp (mid-span pressure) against CL from the balance, with the line of equality.
 
-    Parameters
-    ----------
-    results : xarray.Dataset, CampaignResults or path-like
-        Results with ``CL`` and ``CL_p``.
-    ax : matplotlib.axes.Axes, optional
-    by : str
-        Grouping of the runs (:func:`group_runs`).
+    The results need ``CL`` and ``CL_p``.
 
     Returns
     -------
@@ -328,18 +320,10 @@ def plot_comparison(
 
     Parameters
     ----------
-    results : xarray.Dataset, CampaignResults or path-like
-        Campaign results.
     name : str
         The coefficient against α (as :func:`plot_coefficient`).
     by : str
         ``"config"``, ``"speed"`` or ``"re"``: one colour per group.
-    ax : matplotlib.axes.Axes, optional
-        Where to draw; a new one when None.
-
-    Returns
-    -------
-    matplotlib.axes.Axes
 
     Notes
     -----

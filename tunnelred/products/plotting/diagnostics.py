@@ -207,11 +207,7 @@ def plot_steadiness(
         The limit drawn, in the measure's own unit (a fraction, or K); default: the campaign's
         ``[reduction.tolerances]`` value recorded in the results, else the documented default.
     ax : matplotlib.axes.Axes, optional
-        Where to draw; a new one when None.
-
-    Returns
-    -------
-    matplotlib.axes.Axes
+        Where to draw; a new one when None. Returns the Axes drawn on.
 
     Notes
     -----
