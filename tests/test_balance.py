@@ -455,3 +455,17 @@ def test_overload_fraction_worked_by_hand():
 def test_overload_needs_positive_full_scale():
     with pytest.raises(ValueError, match="positive"):
         overload_fraction([[1.0, 1.0, 1.0]], [100.0, 0.0, 2.0])
+
+
+def test_curvature_at_points_is_exact_for_a_parabola():
+    # The second divided difference is exact for a quadratic (Burden & Faires, Numerical
+    # Analysis, §3.3, from memory): y = 3x² − x + 2 on uneven points has |y''| = 6 at every
+    # inner point, NaN at both ends; two curves side by side are handled column by column.
+    from tunnelred.physics.interpolation import curvature_at_points
+
+    x = np.array([0.0, 0.4, 1.5, 2.0, 3.7])
+    y = np.column_stack([3 * x**2 - x + 2, -0.5 * x**2])
+    kappa = curvature_at_points(x, y)
+    assert np.isnan(kappa[[0, -1]]).all()
+    np.testing.assert_allclose(kappa[1:-1], [[6.0, 1.0]] * 3, rtol=1e-12)
+    assert np.isnan(curvature_at_points([0.0, 1.0], [1.0, 2.0])).all()  # no inner point

@@ -21,6 +21,7 @@ import numpy as np
 import numpy.typing as npt
 
 from tunnelred.common._arraylike import ArrayLike, Values, arraylike
+from tunnelred.physics.interpolation import curvature_at_points
 
 __all__ = [
     "TareRangeError",
@@ -487,13 +488,13 @@ def tare_interpolation_error(
     Notes
     -----
     A straight line between two tare rates misses the curve by ½ T''(ξ) (ω − ω₁)(ω₂ − ω), the
-    remainder of linear interpolation (R. L. Burden and J. D. Faires, *Numerical Analysis*,
-    Theorem 3.3, from memory). |T''| is taken as the larger of the second divided differences
-    2 T[ω₀, ω₁, ω₂] at the segment's two ends (the one end that has a neighbour on each side at
-    the first and last segments), and the remainder as a standard uncertainty: exact for a tare
-    quadratic in ω (windage, spin-induced forces), and, from the tare runs' own scatter, more
-    than the curvature where the tares lie closer than their noise resolves. Beyond the tare
-    range the nearest segment's line is extended and |(ω − ω₁)(ω₂ − ω)| grows with the distance.
+    remainder of linear interpolation (:mod:`tunnelred.physics.interpolation`). |T''| is taken as
+    the larger of the second divided differences 2 T[ω₀, ω₁, ω₂] at the segment's two ends (the one
+    end that has a neighbour on each side at the first and last segments), and the remainder as a
+    standard uncertainty: exact for a tare quadratic in ω (windage, spin-induced forces), and, from
+    the tare runs' own scatter, more than the curvature where the tares lie closer than their noise
+    resolves. Beyond the tare range the nearest segment's line is extended and |(ω − ω₁)(ω₂ − ω)|
+    grows with the distance.
 
     Examples
     --------
@@ -507,11 +508,7 @@ def tare_interpolation_error(
     )
     if rates.size < 3:
         return np.zeros(3)
-    h = np.diff(rates)
-    slopes = np.diff(means, axis=0) / h[:, None]
-    inner = np.abs(2.0 * np.diff(slopes, axis=0) / (h[:-1] + h[1:])[:, None])
-    curvature = np.full((rates.size, 3), np.nan)
-    curvature[1:-1] = inner
+    curvature = curvature_at_points(rates, means)
     lower = int(np.clip(np.searchsorted(rates, spin_rate, side="right") - 1, 0, rates.size - 2))
     kappa = np.fmax(curvature[lower], curvature[lower + 1])
     spread = abs((spin_rate - rates[lower]) * (rates[lower + 1] - spin_rate))

@@ -19,6 +19,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from tunnelred.physics.interpolation import curvature_at_points
 from tunnelred.products.compare.sweeps import Sweep, gap_limit, point_alpha
 from tunnelred.products.plotting import COVERAGE_FACTOR
 
@@ -249,20 +250,6 @@ def point_runs(sweep: Sweep, P: np.ndarray) -> list[frozenset[str]]:
     return [frozenset(sweep.runs[j] for j in np.flatnonzero(row)) for row in P]
 
 
-def _curvature_at_points(pa: np.ndarray, pv: np.ndarray) -> np.ndarray:
-    """|C''| at each inner point from the second divided difference; NaN at the two ends.
-
-    C'' ≈ 2 C[α₀, α₁, α₂] = 2 ((C₂ − C₁)/h₂ − (C₁ − C₀)/h₁)/(h₁ + h₂) (Newton's divided
-    differences, exact for a parabola through the three points).
-    """
-    kappa = np.full(pa.size, np.nan)
-    if pa.size >= 3:
-        h1, h2 = np.diff(pa)[:-1], np.diff(pa)[1:]
-        slopes = np.diff(pv) / np.diff(pa)
-        kappa[1:-1] = np.abs(2.0 * np.diff(slopes) / (h1 + h2))
-    return kappa
-
-
 def interpolate(
     sweep: Sweep,
     name: str,
@@ -302,7 +289,7 @@ def interpolate(
         span = pa[i + 1] - pa[i]
         limit = gap_limit([pa], max_gap)
         nearest = np.min(np.abs(g_all[:, None] - pa[None, :]), axis=1)
-        kappa_points = _curvature_at_points(pa, pv)
+        kappa_points = curvature_at_points(pa, pv)
         # The larger curvature of the segment's two ends (fmax: NaN only where both are).
         kappa = np.fmax(kappa_points[i], kappa_points[i + 1])
         half_product = 0.5 * np.abs(g_all - pa[i]) * np.abs(pa[i + 1] - g_all)
