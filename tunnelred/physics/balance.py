@@ -496,6 +496,11 @@ def tare_interpolation_error(
     resolves. Beyond the tare range the nearest segment's line is extended and |(ω − ω₁)(ω₂ − ω)|
     grows with the distance.
 
+    References
+    ----------
+    .. [1] R. L. Burden and J. D. Faires, *Numerical Analysis*, §3.1 Theorem 3.3
+       (error of polynomial interpolation) and §3.3 (divided differences), from memory.
+
     Examples
     --------
     >>> w = np.array([100.0, 200.0, 300.0])

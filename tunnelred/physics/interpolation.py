@@ -32,6 +32,11 @@ def curvature_at_points(x: npt.ArrayLike, y: npt.ArrayLike) -> np.ndarray:
         (Newton's divided differences, exact for a parabola through the three points); NaN at
         the first and last point, and everywhere when fewer than three points are given.
 
+    References
+    ----------
+    .. [1] R. L. Burden and J. D. Faires, *Numerical Analysis*, §3.1 Theorem 3.3
+       (error of polynomial interpolation) and §3.3 (divided differences), from memory.
+
     Examples
     --------
     >>> curvature_at_points([0.0, 1.0, 3.0], [0.0, 1.0, 9.0]).tolist()  # y = x²: y'' = 2

@@ -231,6 +231,11 @@ def variance_of_the_mean(autocovariance: npt.ArrayLike) -> float:
         var(x̄) = (1/N²) Σ_i Σ_j gamma_|i−j| = (gamma_0 + 2 Σ_k (1 − k/N) gamma_k) / N
         (Bayley and Hammersley 1946). [unit²]
 
+    References
+    ----------
+    .. [1] G. V. Bayley and J. M. Hammersley, "The 'effective' number of independent
+       observations in an autocorrelated time series", J. R. Stat. Soc. Suppl. 8 (1946) 184–197.
+
     Examples
     --------
     >>> round(variance_of_the_mean(np.r_[4.0, np.zeros(99)]), 12)  # white noise: sigma² / N
@@ -328,6 +333,11 @@ def white_noise_variance(x: npt.ArrayLike) -> float:
     that is linear over two lags; an AR(1) part with lag-one correlation φ is over-counted by
     (1 − φ)² of its variance (0.4 % at φ = 0.94, the demo's 50 Hz pitot record). γ_k is the
     biased sample autocovariance of the mean-removed record.
+
+    References
+    ----------
+    .. [1] G. Matheron, "Principles of geostatistics", Econ. Geol. 58 (1963) 1246–1266 (the nugget
+       effect), from memory.
 
     Examples
     --------
@@ -443,6 +453,13 @@ def drift_uncertainty(values: npt.ArrayLike, time: npt.ArrayLike) -> float:
     the line). On 4 s AR(1) records with τ = 0.3 s (3000 records) u went from 0.70 to 0.80 of the
     drift's true spread: N_eff of the short residual record is still overestimated.
     NaN for fewer than three samples.
+
+    References
+    ----------
+    .. [1] U. Grenander, "On the estimation of regression coefficients in the case of an
+       autocorrelated disturbance", Ann. Math. Stat. 25 (1954) 252–272, from memory.
+    .. [2] A. Zięba, "Effective number of observations and unbiased estimators of variance for
+       autocorrelated data", Metrol. Meas. Syst. 17 (2010) 3–16.
     """
     x, t = np.asarray(values, dtype=float), np.asarray(time, dtype=float)
     if x.size < 3:
