@@ -254,3 +254,31 @@ def test_an_internal_error_is_one_message(monkeypatch, campaign_dir, capsys):
     out, err = capsys.readouterr()
     assert "Traceback" not in out + err
     assert "internal error: ZeroDivisionError: planted" in err
+
+
+# ---------------------------------------------------------------------------------------------
+# --monte-carlo
+
+
+@pytest.mark.parametrize("draws", ["1", "0", "-5", "1000001", "99999999999", "1e6", "many"])
+def test_monte_carlo_out_of_range_is_refused_at_once(campaign_dir, tmp_path, capsys, draws):
+    # 99999999999 draws never ended (stopped after 120 s); 1 draw was an internal error per run
+    started = time.monotonic()
+    out_dir = tmp_path / "out"
+    status = main(["reduce", str(campaign_dir), "-o", str(out_dir), "--monte-carlo", draws])
+    out, err = capsys.readouterr()
+    assert status == 2 and time.monotonic() - started < 5
+    assert "--monte-carlo" in err and "Traceback" not in out + err
+    assert not out_dir.exists()
+
+
+def test_monte_carlo_bound_is_stated_and_kept_by_the_pipeline(campaign_dir, capsys):
+    from tunnelred import cli
+    from tunnelred.pipeline import campaign as engine
+
+    assert cli._MAX_DRAWS_HELP == engine.MAX_MONTE_CARLO_DRAWS
+    assert cli.main(["reduce", "--help"]) == 0
+    help_text = " ".join(capsys.readouterr().out.split())
+    assert f"N is 2 to {cli._MAX_DRAWS_HELP}" in help_text and "JCGM 101 §7.2.2" in help_text
+    with pytest.raises(ValueError, match="monte_carlo takes 0"):
+        engine.reduce_campaign(campaign_dir, None, monte_carlo=engine.MAX_MONTE_CARLO_DRAWS + 1)
