@@ -11,17 +11,19 @@ from __future__ import annotations
 
 import shutil
 from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 
+from tunnelred.cli import main
 from tunnelred.common.errors import InputError
 from tunnelred.demo.spec import demo_spec
 from tunnelred.demo.writer import make_campaign
 from tunnelred.engine.reduction import reduce_run
 from tunnelred.inputs.readers import open_campaign
-from tunnelred.products.plan import AirState, NoiseLevels, plan_test, write_plan
+from tunnelred.products.plan import AirState, NoiseLevels, plan_folder, plan_test, write_plan
 
 SPIN_RATIOS = (0.0, 1.0, 2.0, 3.0)
 # The demo's balance noise, 4e-4 V a channel through its diagonal calibration (8, 24, 0.2 per
@@ -197,6 +199,64 @@ def test_a_plan_folder_is_replaced_whole_or_not_at_all(simulated, tmp_path, monk
     assert pd.read_csv(out / "plan.csv")["speed_set"].tolist() == [12.0]
     # One generation only: the earlier plan's files are gone from it, not beside it.
     assert len(list((out / ".generations").iterdir())) == 1
+
+
+def _tree(folder: Path) -> dict:
+    return {
+        str(p.relative_to(folder)): p.read_bytes()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file() and p.name != ".lock"
+    }
+
+
+def test_a_reduction_never_replaces_a_plan(simulated, tmp_path, capsys):
+    # A plan folder is written as a generation, as results are; with one marker for both,
+    # `reduce -o PLANDIR` replaced the plan by results. Each now has its kind (results_folder).
+    from tunnelred.common.errors import OutputFolderError
+    from tunnelred.pipeline.campaign import reduce_campaign
+    from tunnelred.products import results_folder
+
+    folder, _, _, plan = simulated
+    out = tmp_path / "plan-out"
+    write_plan(plan, out)
+    assert results_folder.folder_kind(out) == "plan"
+    before = _tree(out)
+    for extra in ([], ["--force"]):
+        assert main(["reduce", str(folder), "-o", str(out), "--quiet", *extra]) == 2
+        err = capsys.readouterr().err
+        assert "holds a plan written by 'tunnelred plan'" in err and "Traceback" not in err
+    with pytest.raises(OutputFolderError, match="holds a plan"):
+        results_folder.open_results_folder(out)  # the watch's and the report's way in
+    # A plan folder of before kinds (the bare marker) is told by its plan.json.
+    (out / results_folder.MARKER).write_text("{}\n", encoding="utf-8")
+    with pytest.raises(OutputFolderError, match="holds a plan"):
+        reduce_campaign(folder, out, workers=1, progress=False, figures=False)
+    (out / results_folder.MARKER).write_bytes(before[results_folder.MARKER])
+    assert _tree(out) == before
+    # Writing the plan again over itself is the ordinary replacement.
+    write_plan(plan, out)
+    assert (out / "plan.csv").read_bytes() == before["plan.csv"]
+
+
+def test_a_plan_never_replaces_results(simulated, tmp_path):
+    from tunnelred.common.errors import OutputFolderError
+    from tunnelred.products import results_folder
+
+    folder, _, _, plan = simulated
+    out = tmp_path / "results"
+    with results_folder.open_results_folder(out) as held, held.stage() as staging:
+        staging.file("results.csv").write_text("run\nR001\n", encoding="utf-8")
+    results_folder.link_outputs(out)
+    assert results_folder.folder_kind(out) == "results"
+    before = _tree(out)
+    with pytest.raises(OutputFolderError, match="holds tunnelred results"):
+        write_plan(plan, out)
+    assert _tree(out) == before
+    # The command puts it beside them, in plan/, which the results' generation never holds.
+    assert plan_folder(out, folder) == out / "plan"
+    write_plan(plan, plan_folder(out, folder))
+    assert (out / "results.csv").read_text(encoding="utf-8") == "run\nR001\n"
+    assert results_folder.folder_kind(out / "plan") == "plan"
 
 
 def _rated_campaign(folder, tmp_path):

@@ -6,12 +6,16 @@ a new generation folder inside OUT and then switches OUT to it with one atomic r
 file users see comes from one reduction: the old one or the new one. The paths users and the
 docs know keep working through fixed links into ``current``::
 
-    OUT/.tunnelred                  marks a results folder tunnelred made
+    OUT/.tunnelred                  marks a folder tunnelred made, and its kind: results or plan
     OUT/.lock                       held by the one process reducing into OUT (its pid inside)
     OUT/.cache/                     per-run cache entries (shared by the generations)
     OUT/.generations/<id>/          a complete set: results.nc, ..., figures/, report.pdf
     OUT/current -> .generations/<id>
     OUT/results.nc -> current/results.nc    (and so on for each entry of the generation)
+
+A plan (``tunnelred plan``) is written the same way, into a folder of its own kind: a reduction
+never opens a plan's folder and a plan never opens a results folder, since either would replace
+the other's generation.
 
 Leftovers of an interrupted run (a half-written generation, temporary files, a stale switch
 link) are removed the next time OUT is opened. docs/results.md describes the layout.
@@ -47,14 +51,17 @@ __all__ = [
     "ResultsFolder",
     "Staging",
     "check_location",
+    "folder_kind",
     "generation_of",
     "is_results_folder",
     "link_outputs",
     "open_results_folder",
 ]
 
-#: The file that marks a folder as a tunnelred results folder.
+#: The file that marks a folder as a tunnelred output folder; its JSON names the folder's kind.
 MARKER = ".tunnelred"
+#: The kinds of output folder: a reduction's (or a watch's) results, or a plan.
+KINDS = ("results", "plan")
 _LOCK = ".lock"
 _CACHE = ".cache"
 _GENERATIONS = ".generations"
@@ -91,12 +98,55 @@ def is_results_folder(root: Path) -> bool:
     return all((root / name).is_file() for name in _OLD_LAYOUT)
 
 
-def check_location(out, campaign=None, *, force: bool = False) -> Path:
+def _recorded_kind(root: Path) -> str | None:
+    """The kind the marker names; None for a marker of before kinds, or one not to be trusted
+    (not a regular file, too large, not a JSON object)."""
+    marker = root / MARKER
+    try:
+        if not stat.S_ISREG(os.lstat(marker).st_mode) or marker.stat().st_size > 4096:
+            return None
+        record = json.loads(marker.read_text(encoding="utf-8"))
+    except (OSError, ValueError, UnicodeDecodeError):
+        return None
+    kind = record.get("kind") if isinstance(record, dict) else None
+    return kind if kind in KINDS else None
+
+
+def folder_kind(root) -> str | None:
+    """``"results"`` or ``"plan"`` for a folder tunnelred made, None for any other folder."""
+    root = Path(root)
+    kind = _recorded_kind(root)
+    if kind is not None:
+        return kind
+    # Before kinds, a plan's folder carried the bare marker too; plan.json at its top (a
+    # results folder keeps its plan in plan/) tells it apart.
+    if (root / "plan.json").is_file():
+        return "plan"
+    return "results" if is_results_folder(root) else None
+
+
+def _other_kind(out: Path, found: str) -> OutputFolderError:
+    if found == "plan":
+        return OutputFolderError(
+            f"{out} holds a plan written by 'tunnelred plan', not results, and results written "
+            "there would replace it; choose another output folder (a plan made with "
+            "'tunnelred plan ... -o OUT' after the reduction goes into OUT/plan/ beside them)"
+        )
+    return OutputFolderError(
+        f"{out} holds tunnelred results, which a plan would replace; write the plan into its "
+        "plan/ subfolder ('tunnelred plan ... -o OUT' does) or into another folder"
+    )
+
+
+def check_location(
+    out, campaign=None, *, force: bool = False, kind: str | None = "results"
+) -> Path:
     """Check that ``out`` can serve as an output folder, before anything is reduced.
 
     Returns the resolved path. Raises :class:`OutputFolderError` when it is (or would be)
-    inside the campaign folder, a file, under a file, not writable, or a non-empty folder that
-    is not a tunnelred results folder (unless ``force``).
+    inside the campaign folder, a file, under a file, not writable, a folder tunnelred made
+    of another ``kind`` than the one to write (whatever ``force``; None: not judged), or a
+    non-empty folder that tunnelred did not make (unless ``force``).
     """
     out = Path(os.path.realpath(Path(out).expanduser()))
     if campaign is not None:
@@ -115,9 +165,12 @@ def check_location(out, campaign=None, *, force: bool = False) -> Path:
         raise OutputFolderError(f"{existing} exists and is not a folder")
     if not os.access(existing, os.W_OK | os.X_OK):
         raise OutputFolderError(f"{existing} cannot be written (permission denied)")
+    found = folder_kind(out) if existing == out else None
+    if kind is not None and found is not None and found != kind:
+        raise _other_kind(out, found)
     if existing == out and not force:
         entries = [e for e in out.iterdir()]
-        if entries and not is_results_folder(out):
+        if entries and found is None:
             raise OutputFolderError(
                 f"{out} is not empty and is not a tunnelred results folder; choose another "
                 "folder, or add --force to write into it"
@@ -237,8 +290,9 @@ class ResultsFolder:
     Use :func:`open_results_folder`; release with :meth:`close` or as a context manager.
     """
 
-    def __init__(self, root: Path):
+    def __init__(self, root: Path, kind: str = "results"):
         self.root = root
+        self.kind = kind
         self._lock = _Lock(root)
 
     # -- opening and closing
@@ -246,13 +300,22 @@ class ResultsFolder:
     def _open(self) -> None:
         self._lock.acquire()
         try:
+            # Judged again under the lock: another kind may have been written meanwhile.
+            found = folder_kind(self.root)
+            if found is not None and found != self.kind:
+                raise _other_kind(self.root, found)
             marker = self.root / MARKER
-            if not marker.is_file():
-                text = json.dumps({"tunnelred": __version__, "layout": "generations"}) + "\n"
-                marker.write_text(text, encoding="utf-8")
+            if not marker.is_file() or _recorded_kind(self.root) is None:
+                record = {"tunnelred": __version__, "layout": "generations", "kind": self.kind}
+                tmp = self.root / f".marker-{secrets.token_hex(4)}.tmp"
+                tmp.write_text(json.dumps(record) + "\n", encoding="utf-8")
+                os.replace(tmp, marker)
             self.cache.mkdir(exist_ok=True)
             (self.root / _GENERATIONS).mkdir(exist_ok=True)
             self.clean()
+        except OutputFolderError:
+            self._lock.release()
+            raise
         except OSError as exc:
             self._lock.release()
             raise OutputFolderError(f"{self.root} cannot be written: {exc.strerror}") from None
@@ -373,20 +436,24 @@ def _current(root: Path) -> Path | None:
     return generation if generation.is_dir() else None
 
 
-def open_results_folder(out, campaign=None, *, force: bool = False) -> ResultsFolder:
-    """Check, create, lock and clean an output folder (see :func:`check_location`).
+def open_results_folder(
+    out, campaign=None, *, force: bool = False, kind: str = "results"
+) -> ResultsFolder:
+    """Check, create, lock and clean an output folder of ``kind`` (see :func:`check_location`).
 
     Raises
     ------
     OutputFolderError
         The folder cannot be used, or another process holds it: nothing was changed.
     """
-    root = check_location(out, campaign, force=force)
+    if kind not in KINDS:
+        raise ValueError(f"kind must be one of {KINDS}; got {kind!r}")
+    root = check_location(out, campaign, force=force, kind=kind)
     try:
         root.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise OutputFolderError(f"{root} cannot be made: {exc.strerror}") from None
-    folder = ResultsFolder(root)
+    folder = ResultsFolder(root, kind)
     folder._open()
     return folder
 

@@ -171,25 +171,21 @@ def plan_folder(out, campaign=None) -> Path:
         ``out`` is inside the campaign folder, a file, not writable, or a non-empty folder that
         is neither a plan nor a results folder.
     """
-    from tunnelred.products.results_folder import check_location, is_results_folder
+    from tunnelred.products.results_folder import check_location, folder_kind
 
-    path = Path(out)
-    if path.is_dir() and (path / "plan.json").is_file():
-        # A plan folder (written as a generation, so it carries the results folder's marker;
-        # a results folder holds its plan in plan/, never plan.json at the top).
-        check_location(path, campaign, force=True)
-        return path
-    # force: the non-empty folder is judged here, since check_location's way out (--force) is
-    # not a plan's: other files beside a plan's would be mistaken for its own.
-    checked = check_location(path, campaign, force=True)
-    if checked.is_dir() and any(checked.iterdir()) and not is_results_folder(checked):
+    # force and kind=None: the folder is judged here, since check_location's way out (--force)
+    # is not a plan's (other files beside a plan's would be mistaken for its own), and a
+    # results folder is not refused but given the plan in its plan/.
+    checked = check_location(Path(out), campaign, force=True, kind=None)
+    kind = folder_kind(checked) if checked.is_dir() else None
+    if kind == "results":
+        return checked / PLAN_SUBFOLDER
+    if kind is None and checked.is_dir() and any(checked.iterdir()):
         raise OutputFolderError(
             f"{checked} is not empty and holds neither a plan nor tunnelred results; choose a "
             "new or empty folder, an earlier plan's folder (replaced) or a results folder (the "
             "plan goes into its plan/)"
         )
-    if checked.is_dir() and is_results_folder(checked):
-        return checked / PLAN_SUBFOLDER
     return checked
 
 
@@ -205,9 +201,9 @@ def write_plan(result: PlanResult, out, campaign=None) -> list[Path]:
     Raises
     ------
     OutputFolderError
-        ``out`` cannot be used (a file, not writable, a non-empty folder that is neither a plan
-        nor a results folder, another process writing it) or the plan could not be written
-        whole (the previous plan, if any, is kept).
+        ``out`` cannot be used (a file, not writable, a results folder, a non-empty folder
+        that is neither a plan nor a results folder, another process writing it) or the plan
+        could not be written whole (the previous plan, if any, is kept).
     """
     from tunnelred.products.plan.figures import save_plan_figures
     from tunnelred.products.results_folder import open_results_folder
@@ -215,8 +211,7 @@ def write_plan(result: PlanResult, out, campaign=None) -> list[Path]:
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise OutputFolderError(f"{out} exists and is not a folder")
-    earlier_plan = (out / "plan.json").is_file()
-    with open_results_folder(out, campaign, force=earlier_plan) as folder:
+    with open_results_folder(out, campaign, kind="plan") as folder:
         with folder.stage() as staging:
             paths = [write_csv(result.table, staging.file("plan.csv"))]
             ds = result.to_dataset()
