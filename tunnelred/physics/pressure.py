@@ -10,7 +10,6 @@ into CL and CD (∮Cp) is tunnelred.physics.integration; its names stay importab
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from statistics import NormalDist
@@ -39,6 +38,9 @@ __all__ = [
     "quadrature_uncertainty",
     "find_dead_taps",
     "merge_indexed",
+    "within_turn",
+    "floor_divide",
+    "nanmedian_of_columns",
 ]
 
 
@@ -210,6 +212,76 @@ def pressure_coefficient(reading: ArrayLike, q: ArrayLike, *, head: ArrayLike = 
     return (reading + head) / q
 
 
+def _wrap_turns(raw: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``np.mod(raw, 360.0)`` bit for bit, and the whole turns F it took off, in fewer passes.
+
+    numpy's remainder is fmod (exact) plus 360 on a negative remainder (one rounding), i.e. the
+    difference raw − 360 F, F = floor(raw / 360) exactly, rounded once; 360 F is exact, so
+    ``raw - 360.0 * F`` is the same number. fl(raw / 360) never falls below F and exceeds it
+    only by rounding up to a whole number, where raw − 360 (F + 1) < 0: those are stepped back.
+    """
+    turns = np.floor(raw / 360.0)
+    theta = raw - 360.0 * turns
+    low = theta < 0.0
+    if low.any():
+        turns[low] -= 1.0
+        theta[low] = raw[low] - 360.0 * turns[low]
+    return theta, turns
+
+
+def within_turn(theta: np.ndarray) -> np.ndarray:
+    """``np.mod(theta, 360.0)``, without its division when every azimuth is in [0, 360) already.
+
+    Parameters
+    ----------
+    theta : ndarray
+        Azimuths, usually wrapped already (:func:`tap_azimuths`). [deg]
+
+    Returns
+    -------
+    ndarray
+        The same values in [0, 360): ``theta`` itself when it needs no wrapping (the remainder of
+        a value in [0, 360) is that value), else ``np.mod(theta, 360.0)``. [deg]
+    """
+    if theta.size and theta.min() >= 0.0 and theta.max() < 360.0:
+        return theta
+    return np.mod(theta, 360.0)
+
+
+def floor_divide(x: np.ndarray, width: float) -> np.ndarray:
+    """``x // width`` bit for bit (numpy's exact floor of the quotient), in fewer passes.
+
+    floor(fl(x / width)) is the exact floor except where the quotient rounded to a whole
+    number; only those elements are divided again with numpy's floor division.
+
+    Examples
+    --------
+    >>> floor_divide(np.array([360.0, 7.5]), 360.0 / 7).tolist()
+    [6.0, 0.0]
+    """
+    ratio = x / width
+    whole = np.floor(ratio)
+    edge = ratio == whole
+    if edge.any():
+        whole[edge] = x[edge] // width
+    return whole
+
+
+def nanmedian_of_columns(values: np.ndarray) -> np.ndarray:
+    """``np.nanmedian(values, axis=0)`` of a 2-D array, sorted once instead of column by column.
+
+    The middle sample of a column's finite values, or the mean of the middle two, as numpy's
+    median gives it; NaN for a column without a finite value (no warning).
+    """
+    ordered = np.sort(values, axis=0)  # NaN last
+    n = np.count_nonzero(~np.isnan(values), axis=0)
+    low = np.take_along_axis(ordered, np.maximum((n - 1) // 2, 0)[None, :], axis=0)[0]
+    high = np.take_along_axis(ordered, np.maximum(n // 2 - (n == 0), 0)[None, :], axis=0)[0]
+    median = (low + high) / 2.0
+    median[n == 0] = np.nan
+    return median
+
+
 def _revolution_index(theta: np.ndarray) -> np.ndarray:
     """Revolution count of each sample of time-ordered azimuths (last axis is time)."""
     return np.floor(np.unwrap(theta, period=360.0, axis=-1) / 360.0).astype(np.int64)
@@ -259,26 +331,28 @@ def tap_azimuths(
     delay = np.asarray(tubing_delay, dtype=float)[:, None]
     # The same arithmetic as tap_azimuth, so that theta is bit for bit what it gives.
     raw = angle[None, :] + azimuth - np.degrees(omega * delay)
-    theta = np.mod(raw, 360.0)
+    theta, wraps = _wrap_turns(raw)
     turns = np.rint((np.unwrap(angle, period=360.0) - angle) / 360.0).astype(np.int64)
-    wraps = np.rint((raw - theta) / 360.0).astype(np.int64)
-    return theta, turns[None, :] + wraps
+    return theta, turns[None, :] + wraps.astype(np.int64)
 
 
 def _pass_index(
     series: np.ndarray, revolution: np.ndarray, b: np.ndarray, bins: int
-) -> tuple[np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray] | None:
     """(pass of each sample, bin of each pass): a pass is one series' stay in one bin per turn.
 
     Samples are in time order within each series. When each series' turn-and-bin key moves one
     way only (the azimuth never steps back across a bin edge) every pass is one stretch of
-    consecutive samples, numbered in one scan; otherwise np.unique groups them.
+    consecutive samples, numbered in one scan; otherwise np.unique groups them. None for whole
+    series whose every sample is a pass of its own.
     """
     key = revolution * bins + b
     if key.ndim == 2:
         # Whole series, one a row: steps are taken within rows, so no sample pairs across series.
         step = np.diff(key, axis=1)
         if step.size == 0 or not (step.max() > 0 and step.min() < 0):
+            if step.size and np.count_nonzero(step) == step.size:
+                return None
             starts = np.ones(key.shape, dtype=bool)
             np.not_equal(step, 0, out=starts[:, 1:])
             starts = starts.reshape(-1)
@@ -431,7 +505,7 @@ def bin_cp(
 
     width = 360.0 / bins
     centres = (np.arange(bins) + 0.5) * width
-    wrapped = np.mod(theta, 360.0)
+    wrapped = within_turn(theta)
     b = np.minimum((wrapped / width).astype(np.int64), bins - 1)
     flat_b, flat_cp = b.reshape(-1), cp.reshape(-1)
     count = np.bincount(flat_b, minlength=bins)
@@ -453,16 +527,21 @@ def bin_cp(
         series_count = np.bincount(series * bins + b, minlength=max(n_series, 1) * bins)
     series_count = series_count.reshape(-1, bins)[: max(n_series, 1)]
 
-    if cp.size:
-        which, pass_bin = _pass_index(series, revolution, b, bins)
-        cp = flat_cp
+    passes = _pass_index(series, revolution, b, bins) if cp.size else None
+    if passes is None and cp.size:
+        # Every sample a pass of its own (a fast spin: each sample in another bin): the passes'
+        # statistics are the samples', the same sums in the same order.
+        n_pass, spread = count, squares
     else:
-        which, pass_bin = np.zeros(0, np.int64), np.zeros(0, np.int64)
-    pass_mean = np.bincount(which, weights=cp) / np.bincount(which)
-    n_pass = np.bincount(pass_bin, minlength=bins)
+        which, pass_bin = passes or (np.zeros(0, np.int64), np.zeros(0, np.int64))
+        pass_mean = np.bincount(which, weights=flat_cp) / np.bincount(which)
+        n_pass = np.bincount(pass_bin, minlength=bins)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            centre = np.bincount(pass_bin, weights=pass_mean, minlength=bins) / n_pass
+            spread = np.bincount(
+                pass_bin, weights=(pass_mean - centre[pass_bin]) ** 2, minlength=bins
+            )
     with np.errstate(invalid="ignore", divide="ignore"):
-        centre = np.bincount(pass_bin, weights=pass_mean, minlength=bins) / n_pass
-        spread = np.bincount(pass_bin, weights=(pass_mean - centre[pass_bin]) ** 2, minlength=bins)
         u_mean = np.sqrt(spread / (n_pass - 1) / n_pass)
     u_mean[n_pass < 2] = np.nan
 
@@ -606,10 +685,8 @@ def find_dead_taps(
         for i in np.flatnonzero(reference):
             others = reference.copy()
             others[i] = False
-            with warnings.catch_warnings():
-                # An all-NaN bin (no other tap there) is expected and simply not compared.
-                warnings.simplefilter("ignore", RuntimeWarning)
-                median = np.nanmedian(means[others], axis=0)
+            # An all-NaN bin (no other tap there) is expected and simply not compared.
+            median = nanmedian_of_columns(means[others])
             spread = np.pi / 2 * np.mean(own_u[others] ** 2, axis=0) / others.sum()
             gap = np.abs(means[i] - median) - k * np.sqrt(own_u[i] ** 2 + spread)
             gap = gap[np.isfinite(gap)]

@@ -7,7 +7,6 @@ become run-level inputs with the constants the run model needs (:class:`Pressure
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -110,8 +109,8 @@ def _pressure_inputs(
     revolutions = abs(omega_mean) * (t[-1] - t[0]) / (2 * np.pi)
     # Each tap's bin means, all taps in one bincount: the dead-tap test needs no more.
     width = 360.0 / bins
-    wrapped = np.mod(thetas, 360.0)
-    tap_bins = np.minimum((wrapped // width).astype(int), bins - 1)
+    wrapped = pressure.within_turn(thetas)
+    tap_bins = np.minimum(pressure.floor_divide(wrapped, width).astype(int), bins - 1)
     cells = tap_bins + np.arange(len(names))[:, None] * bins
     size = len(names) * bins
     sums = np.bincount(cells.ravel(), weights=(readings / q_mean).ravel(), minlength=size)
@@ -191,9 +190,7 @@ def _tap_comparison(
     with np.errstate(invalid="ignore", divide="ignore"):
         offset = np.bincount(cells, from_centre, size) / counts
         square = np.bincount(cells, from_centre * from_centre, size) / counts
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # a bin no tap saw
-        reference = np.nanmedian(per_tap, axis=0)
+    reference = pressure.nanmedian_of_columns(per_tap)  # NaN: a bin no tap saw
     seen = np.flatnonzero(np.isfinite(reference))
     slope = np.zeros(bins)
     curvature = np.zeros(bins)
