@@ -9,6 +9,7 @@ Anderson, Fundamentals of Aerodynamics, 6th ed., §3.15) as a smooth test Cp(θ)
 """
 
 import re
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -25,11 +26,14 @@ from tunnelred.physics.pressure import (
     bin_cp,
     centrifugal_head,
     find_dead_taps,
+    floor_divide,
     integrate_cp,
     merge_indexed,
+    nanmedian_of_columns,
     pressure_coefficient,
     tap_azimuth,
     tap_azimuths,
+    within_turn,
 )
 from tunnelred.physics.theory import cp_surface
 
@@ -521,3 +525,83 @@ def test_quadrature_uncertainty_covers_the_rule_error_of_sixteen_taps():
     x = np.radians(theta)
     assert quadrature_uncertainty(theta, 1 - 4 * np.sin(x) ** 2 + 0.3 * np.cos(x)) < 1e-12
     assert np.isnan(quadrature_uncertainty(theta[::3], np.cos(x[::3])))  # 6 points: no halves
+
+
+# --- the binning's arithmetic against numpy's own -------------------------------------------
+
+
+def _edges_of_turns(rng):
+    """Azimuths with whole turns, their neighbours one ulp either side, tiny values, zeros."""
+    k = rng.integers(-5, 6, 2000) * 360.0
+    return np.concatenate(
+        [
+            rng.uniform(-2000.0, 2000.0, 20000),
+            k,
+            np.nextafter(k, np.inf),
+            np.nextafter(k, -np.inf),
+            k + rng.choice([1e-13, -1e-13, 1e-17, -1e-17], k.size),
+            [0.0, -0.0, 1e-300, -1e-300, -5e-324],
+        ]
+    )
+
+
+def test_tap_azimuths_wrap_bit_for_bit_at_whole_turns():
+    # Reference: numpy's remainder (np.mod) and the turns it took off, on azimuths at and one ulp
+    # beside whole turns, where a quotient rounds to a whole number.
+    raw = _edges_of_turns(np.random.default_rng(5))
+    theta, turns = tap_azimuths(raw, [0.0], [0.0], 0.0)
+    reference = np.mod(raw, 360.0)
+    assert np.array_equal(theta[0].view(np.int64), reference.view(np.int64))
+    unwrapped = np.rint((np.unwrap(raw, period=360.0) - raw) / 360.0)
+    assert np.array_equal(turns[0], unwrapped + np.rint((raw - reference) / 360.0))
+    assert np.array_equal(within_turn(reference), np.mod(reference, 360.0))
+    assert np.array_equal(within_turn(raw), reference)
+
+
+@pytest.mark.parametrize("bins", [72, 36, 7, 13, 100])
+def test_floor_divide_is_numpy_floor_division(bins):
+    # Reference: numpy's floor division x // w, bit for bit, on wrapped azimuths and on every
+    # bin edge and its neighbours (360 // (360/7) is 6 in exact arithmetic, 7 by the rounded
+    # quotient).
+    width = 360.0 / bins
+    edges = np.arange(bins + 1) * width
+    x = np.concatenate(
+        [
+            np.mod(_edges_of_turns(np.random.default_rng(bins)), 360.0),
+            edges,
+            np.nextafter(edges, -1.0),
+            np.nextafter(edges, 400.0),
+        ]
+    )
+    assert np.array_equal(floor_divide(x, width), x // width)
+
+
+def test_nanmedian_of_columns_is_numpys():
+    # Reference: np.nanmedian(axis=0) on arrays of 1-16 rows with NaNs and ties, all-NaN columns.
+    rng = np.random.default_rng(8)
+    for trial in range(300):
+        rows, columns = rng.integers(1, 17), rng.integers(1, 80)
+        a = rng.standard_normal((rows, columns))
+        if trial % 3 == 0:
+            a = np.round(a, 1) + 0.05  # ties, no zeros (numpy leaves the sign of a zero open)
+        a[rng.random(a.shape) < rng.random() * 0.7] = np.nan
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN columns
+            reference = np.nanmedian(a, axis=0)
+        assert np.array_equal(nanmedian_of_columns(a), reference, equal_nan=True)
+
+
+def test_bin_cp_fast_spin_every_sample_a_pass():
+    # A spin of more than a bin (10°) a sample: each sample is a pass of its own, so by GUM §4.2.3 a
+    # bin's u_mean is the samples' standard deviation over the square root of their number.
+    rng = np.random.default_rng(21)
+    cumulative = np.cumsum(rng.uniform(11.0, 40.0, (3, 3000)), axis=1)
+    theta = np.mod(cumulative, 360.0)
+    cp = _true_cp(theta) + rng.normal(0, 0.05, theta.shape)
+    b = bin_cp(theta, cp, bins=36, revolution=cumulative // 360.0)
+    which = np.minimum((theta / 10.0).astype(int), 35)
+    for k in (0, 7, 20, 35):
+        samples = cp[which == k]
+        assert b.count[k] == samples.size
+        assert b.u_mean[k] == pytest.approx(samples.std(ddof=1) / np.sqrt(samples.size), rel=1e-12)
+        assert b.std[k] == pytest.approx(samples.std(ddof=1), rel=1e-12)
