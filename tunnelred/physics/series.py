@@ -191,13 +191,20 @@ def _n_eff_of_lag_sums(acov: np.ndarray) -> float:
     n = acov.size
     if acov[0] <= 0.0:
         return float(n)
-    k = np.arange(1, n)
-    weighted = (1.0 - k / n) * acov[1:] / acov[0]
+
+    def weighted_lags(last: int) -> tuple[np.ndarray, np.ndarray]:
+        k = np.arange(1, last + 1)
+        return k, (1.0 - k / n) * acov[1 : last + 1] / acov[0]
+
+    # The window is searched among M <= N/4 only: the lags up to there suffice (the running
+    # sums of a prefix are the prefix of the running sums).
+    k, weighted = weighted_lags(n // 4)
     # tau(M) for every M at once: Σ (1 − k/(M+1)) r_k = Σ r_k − Σ k r_k / (M+1).
     tau = 1.0 + 2.0 * (np.cumsum(weighted) - np.cumsum(k * weighted) / (k + 1.0))
     window = np.flatnonzero((k >= _WINDOW_C * tau) & (k <= n // 4))
     if window.size:
         return float(np.clip(n / tau[window[0]], 1.0, _N_EFF_CAP * n))
+    _, weighted = weighted_lags(n - 1)
     non_positive = np.flatnonzero(weighted <= 0.0)
     last = non_positive[0] if non_positive.size else weighted.size
     return float(np.clip(n / (1.0 + 2.0 * np.sum(weighted[:last])), 1.0, n))
